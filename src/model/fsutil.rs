@@ -1,0 +1,71 @@
+//! File helpers shared by every writer: atomic replace with an optional backup.
+
+use std::fs;
+use std::io::Write;
+use std::path::{Path, PathBuf};
+
+/// Write `bytes` to `path` atomically: a temporary file in the same folder is written,
+/// flushed to disk (fsync) and renamed over the target. With `keep_backup`, an existing
+/// target is first copied to `<name>.bak`. A crash at any point leaves either the old or the
+/// new file, never a torn one.
+pub fn atomic_write(path: &Path, bytes: &[u8], keep_backup: bool) -> std::io::Result<()> {
+    let dir = match path.parent() {
+        Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
+        _ => PathBuf::from("."),
+    };
+    let name = path
+        .file_name()
+        .ok_or_else(|| std::io::Error::other(format!("{}: not a file path", path.display())))?
+        .to_string_lossy()
+        .into_owned();
+    let tmp = dir.join(format!(".{name}.{}.tmp", std::process::id()));
+    {
+        let mut f = fs::File::create(&tmp)?;
+        f.write_all(bytes)?;
+        f.sync_all()?;
+    }
+    if keep_backup && path.exists() {
+        let bak = dir.join(format!("{name}.bak"));
+        let bak_tmp = dir.join(format!(".{name}.bak.{}.tmp", std::process::id()));
+        fs::copy(path, &bak_tmp)?;
+        fs::File::open(&bak_tmp)?.sync_all()?;
+        fs::rename(&bak_tmp, &bak)?;
+    }
+    if let Err(e) = fs::rename(&tmp, path) {
+        let _ = fs::remove_file(&tmp);
+        return Err(e);
+    }
+    if let Ok(d) = fs::File::open(&dir) {
+        let _ = d.sync_all();
+    }
+    Ok(())
+}
+
+/// Serialise `value` as pretty JSON with a trailing newline.
+pub fn to_json_pretty<T: serde::Serialize>(value: &T) -> Vec<u8> {
+    let mut v = serde_json::to_vec_pretty(value).expect("in-memory values serialise");
+    v.push(b'\n');
+    v
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn replaces_and_keeps_backup() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("a.json");
+        atomic_write(&p, b"one", true).unwrap();
+        assert!(!dir.path().join("a.json.bak").exists());
+        atomic_write(&p, b"two", true).unwrap();
+        assert_eq!(fs::read(&p).unwrap(), b"two");
+        assert_eq!(fs::read(dir.path().join("a.json.bak")).unwrap(), b"one");
+        let leftovers: Vec<_> = fs::read_dir(dir.path())
+            .unwrap()
+            .filter_map(|e| e.ok())
+            .filter(|e| e.file_name().to_string_lossy().ends_with(".tmp"))
+            .collect();
+        assert!(leftovers.is_empty());
+    }
+}

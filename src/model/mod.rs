@@ -1,0 +1,15 @@
+//! Pure data and maths: phrases, Gaussians, trees, projects and everything computed from
+//! them. Nothing in here knows about egui.
+
+pub mod fsutil;
+pub mod gaussian;
+pub mod info;
+pub mod phrase;
+pub mod project;
+pub mod projection;
+pub mod tree;
+
+pub use gaussian::{CovarianceKind, GaussianView, Gaussians, PhraseId, Similarity};
+pub use phrase::PhraseTable;
+pub use project::{LoadError, Project};
+pub use tree::Tree;

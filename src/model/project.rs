@@ -1,0 +1,793 @@
+//! The project folder: `project.json` and the files it names, loaded and validated.
+//!
+//! Loading is all-or-nothing: any malformed input returns a [`LoadError`] naming the file and
+//! the phrase, row or field, and no partially loaded project is ever handed out.
+
+use std::collections::BTreeMap;
+use std::fs;
+use std::path::{Component, Path, PathBuf};
+use std::sync::Arc;
+
+use ndarray::{Array2, Array3};
+use ndarray_npy::{ReadNpyError, ReadNpyExt, WriteNpyExt};
+use serde::{Deserialize, Serialize};
+
+use super::fsutil;
+use super::gaussian::{
+    CovarianceKind, DEFAULT_VARIANCE_FLOOR, GaussError, Gaussians, OwnedGaussian, PhraseId,
+};
+use super::phrase::{PhraseRecord, PhraseTable};
+use super::tree::{Tree, TreeFile};
+
+/// The `format` value every manifest carries.
+pub const FORMAT_NAME: &str = "treewright-project";
+/// The manifest version this build reads and writes.
+pub const FORMAT_VERSION: u32 = 1;
+/// The manifest's file name inside a project folder.
+pub const MANIFEST_NAME: &str = "project.json";
+
+/// A load failure: always names the file, and the row / phrase / field where one applies.
+#[derive(Debug, thiserror::Error)]
+pub enum LoadError {
+    /// The file could not be read.
+    #[error("{file}: cannot read: {source}")]
+    Io {
+        /// The file.
+        file: String,
+        /// The OS error.
+        source: std::io::Error,
+    },
+    /// JSON syntax or schema error, with position.
+    #[error("{file}:{line}:{column}: {message}")]
+    Json {
+        /// The file.
+        file: String,
+        /// 1-based line.
+        line: usize,
+        /// 1-based column.
+        column: usize,
+        /// serde_json's message.
+        message: String,
+    },
+    /// A `.npy` file is truncated, not NumPy, or of the wrong element type or shape.
+    #[error("{file}: not a usable .npy array: {message}")]
+    Npy {
+        /// The file.
+        file: String,
+        /// What is wrong.
+        message: String,
+    },
+    /// A value is invalid.
+    #[error("{file}: {field}: {message}")]
+    Invalid {
+        /// The file.
+        file: String,
+        /// Field, row or phrase concerned.
+        field: String,
+        /// What is wrong.
+        message: String,
+    },
+}
+
+impl LoadError {
+    fn invalid(file: &str, field: impl Into<String>, message: impl Into<String>) -> Self {
+        LoadError::Invalid {
+            file: file.to_string(),
+            field: field.into(),
+            message: message.into(),
+        }
+    }
+}
+
+/// What the second embedding array holds.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
+#[serde(rename_all = "snake_case")]
+pub enum Scale {
+    /// σ² (the default).
+    #[default]
+    Variance,
+    /// σ: squared on load.
+    Std,
+    /// ln σ²: exponentiated on load.
+    LogVariance,
+}
+
+/// Where the embeddings are.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(untagged)]
+pub enum EmbeddingsRef {
+    /// One JSON file.
+    Json(String),
+    /// NumPy files: means plus exactly one of variances (diagonal) or covariances (full).
+    Npy {
+        /// `n × d` means.
+        means: String,
+        /// `n × d` variances (diagonal covariance).
+        #[serde(default, skip_serializing_if = "Option::is_none")]
+        variances: Option<String>,
+        /// `n × d × d` covariances (full covariance).
+        #[serde(default, skip_serializing_if = "Option::is_none")]
+        covariances: Option<String>,
+    },
+}
+
+/// `project.json`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Manifest {
+    /// Always `treewright-project`.
+    pub format: String,
+    /// Format version (1).
+    pub version: u32,
+    /// Display name.
+    pub name: String,
+    /// Phrase table file.
+    pub phrases: String,
+    /// Embedding files.
+    pub embeddings: EmbeddingsRef,
+    /// What the second embedding array holds.
+    #[serde(default, skip_serializing_if = "is_default_scale")]
+    pub scale: Scale,
+    /// Variances below this are raised to it (default 1e-6).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub variance_floor: Option<f64>,
+    /// Shopper profiles file.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub users: Option<String>,
+    /// Machine-built tree file (`.json` or `.csv`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub tree: Option<String>,
+    /// Override layer file.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub overrides: Option<String>,
+    /// Audit thresholds (read by the audit).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub audit: Option<serde_json::Value>,
+}
+
+fn is_default_scale(s: &Scale) -> bool {
+    *s == Scale::Variance
+}
+
+/// A shopper profile: a Gaussian in the phrase space.
+#[derive(Debug, Clone, PartialEq)]
+pub struct UserProfile {
+    /// Stable id.
+    pub id: String,
+    /// Display label.
+    pub label: String,
+    /// The preference distribution (diagonal).
+    pub gaussian: OwnedGaussian,
+}
+
+/// One record of `users.json`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct UserRecord {
+    /// Stable id.
+    pub id: String,
+    /// Display label.
+    pub label: String,
+    /// Mean.
+    pub mean: Vec<f64>,
+    /// Diagonal variance.
+    pub variance: Vec<f64>,
+}
+
+/// The JSON embeddings file.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct EmbeddingsJson {
+    /// `diagonal` or `full`.
+    pub covariance: CovarianceKind,
+    /// n rows of d means.
+    pub means: Vec<Vec<f64>>,
+    /// n rows of d variances (diagonal).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub variances: Option<Vec<Vec<f64>>>,
+    /// n matrices d × d (full).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub covariances: Option<Vec<Vec<Vec<f64>>>>,
+}
+
+/// A loaded, validated project.
+#[derive(Debug, Clone)]
+pub struct Project {
+    /// The project folder.
+    pub dir: PathBuf,
+    /// The manifest as read.
+    pub manifest: Manifest,
+    /// Phrases in row order.
+    pub phrases: PhraseTable,
+    /// One Gaussian per phrase, shared by every view.
+    pub gaussians: Arc<Gaussians>,
+    /// Shopper profiles (may be empty).
+    pub users: Vec<UserProfile>,
+    /// The machine-built tree, when the project has one.
+    pub tree: Option<Tree>,
+}
+
+/// Resolve `rel` inside `dir`, refusing absolute paths and paths that leave the folder.
+pub fn resolve_inside(dir: &Path, rel: &str, field: &str) -> Result<PathBuf, LoadError> {
+    let manifest = dir.join(MANIFEST_NAME).display().to_string();
+    let p = Path::new(rel);
+    if rel.is_empty() {
+        return Err(LoadError::invalid(&manifest, field, "path is empty"));
+    }
+    let mut depth: i32 = 0;
+    for c in p.components() {
+        match c {
+            Component::Prefix(_) | Component::RootDir => {
+                return Err(LoadError::invalid(
+                    &manifest,
+                    field,
+                    format!("\"{rel}\" is an absolute path; paths must be relative to the project folder"),
+                ));
+            }
+            Component::ParentDir => {
+                depth -= 1;
+                if depth < 0 {
+                    return Err(LoadError::invalid(
+                        &manifest,
+                        field,
+                        format!("\"{rel}\" leaves the project folder"),
+                    ));
+                }
+            }
+            Component::Normal(_) => depth += 1,
+            Component::CurDir => {}
+        }
+    }
+    let full = dir.join(p);
+    // a symbolic link may still point outside: compare canonical paths when the file exists
+    if let (Ok(cd), Ok(cf)) = (dir.canonicalize(), full.canonicalize())
+        && !cf.starts_with(&cd)
+    {
+        return Err(LoadError::invalid(
+            &manifest,
+            field,
+            format!("\"{rel}\" resolves outside the project folder"),
+        ));
+    }
+    Ok(full)
+}
+
+fn read_bytes(path: &Path) -> Result<Vec<u8>, LoadError> {
+    fs::read(path).map_err(|source| LoadError::Io {
+        file: path.display().to_string(),
+        source,
+    })
+}
+
+/// Parse JSON from a file, with line and column on error.
+pub fn read_json<T: serde::de::DeserializeOwned>(path: &Path) -> Result<T, LoadError> {
+    let bytes = read_bytes(path)?;
+    parse_json(&bytes, &path.display().to_string())
+}
+
+/// Parse JSON bytes, naming `file` on error.
+pub fn parse_json<T: serde::de::DeserializeOwned>(bytes: &[u8], file: &str) -> Result<T, LoadError> {
+    serde_json::from_slice(bytes).map_err(|e| LoadError::Json {
+        file: file.to_string(),
+        line: e.line(),
+        column: e.column(),
+        message: e.to_string(),
+    })
+}
+
+/// A 2-D array read from `.npy` (float32 or float64), as f64, with its shape.
+fn read_npy2(path: &Path) -> Result<(usize, usize, Vec<f64>), LoadError> {
+    let bytes = read_bytes(path)?;
+    let file = path.display().to_string();
+    let arr: Array2<f64> = match Array2::<f64>::read_npy(&bytes[..]) {
+        Ok(a) => a,
+        Err(ReadNpyError::WrongDescriptor(_)) => Array2::<f32>::read_npy(&bytes[..])
+            .map_err(|e| npy_err(&file, e, 2))?
+            .mapv(|x| x as f64),
+        Err(e) => return Err(npy_err(&file, e, 2)),
+    };
+    let (n, d) = arr.dim();
+    Ok((n, d, arr.as_standard_layout().iter().copied().collect()))
+}
+
+fn read_npy3(path: &Path) -> Result<(usize, usize, usize, Vec<f64>), LoadError> {
+    let bytes = read_bytes(path)?;
+    let file = path.display().to_string();
+    let arr: Array3<f64> = match Array3::<f64>::read_npy(&bytes[..]) {
+        Ok(a) => a,
+        Err(ReadNpyError::WrongDescriptor(_)) => Array3::<f32>::read_npy(&bytes[..])
+            .map_err(|e| npy_err(&file, e, 3))?
+            .mapv(|x| x as f64),
+        Err(e) => return Err(npy_err(&file, e, 3)),
+    };
+    let (n, a, b) = arr.dim();
+    Ok((n, a, b, arr.as_standard_layout().iter().copied().collect()))
+}
+
+fn npy_err(file: &str, e: ReadNpyError, ndim: usize) -> LoadError {
+    let message = match &e {
+        ReadNpyError::WrongNdim(want, got) => {
+            format!("expected a {ndim}-D array, found {got} dimensions (want {want:?})")
+        }
+        ReadNpyError::WrongDescriptor(_) => {
+            "element type must be float32 or float64 (little or big endian)".to_string()
+        }
+        ReadNpyError::MissingData => "file is truncated: fewer values than the header says".into(),
+        ReadNpyError::ParseHeader(h) => format!("bad header ({h}); is this a NumPy .npy file?"),
+        _ => e.to_string(),
+    };
+    LoadError::Npy {
+        file: file.to_string(),
+        message,
+    }
+}
+
+fn apply_scale(values: &mut [f64], scale: Scale) {
+    match scale {
+        Scale::Variance => {}
+        Scale::Std => values.iter_mut().for_each(|v| *v *= *v),
+        Scale::LogVariance => values.iter_mut().for_each(|v| *v = v.exp()),
+    }
+}
+
+/// Turn a [`GaussError`] into a load error naming the file and the phrase.
+fn gauss_err(file: &str, phrases: &PhraseTable, e: GaussError) -> LoadError {
+    let (row, msg) = match &e {
+        GaussError::NonFinite { row, .. }
+        | GaussError::NonPositiveVariance { row, .. }
+        | GaussError::NotPositiveDefinite { row, .. } => (Some(*row), e.to_string()),
+        GaussError::Shape(_) => (None, e.to_string()),
+    };
+    match row {
+        Some(r) if r < phrases.len() => LoadError::invalid(
+            file,
+            format!("phrase \"{}\" (row {r})", phrases.id(r as PhraseId)),
+            msg,
+        ),
+        _ => LoadError::invalid(file, "shape", msg),
+    }
+}
+
+impl Project {
+    /// Load a project from its folder (or from the path of its `project.json`).
+    pub fn load(path: &Path) -> Result<Self, LoadError> {
+        let (dir, manifest_path) = if path.is_dir() {
+            (path.to_path_buf(), path.join(MANIFEST_NAME))
+        } else {
+            let dir = path
+                .parent()
+                .map(Path::to_path_buf)
+                .filter(|p| !p.as_os_str().is_empty())
+                .unwrap_or_else(|| PathBuf::from("."));
+            (dir, path.to_path_buf())
+        };
+        let mfile = manifest_path.display().to_string();
+        let manifest: Manifest = read_json(&manifest_path)?;
+        if manifest.format != FORMAT_NAME {
+            return Err(LoadError::invalid(
+                &mfile,
+                "format",
+                format!("is \"{}\", expected \"{FORMAT_NAME}\"", manifest.format),
+            ));
+        }
+        if manifest.version != FORMAT_VERSION {
+            return Err(LoadError::invalid(
+                &mfile,
+                "version",
+                format!(
+                    "is {}, this build reads version {FORMAT_VERSION}",
+                    manifest.version
+                ),
+            ));
+        }
+        let floor = manifest.variance_floor.unwrap_or(DEFAULT_VARIANCE_FLOOR);
+        if !(floor.is_finite() && floor >= 0.0) {
+            return Err(LoadError::invalid(
+                &mfile,
+                "variance_floor",
+                format!("is {floor}; must be a finite number ≥ 0"),
+            ));
+        }
+
+        // phrases
+        let ppath = resolve_inside(&dir, &manifest.phrases, "phrases")?;
+        let pfile = ppath.display().to_string();
+        let records: Vec<PhraseRecord> = read_json(&ppath)?;
+        let phrases = PhraseTable::from_records(&records).map_err(|e| match &e {
+            super::phrase::PhraseError::DuplicateId { id, second, .. } => {
+                LoadError::invalid(&pfile, format!("row {second} id \"{id}\""), e.to_string())
+            }
+            super::phrase::PhraseError::Empty { row, field } => {
+                LoadError::invalid(&pfile, format!("row {row} {field}"), e.to_string())
+            }
+        })?;
+        if phrases.is_empty() {
+            return Err(LoadError::invalid(&pfile, "phrases", "the list is empty"));
+        }
+
+        let gaussians = load_embeddings(&dir, &manifest, &phrases, floor)?;
+        let users = match &manifest.users {
+            Some(u) => load_users(&resolve_inside(&dir, u, "users")?, gaussians.dim())?,
+            None => Vec::new(),
+        };
+        let tree = match &manifest.tree {
+            Some(t) => {
+                let tpath = resolve_inside(&dir, t, "tree")?;
+                if tpath.exists() {
+                    Some(load_tree(&tpath, &phrases)?)
+                } else {
+                    None
+                }
+            }
+            None => None,
+        };
+        if let Some(o) = &manifest.overrides {
+            resolve_inside(&dir, o, "overrides")?;
+        }
+        Ok(Project {
+            dir,
+            manifest,
+            phrases,
+            gaussians: Arc::new(gaussians),
+            users,
+            tree,
+        })
+    }
+
+    /// The file the tree is (or would be) stored in.
+    pub fn tree_path(&self) -> PathBuf {
+        self.dir
+            .join(self.manifest.tree.as_deref().unwrap_or("tree.json"))
+    }
+
+    /// The override layer file.
+    pub fn overrides_path(&self) -> PathBuf {
+        self.dir
+            .join(self.manifest.overrides.as_deref().unwrap_or("overrides.json"))
+    }
+}
+
+fn load_embeddings(
+    dir: &Path,
+    manifest: &Manifest,
+    phrases: &PhraseTable,
+    floor: f64,
+) -> Result<Gaussians, LoadError> {
+    let mfile = dir.join(MANIFEST_NAME).display().to_string();
+    let n = phrases.len();
+    let check_rows = |file: &str, rows: usize| {
+        if rows != n {
+            Err(LoadError::invalid(
+                file,
+                "rows",
+                format!("has {rows} rows but phrases.json lists {n} phrases"),
+            ))
+        } else {
+            Ok(())
+        }
+    };
+    let full_scale_check = |file: &str| {
+        if manifest.scale != Scale::Variance {
+            Err(LoadError::invalid(
+                file,
+                "scale",
+                "full covariance matrices must be given as variances (scale \"variance\")",
+            ))
+        } else {
+            Ok(())
+        }
+    };
+    match &manifest.embeddings {
+        EmbeddingsRef::Npy {
+            means,
+            variances,
+            covariances,
+        } => {
+            let mpath = resolve_inside(dir, means, "embeddings.means")?;
+            let mf = mpath.display().to_string();
+            let (rows, d, mvals) = read_npy2(&mpath)?;
+            check_rows(&mf, rows)?;
+            if d == 0 {
+                return Err(LoadError::invalid(&mf, "shape", "dimension is 0"));
+            }
+            match (variances, covariances) {
+                (Some(v), None) => {
+                    let vpath = resolve_inside(dir, v, "embeddings.variances")?;
+                    let vf = vpath.display().to_string();
+                    let (vr, vd, mut vvals) = read_npy2(&vpath)?;
+                    check_rows(&vf, vr)?;
+                    if vd != d {
+                        return Err(LoadError::invalid(
+                            &vf,
+                            "shape",
+                            format!("has dimension {vd} but {} has dimension {d}", mf),
+                        ));
+                    }
+                    check_finite_named(&mf, phrases, &mvals, d, "mean")?;
+                    check_finite_named(&vf, phrases, &vvals, d, "variance")?;
+                    apply_scale(&mut vvals, manifest.scale);
+                    Gaussians::from_diagonal(n, d, mvals, vvals, floor)
+                        .map_err(|e| gauss_err(&vf, phrases, e))
+                }
+                (None, Some(c)) => {
+                    full_scale_check(&mfile)?;
+                    let cpath = resolve_inside(dir, c, "embeddings.covariances")?;
+                    let cf = cpath.display().to_string();
+                    let (cr, a, b, cvals) = read_npy3(&cpath)?;
+                    check_rows(&cf, cr)?;
+                    if a != d || b != d {
+                        return Err(LoadError::invalid(
+                            &cf,
+                            "shape",
+                            format!("matrices are {a}×{b} but {mf} has dimension {d}"),
+                        ));
+                    }
+                    check_finite_named(&mf, phrases, &mvals, d, "mean")?;
+                    Gaussians::from_full(n, d, mvals, cvals, floor)
+                        .map_err(|e| gauss_err(&cf, phrases, e))
+                }
+                _ => Err(LoadError::invalid(
+                    &mfile,
+                    "embeddings",
+                    "give exactly one of \"variances\" (diagonal) or \"covariances\" (full)",
+                )),
+            }
+        }
+        EmbeddingsRef::Json(f) => {
+            let path = resolve_inside(dir, f, "embeddings")?;
+            let file = path.display().to_string();
+            let e: EmbeddingsJson = read_json(&path)?;
+            check_rows(&file, e.means.len())?;
+            let d = e.means.first().map_or(0, Vec::len);
+            if d == 0 {
+                return Err(LoadError::invalid(&file, "means", "dimension is 0"));
+            }
+            let flat = |rows: &[Vec<f64>], field: &str| -> Result<Vec<f64>, LoadError> {
+                let mut out = Vec::with_capacity(rows.len() * d);
+                for (i, r) in rows.iter().enumerate() {
+                    if r.len() != d {
+                        return Err(LoadError::invalid(
+                            &file,
+                            format!("{field}[{i}] (phrase \"{}\")", phrases.id(i as PhraseId)),
+                            format!("has {} values, expected {d}", r.len()),
+                        ));
+                    }
+                    out.extend_from_slice(r);
+                }
+                Ok(out)
+            };
+            let means = flat(&e.means, "means")?;
+            match (e.covariance, &e.variances, &e.covariances) {
+                (CovarianceKind::Diagonal, Some(v), None) => {
+                    check_rows(&file, v.len())?;
+                    let mut vals = flat(v, "variances")?;
+                    apply_scale(&mut vals, manifest.scale);
+                    Gaussians::from_diagonal(n, d, means, vals, floor)
+                        .map_err(|e| gauss_err(&file, phrases, e))
+                }
+                (CovarianceKind::Full, None, Some(c)) => {
+                    full_scale_check(&file)?;
+                    check_rows(&file, c.len())?;
+                    let mut vals = Vec::with_capacity(n * d * d);
+                    for (i, m) in c.iter().enumerate() {
+                        if m.len() != d || m.iter().any(|r| r.len() != d) {
+                            return Err(LoadError::invalid(
+                                &file,
+                                format!("covariances[{i}] (phrase \"{}\")", phrases.id(i as PhraseId)),
+                                format!("is not a {d}×{d} matrix"),
+                            ));
+                        }
+                        for r in m {
+                            vals.extend_from_slice(r);
+                        }
+                    }
+                    Gaussians::from_full(n, d, means, vals, floor)
+                        .map_err(|e| gauss_err(&file, phrases, e))
+                }
+                (CovarianceKind::Diagonal, _, _) => Err(LoadError::invalid(
+                    &file,
+                    "variances",
+                    "covariance \"diagonal\" needs \"variances\" and no \"covariances\"",
+                )),
+                (CovarianceKind::Full, _, _) => Err(LoadError::invalid(
+                    &file,
+                    "covariances",
+                    "covariance \"full\" needs \"covariances\" and no \"variances\"",
+                )),
+            }
+        }
+    }
+}
+
+fn check_finite_named(
+    file: &str,
+    phrases: &PhraseTable,
+    vals: &[f64],
+    d: usize,
+    what: &str,
+) -> Result<(), LoadError> {
+    if let Some((i, v)) = vals.iter().enumerate().find(|(_, v)| !v.is_finite()) {
+        let row = i / d;
+        return Err(LoadError::invalid(
+            file,
+            format!("phrase \"{}\" (row {row})", phrases.id(row as PhraseId)),
+            format!("{what}[{}] is {v}, not a finite number", i % d),
+        ));
+    }
+    Ok(())
+}
+
+fn load_users(path: &Path, d: usize) -> Result<Vec<UserProfile>, LoadError> {
+    let file = path.display().to_string();
+    let recs: Vec<UserRecord> = read_json(path)?;
+    let mut seen = BTreeMap::new();
+    let mut out = Vec::with_capacity(recs.len());
+    for (i, r) in recs.into_iter().enumerate() {
+        let field = format!("user \"{}\" (row {i})", r.id);
+        if let Some(first) = seen.insert(r.id.clone(), i) {
+            return Err(LoadError::invalid(&file, field, format!("duplicate id (first at row {first})")));
+        }
+        if r.mean.len() != d || r.variance.len() != d {
+            return Err(LoadError::invalid(
+                &file,
+                field,
+                format!(
+                    "mean has {} and variance {} values; the embeddings have dimension {d}",
+                    r.mean.len(),
+                    r.variance.len()
+                ),
+            ));
+        }
+        let g = OwnedGaussian::diagonal(&r.mean, &r.variance)
+            .map_err(|e| LoadError::invalid(&file, field.clone(), e.to_string().replacen("row 0: ", "", 1)))?;
+        out.push(UserProfile {
+            id: r.id,
+            label: r.label,
+            gaussian: g,
+        });
+    }
+    Ok(out)
+}
+
+/// Load a tree file: JSON (`{"root", "parent"}`) or a CSV edge list `child,parent` with a
+/// header (the root is the row with an empty parent, or else the one parent that is never a
+/// child).
+pub fn load_tree(path: &Path, phrases: &PhraseTable) -> Result<Tree, LoadError> {
+    let file = path.display().to_string();
+    let is_csv = path
+        .extension()
+        .is_some_and(|e| e.eq_ignore_ascii_case("csv"));
+    let tf: TreeFile = if is_csv {
+        parse_tree_csv(&read_bytes(path)?, &file)?
+    } else {
+        read_json(path)?
+    };
+    Tree::from_id_map(phrases, &tf.root, &tf.parent)
+        .map_err(|e| LoadError::invalid(&file, "tree", e.to_string()))
+}
+
+fn parse_tree_csv(bytes: &[u8], file: &str) -> Result<TreeFile, LoadError> {
+    let mut rdr = csv::ReaderBuilder::new().has_headers(true).from_reader(bytes);
+    let headers = rdr
+        .headers()
+        .map_err(|e| LoadError::invalid(file, "header", e.to_string()))?
+        .clone();
+    let col = |name: &str| headers.iter().position(|h| h.trim() == name);
+    let (ci, pi) = match (col("child"), col("parent")) {
+        (Some(c), Some(p)) => (c, p),
+        _ => {
+            return Err(LoadError::invalid(
+                file,
+                "header",
+                "expected a header with columns \"child\" and \"parent\"",
+            ));
+        }
+    };
+    let mut parent = BTreeMap::new();
+    let mut roots = Vec::new();
+    for (i, rec) in rdr.records().enumerate() {
+        let line = i + 2;
+        let rec = rec.map_err(|e| LoadError::invalid(file, format!("line {line}"), e.to_string()))?;
+        let c = rec.get(ci).unwrap_or("").trim().to_string();
+        let p = rec.get(pi).unwrap_or("").trim().to_string();
+        if c.is_empty() {
+            return Err(LoadError::invalid(file, format!("line {line}"), "child is empty"));
+        }
+        if p.is_empty() {
+            roots.push(c);
+        } else if let Some(prev) = parent.insert(c.clone(), p.clone())
+            && prev != p
+        {
+            return Err(LoadError::invalid(
+                file,
+                format!("line {line}"),
+                format!("\"{c}\" is given two parents: \"{prev}\" and \"{p}\""),
+            ));
+        }
+    }
+    if roots.is_empty() {
+        let mut cand: Vec<&String> = parent
+            .values()
+            .filter(|p| !parent.contains_key(*p))
+            .collect();
+        cand.sort();
+        cand.dedup();
+        roots = cand.into_iter().cloned().collect();
+    }
+    match roots.len() {
+        0 => Err(LoadError::invalid(file, "root", "no root: every node has a parent (a cycle?)")),
+        1 => Ok(TreeFile {
+            root: roots.remove(0),
+            parent,
+        }),
+        _ => Err(LoadError::invalid(
+            file,
+            "root",
+            format!("several roots: {}", roots.join(", ")),
+        )),
+    }
+}
+
+/// Write a diagonal project (manifest, phrases, `.npy` embeddings, users, tree) to `dir`.
+/// Used by the demo generator and by test helpers.
+pub struct ProjectWriter<'a> {
+    /// Project name.
+    pub name: &'a str,
+    /// Phrase table.
+    pub phrases: &'a PhraseTable,
+    /// Dimension.
+    pub dim: usize,
+    /// Row-major means.
+    pub means: &'a [f32],
+    /// Row-major variances.
+    pub variances: &'a [f32],
+    /// Shopper profiles.
+    pub users: &'a [UserRecord],
+    /// Tree, if any.
+    pub tree: Option<&'a TreeFile>,
+}
+
+impl ProjectWriter<'_> {
+    /// Write every file; existing files are replaced atomically.
+    pub fn write(&self, dir: &Path) -> std::io::Result<()> {
+        fs::create_dir_all(dir)?;
+        let n = self.phrases.len();
+        let manifest = Manifest {
+            format: FORMAT_NAME.into(),
+            version: FORMAT_VERSION,
+            name: self.name.into(),
+            phrases: "phrases.json".into(),
+            embeddings: EmbeddingsRef::Npy {
+                means: "means.npy".into(),
+                variances: Some("variances.npy".into()),
+                covariances: None,
+            },
+            scale: Scale::Variance,
+            variance_floor: None,
+            users: (!self.users.is_empty()).then(|| "users.json".into()),
+            tree: self.tree.map(|_| "tree.json".into()),
+            overrides: Some("overrides.json".into()),
+            audit: None,
+        };
+        fsutil::atomic_write(&dir.join(MANIFEST_NAME), &fsutil::to_json_pretty(&manifest), false)?;
+        fsutil::atomic_write(
+            &dir.join("phrases.json"),
+            &fsutil::to_json_pretty(&self.phrases.records()),
+            false,
+        )?;
+        for (name, data) in [("means.npy", self.means), ("variances.npy", self.variances)] {
+            let arr = Array2::from_shape_vec((n, self.dim), data.to_vec())
+                .map_err(std::io::Error::other)?;
+            let mut buf = Vec::new();
+            arr.write_npy(&mut buf).map_err(std::io::Error::other)?;
+            fsutil::atomic_write(&dir.join(name), &buf, false)?;
+        }
+        if !self.users.is_empty() {
+            fsutil::atomic_write(&dir.join("users.json"), &fsutil::to_json_pretty(&self.users), false)?;
+        }
+        if let Some(t) = self.tree {
+            fsutil::atomic_write(&dir.join("tree.json"), &fsutil::to_json_pretty(t), false)?;
+        }
+        Ok(())
+    }
+}
