@@ -1,6 +1,8 @@
 //! Pure data and maths: phrases, Gaussians, trees, projects and everything computed from
 //! them. Nothing in here knows about egui.
 
+pub mod edit;
+pub mod effective;
 pub mod fsutil;
 pub mod gaussian;
 pub mod info;

@@ -1,0 +1,91 @@
+//! Headless subcommands over the same model the GUI uses.
+//!
+//! Each subcommand lives in its own file and is a thin function over `crate::model`.
+//! Exit codes: 0 ok, 1 a check failed (verify, audit `--fail-on`), 2 bad input.
+
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+use clap::{Parser, Subcommand};
+
+pub mod info;
+pub mod progress;
+
+/// Exit code for "a check failed".
+pub const EXIT_CHECK_FAILED: u8 = 1;
+/// Exit code for bad input (unreadable or invalid files, unknown ids, bad arguments).
+pub const EXIT_BAD_INPUT: u8 = 2;
+
+/// The command line.
+#[derive(Debug, Parser)]
+#[command(
+    name = "treewright",
+    version,
+    about = "Curate and audit concept hierarchies built from Gaussian phrase embeddings.",
+    long_about = "Without arguments, opens the workbench on the bundled demo project. \
+                  With a project folder, opens that project. With a subcommand, runs headless.",
+    args_conflicts_with_subcommands = true
+)]
+pub struct Cli {
+    /// Project folder (or its project.json) to open in the workbench.
+    pub project: Option<PathBuf>,
+    /// Headless subcommand.
+    #[command(subcommand)]
+    pub command: Option<Command>,
+}
+
+/// Headless subcommands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Summarise a project: phrases, dimension, generality, tree shape, unplaced phrases.
+    Info(info::InfoArgs),
+}
+
+/// A failed subcommand: the message to print and the exit code.
+#[derive(Debug)]
+pub struct CliError {
+    /// Exit code.
+    pub code: u8,
+    /// Message for standard error.
+    pub message: String,
+}
+
+impl CliError {
+    /// Bad input (exit 2).
+    pub fn bad_input(message: impl std::fmt::Display) -> Self {
+        CliError {
+            code: EXIT_BAD_INPUT,
+            message: message.to_string(),
+        }
+    }
+
+    /// A check failed (exit 1).
+    pub fn check_failed(message: impl std::fmt::Display) -> Self {
+        CliError {
+            code: EXIT_CHECK_FAILED,
+            message: message.to_string(),
+        }
+    }
+}
+
+impl From<crate::model::LoadError> for CliError {
+    fn from(e: crate::model::LoadError) -> Self {
+        CliError::bad_input(e)
+    }
+}
+
+/// Run a subcommand, printing errors to standard error.
+pub fn run(command: Command) -> ExitCode {
+    let result = match command {
+        Command::Info(a) => info::run(&a),
+    };
+    match result {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(e) => {
+            if !e.message.is_empty() {
+                eprintln!("treewright: {}", e.message);
+            }
+            ExitCode::from(e.code)
+        }
+    }
+}
