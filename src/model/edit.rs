@@ -50,11 +50,13 @@ pub enum Edit {
         /// New parent id.
         parent: String,
     },
-    /// Keep `node` under its current effective parent even when a regenerated base tree
-    /// places it elsewhere.
+    /// Keep `node` under `parent` (its effective parent when the pin was made) even when a
+    /// regenerated base tree places it elsewhere.
     Pin {
         /// Node id.
         node: String,
+        /// The parent it is pinned to.
+        parent: String,
     },
     /// Release a pin.
     Unpin {
@@ -128,9 +130,8 @@ impl Edit {
     /// The phrase ids this edit refers to.
     pub fn phrases(&self) -> Vec<&str> {
         match self {
-            Edit::Reparent { node, parent } => vec![node, parent],
-            Edit::Pin { node }
-            | Edit::Unpin { node }
+            Edit::Reparent { node, parent } | Edit::Pin { node, parent } => vec![node, parent],
+            Edit::Unpin { node }
             | Edit::Rename { node, .. }
             | Edit::Exclude { node }
             | Edit::Include { node }
