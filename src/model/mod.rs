@@ -6,6 +6,7 @@ pub mod effective;
 pub mod fsutil;
 pub mod gaussian;
 pub mod info;
+pub mod overrides;
 pub mod phrase;
 pub mod project;
 pub mod projection;
