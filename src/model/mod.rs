@@ -1,6 +1,7 @@
 //! Pure data and maths: phrases, Gaussians, trees, projects and everything computed from
 //! them. Nothing in here knows about egui.
 
+pub mod diff;
 pub mod edit;
 pub mod effective;
 pub mod fsutil;
@@ -10,6 +11,7 @@ pub mod overrides;
 pub mod phrase;
 pub mod project;
 pub mod projection;
+pub mod signoff;
 pub mod tree;
 
 pub use gaussian::{CovarianceKind, GaussianView, Gaussians, PhraseId, Similarity};
