@@ -12,6 +12,7 @@ pub mod overrides;
 pub mod phrase;
 pub mod project;
 pub mod projection;
+pub mod sample;
 pub mod signoff;
 pub mod tree;
 
