@@ -6,6 +6,8 @@ pub mod effective;
 pub mod fsutil;
 pub mod gaussian;
 pub mod info;
+pub mod kmeans;
+pub mod kneedle;
 pub mod phrase;
 pub mod project;
 pub mod projection;
