@@ -1,6 +1,7 @@
 //! Pure data and maths: phrases, Gaussians, trees, projects and everything computed from
 //! them. Nothing in here knows about egui.
 
+pub mod builder;
 pub mod edit;
 pub mod effective;
 pub mod fsutil;
