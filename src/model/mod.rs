@@ -1,6 +1,7 @@
 //! Pure data and maths: phrases, Gaussians, trees, projects and everything computed from
 //! them. Nothing in here knows about egui.
 
+pub mod builder;
 pub mod diff;
 pub mod edit;
 pub mod effective;
@@ -8,6 +9,8 @@ pub mod export;
 pub mod fsutil;
 pub mod gaussian;
 pub mod info;
+pub mod kmeans;
+pub mod kneedle;
 pub mod overrides;
 pub mod phrase;
 pub mod project;
