@@ -1,6 +1,7 @@
 //! Pure data and maths: phrases, Gaussians, trees, projects and everything computed from
 //! them. Nothing in here knows about egui.
 
+pub mod audit;
 pub mod edit;
 pub mod effective;
 pub mod fsutil;
@@ -9,6 +10,7 @@ pub mod info;
 pub mod phrase;
 pub mod project;
 pub mod projection;
+pub mod stats;
 pub mod tree;
 
 pub use gaussian::{CovarianceKind, GaussianView, Gaussians, PhraseId, Similarity};
