@@ -56,8 +56,9 @@ use serde::{Deserialize, Serialize};
 use super::edit::{Edit, ReviewStatus};
 use super::effective::{ApplyProblem, EffectiveTree};
 use super::gaussian::{Gaussians, PhraseId, bhattacharyya_coefficient, kl};
+use super::kernels;
 use super::phrase::PhraseTable;
-use super::stats::{Prepared, Stats, StatsEngine};
+use super::stats::{Prepared, Shape as Order, Stats, StatsEngine};
 use super::tree::NO_PARENT;
 
 /// How serious a finding is. Ordered: `Info < Warning < Error`.
@@ -163,7 +164,7 @@ pub struct AuditConfig {
     pub max_fanout: usize,
     /// `single-child-chain` from this many single-child nodes in a row (1).
     pub single_child_chain_min: usize,
-    /// Beam width of the pruned candidate search (4).
+    /// Beam width of the pruned candidate search (3).
     pub search_beam: usize,
     /// Search exhaustively when the table has at most this many phrases (500).
     pub exhaustive_limit: usize,
@@ -188,7 +189,7 @@ impl Default for AuditConfig {
             coverage_relative: 0.5,
             max_fanout: 15,
             single_child_chain_min: 1,
-            search_beam: 4,
+            search_beam: 3,
             exhaustive_limit: 500,
             severity: BTreeMap::new(),
         }
@@ -427,50 +428,6 @@ impl CandidateIndex {
     }
 }
 
-/// Pre-order intervals of the current tree, for O(1) descendant tests.
-#[derive(Debug, Clone)]
-struct Order {
-    tin: Vec<u32>,
-    size: Vec<u32>,
-}
-
-impl Order {
-    fn of(eff: &EffectiveTree) -> Self {
-        let n = eff.tree.table_len();
-        let mut tin = vec![u32::MAX; n];
-        for (i, p) in eff.tree.preorder().into_iter().enumerate() {
-            tin[p as usize] = i as u32;
-        }
-        Order {
-            tin,
-            size: eff.tree.subtree_sizes(),
-        }
-    }
-
-    /// True when `x` is in the subtree of `c` (c itself included).
-    fn in_subtree(&self, c: PhraseId, x: PhraseId) -> bool {
-        let (tc, tx) = (self.tin[c as usize], self.tin[x as usize]);
-        tc != u32::MAX && tx != u32::MAX && tx >= tc && tx < tc + self.size[c as usize]
-    }
-}
-
-/// Sum of eight interleaved partial sums (lets the compiler vectorise the reduction).
-#[inline]
-fn sum8(len: usize, mut f: impl FnMut(usize) -> f32) -> f32 {
-    let mut acc = [0.0f32; 8];
-    let chunks = len / 8;
-    for c in 0..chunks {
-        for (j, a) in acc.iter_mut().enumerate() {
-            *a += f(c * 8 + j);
-        }
-    }
-    let mut s: f32 = acc.iter().sum();
-    for k in chunks * 8..len {
-        s += f(k);
-    }
-    s
-}
-
 /// Everything the candidate search reads.
 struct Searcher<'a> {
     g: &'a Gaussians,
@@ -490,10 +447,7 @@ impl Searcher<'_> {
                 let (mc, mx) = (self.g.mean(c as usize), self.g.mean(x as usize));
                 let vc = self.g.variances(c as usize);
                 let wx = &prep.ivar[x as usize * d..(x as usize + 1) * d];
-                let s = sum8(d, |k| {
-                    let dl = mx[k] - mc[k];
-                    (vc[k] + dl * dl) * wx[k]
-                });
+                let s = kernels::kl_sum(mc, vc, mx, wx);
                 0.5 * (s as f64 - d as f64 + self.g.log_det(x as usize)
                     - self.g.log_det(c as usize))
             }
@@ -505,14 +459,9 @@ impl Searcher<'_> {
     fn dup_bc(&self, c: PhraseId, x: PhraseId) -> Option<f64> {
         let dmax = -self.cfg.duplicate_bc_min.ln();
         if self.prep.is_some() {
-            let d = self.g.dim();
             let (mc, mx) = (self.g.mean(c as usize), self.g.mean(x as usize));
             let (vc, vx) = (self.g.variances(c as usize), self.g.variances(x as usize));
-            let bound = 0.25
-                * sum8(d, |k| {
-                    let dl = mx[k] - mc[k];
-                    dl * dl / (vc[k] + vx[k])
-                }) as f64;
+            let bound = 0.25 * kernels::mean_term(mc, vc, mx, vx) as f64;
             if bound > dmax * (1.0 + 1e-4) {
                 return None;
             }
@@ -577,7 +526,7 @@ impl Searcher<'_> {
                     }
                 }
             }
-            next.sort_by(|a, b| a.1.total_cmp(&b.1).then(a.0.cmp(&b.0)));
+            next.sort_unstable_by(|a, b| a.1.total_cmp(&b.1).then(a.0.cmp(&b.0)));
             next.dedup_by_key(|e| e.0);
             beam.clear();
             beam.extend(next.iter().take(self.cfg.search_beam).map(|&(x, _)| x));
@@ -753,7 +702,7 @@ impl Auditor {
             .filter(|&p| stat_dirty[p as usize])
             .collect();
         let mut stats = std::mem::replace(&mut self.report.stats, empty_stats());
-        self.engine.refresh(&mut stats, g, eff, &stat_list);
+        self.engine.refresh(&mut stats, g, eff, &stat_list, &order);
         let searcher = Searcher {
             g,
             prep: self.engine.prep.as_ref(),
@@ -843,7 +792,7 @@ fn assemble(
     let id = |p: PhraseId| phrases.id(p).to_string();
     let label = |p: PhraseId| eff.label(p);
     let approved = |p: PhraseId| eff.review[p as usize] == ReviewStatus::Approved;
-    let mut out: Vec<Finding> = Vec::new();
+    let mut out: Vec<Finding> = Vec::with_capacity(1024);
     let reparent = |node: PhraseId, to: PhraseId| Suggestion {
         action: "reparent".into(),
         target: Some(id(to)),

@@ -7,6 +7,7 @@ pub mod effective;
 pub mod fsutil;
 pub mod gaussian;
 pub mod info;
+mod kernels;
 pub mod phrase;
 pub mod project;
 pub mod projection;

@@ -22,6 +22,7 @@ use super::gaussian::{
     CovView, CovarianceKind, GaussianView, Gaussians, PhraseId, Sampled, bhattacharyya_coefficient,
     chi2_quantile, kl, mahalanobis2,
 };
+use super::kernels;
 
 /// Statistics of one phrase. Phrases that are not nodes of the effective tree (unplaced,
 /// merged away, excluded) have `depth == u32::MAX`, zero fan-out and subtree, and no
@@ -155,10 +156,6 @@ impl SampleBank {
         SampleBank { samples, z }
     }
 
-    fn row(&self, k: usize) -> &[f32] {
-        &self.z[k * self.samples..(k + 1) * self.samples]
-    }
-
     fn point(&self, s: usize, dim: usize) -> Vec<f64> {
         (0..dim)
             .map(|k| self.z[k * self.samples + s] as f64)
@@ -221,16 +218,7 @@ impl StatsEngine {
                 for &q in qs {
                     let mq = g.mean(q as usize);
                     let wq = &prep.ivar[q as usize * d..(q as usize + 1) * d];
-                    acc.fill(0.0);
-                    for k in 0..d {
-                        let a = mp[k] - mq[k];
-                        let b = sp[k];
-                        let w = wq[k];
-                        for (m, &z) in acc.iter_mut().zip(self.bank.row(k)) {
-                            let t = a + b * z;
-                            *m += t * t * w;
-                        }
-                    }
+                    kernels::mahalanobis_rows(&mut acc, &self.bank.z, mp, sp, mq, wq);
                     for (hit, &m) in inside.iter_mut().zip(&acc) {
                         *hit |= m <= r2;
                     }
@@ -317,7 +305,7 @@ impl StatsEngine {
             alpha: self.alpha,
             samples: self.bank.samples,
         };
-        refresh_shape(&mut stats, eff);
+        refresh_shape(&mut stats, eff, &Shape::of(eff));
         stats
     }
 
@@ -329,6 +317,7 @@ impl StatsEngine {
         g: &Gaussians,
         eff: &EffectiveTree,
         nodes: &[PhraseId],
+        shape: &Shape,
     ) {
         let fresh: Vec<(PhraseId, NodeStats)> = nodes
             .par_iter()
@@ -337,7 +326,7 @@ impl StatsEngine {
         for (p, s) in fresh {
             stats.nodes[p as usize] = s;
         }
-        refresh_shape(stats, eff);
+        refresh_shape(stats, eff, shape);
     }
 }
 
@@ -354,12 +343,48 @@ fn point_of(p: &GaussianView, z: &[f64]) -> Vec<f64> {
     }
 }
 
+/// Depth, subtree size and pre-order position of every phrase, from one traversal.
+#[derive(Debug, Clone)]
+pub(crate) struct Shape {
+    depth: Vec<u32>,
+    size: Vec<u32>,
+    tin: Vec<u32>,
+}
+
+impl Shape {
+    /// One pre-order walk of the tree (unplaced phrases: depth and position `u32::MAX`).
+    pub(crate) fn of(eff: &EffectiveTree) -> Self {
+        let n = eff.tree.table_len();
+        let order = eff.tree.preorder();
+        let mut depth = vec![u32::MAX; n];
+        let mut size = vec![0u32; n];
+        let mut tin = vec![u32::MAX; n];
+        for (i, &p) in order.iter().enumerate() {
+            tin[p as usize] = i as u32;
+            depth[p as usize] = eff.tree.parent(p).map_or(0, |q| depth[q as usize] + 1);
+        }
+        for &p in order.iter().rev() {
+            size[p as usize] += 1;
+            if let Some(q) = eff.tree.parent(p) {
+                size[q as usize] += size[p as usize];
+            }
+        }
+        Shape { depth, size, tin }
+    }
+
+    /// True when `x` is in the subtree of `c` (c itself included).
+    pub(crate) fn in_subtree(&self, c: PhraseId, x: PhraseId) -> bool {
+        let (tc, tx) = (self.tin[c as usize], self.tin[x as usize]);
+        tc != u32::MAX && tx != u32::MAX && tx >= tc && tx < tc + self.size[c as usize]
+    }
+}
+
 /// Depth, fan-out, subtree size and the histograms, from the tree (O(n)).
-fn refresh_shape(stats: &mut Stats, eff: &EffectiveTree) {
-    let depths = eff.tree.depths();
-    let sizes = eff.tree.subtree_sizes();
-    let mut gen_values = Vec::new();
-    let mut cont_values = Vec::new();
+fn refresh_shape(stats: &mut Stats, eff: &EffectiveTree, shape: &Shape) {
+    let depths = &shape.depth;
+    let sizes = &shape.size;
+    let mut gen_values = Vec::with_capacity(stats.nodes.len());
+    let mut cont_values = Vec::with_capacity(stats.nodes.len());
     for (i, s) in stats.nodes.iter_mut().enumerate() {
         let p = i as PhraseId;
         if eff.tree.is_placed(p) {
