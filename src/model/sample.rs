@@ -728,7 +728,7 @@ fn demo_child(
 /// Everything the demo consists of, in memory.
 struct Demo {
     rows: Vec<DemoRow>,
-    /// Placed parent label per row (None for the root and the unplaced tags).
+    /// Placed parent id per row (None for the root and the unplaced tags).
     placed: Vec<Option<String>>,
     users: Vec<UserRecord>,
 }
@@ -797,11 +797,11 @@ fn build_demo() -> Demo {
 
     let cat_labels: Vec<&str> = CATALOGUE.iter().map(|c| c.0).collect();
     let cats = add_children(&mut src, 0, &cat_labels, &mut rows);
-    placed.extend(cats.iter().map(|_| Some(DEMO_ROOT.to_string())));
+    placed.extend(cats.iter().map(|_| Some(id_from_label(DEMO_ROOT))));
     for (ci, &(cat, subs)) in CATALOGUE.iter().enumerate() {
         let sub_labels: Vec<&str> = subs.iter().map(|s| s.0).collect();
         let sub_rows = add_children(&mut src, cats[ci], &sub_labels, &mut rows);
-        placed.extend(sub_rows.iter().map(|_| Some(cat.to_string())));
+        placed.extend(sub_rows.iter().map(|_| Some(id_from_label(cat))));
         for (si, &(sub, leaves)) in subs.iter().enumerate() {
             let leaf_rows = add_children(&mut src, sub_rows[si], leaves, &mut rows);
             for &r in &leaf_rows {
@@ -809,9 +809,9 @@ fn build_demo() -> Demo {
                 placed.push(if unplaced.contains(&id.as_str()) {
                     None
                 } else if let Some(p) = moved.get(id.as_str()) {
-                    Some(p.replace('-', " "))
+                    Some((*p).to_string())
                 } else {
-                    Some(sub.to_string())
+                    Some(id_from_label(sub))
                 });
             }
         }
@@ -895,7 +895,7 @@ fn demo_tables(demo: &Demo) -> std::io::Result<(PhraseTable, Vec<f32>, Vec<f32>,
     let mut parent = BTreeMap::new();
     for (r, p) in demo.rows.iter().zip(&demo.placed) {
         if let Some(p) = p {
-            parent.insert(id_from_label(&r.label), id_from_label(p));
+            parent.insert(id_from_label(&r.label), p.clone());
         }
     }
     let tree = TreeFile {
