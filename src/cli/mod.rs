@@ -10,6 +10,7 @@ use clap::{Parser, Subcommand};
 
 pub mod info;
 pub mod progress;
+pub mod sample;
 
 /// Exit code for "a check failed".
 pub const EXIT_CHECK_FAILED: u8 = 1;
@@ -39,6 +40,8 @@ pub struct Cli {
 pub enum Command {
     /// Summarise a project: phrases, dimension, generality, tree shape, unplaced phrases.
     Info(info::InfoArgs),
+    /// Write the Fernhollow demo project or a synthetic project.
+    Sample(sample::SampleArgs),
 }
 
 /// A failed subcommand: the message to print and the exit code.
@@ -78,6 +81,7 @@ impl From<crate::model::LoadError> for CliError {
 pub fn run(command: Command) -> ExitCode {
     let result = match command {
         Command::Info(a) => info::run(&a),
+        Command::Sample(a) => sample::run(&a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

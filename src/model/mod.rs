@@ -11,6 +11,7 @@ mod kernels;
 pub mod phrase;
 pub mod project;
 pub mod projection;
+pub mod sample;
 pub mod stats;
 pub mod tree;
 
