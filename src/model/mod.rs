@@ -2,16 +2,20 @@
 //! them. Nothing in here knows about egui.
 
 pub mod audit;
+pub mod diff;
 pub mod edit;
 pub mod effective;
+pub mod export;
 pub mod fsutil;
 pub mod gaussian;
 pub mod info;
 mod kernels;
+pub mod overrides;
 pub mod phrase;
 pub mod project;
 pub mod projection;
 pub mod sample;
+pub mod signoff;
 pub mod stats;
 pub mod tree;
 
