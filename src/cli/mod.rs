@@ -9,6 +9,7 @@ use std::process::ExitCode;
 use clap::{Parser, Subcommand};
 
 pub mod apply;
+pub mod audit;
 pub mod diff;
 pub mod edit;
 pub mod export;
@@ -47,6 +48,8 @@ pub struct Cli {
 pub enum Command {
     /// Summarise a project: phrases, dimension, generality, tree shape, unplaced phrases.
     Info(info::InfoArgs),
+    /// Audit the effective tree: ranked findings with numbers and suggested fixes.
+    Audit(audit::AuditArgs),
     /// Write the Fernhollow demo project or a synthetic project.
     Sample(sample::SampleArgs),
     /// Record an edit in the override layer (refused edits exit 2 and write nothing).
@@ -102,6 +105,7 @@ impl From<crate::model::LoadError> for CliError {
 pub fn run(command: Command) -> ExitCode {
     let result = match command {
         Command::Info(a) => info::run(&a),
+        Command::Audit(a) => audit::run(&a),
         Command::Sample(a) => sample::run(&a),
         Command::Edit(a) => edit::run(a),
         Command::Undo(a) => undo::run(&a),

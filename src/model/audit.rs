@@ -144,21 +144,21 @@ pub struct AuditConfig {
     pub inversion_margin: f64,
     /// `weak-inclusion` below this containment (0.3).
     pub containment_min: f64,
-    /// `better-parent`: least KL improvement in nats (1.0).
+    /// `better-parent`: least KL improvement in nats (1.5).
     pub better_parent_margin: f64,
     /// `better-parent`: least KL improvement as a share of KL(child ‖ parent) (0.1).
     pub better_parent_ratio: f64,
-    /// `better-parent`: a candidate must be broader than the child by this many nats of
-    /// ln det Σ per dimension (0.1, i.e. about 10 % more variance per dimension).
+    /// `better-parent`: a candidate must be broader than the child by more than this many
+    /// nats of ln det Σ (1.5), so that near-equal siblings are not proposed as parents.
     pub better_parent_broader: f64,
-    /// `near-duplicate`: least Bhattacharyya coefficient (0.8).
+    /// `near-duplicate`: least Bhattacharyya coefficient (0.9).
     pub duplicate_bc_min: f64,
     /// `near-duplicate`: most abs(Δ ln det Σ) in nats (2.0).
     pub duplicate_generality_margin: f64,
-    /// `coverage-gap`: absolute ceiling of the coverage threshold (0.5).
+    /// `coverage-gap`: absolute ceiling of the coverage threshold (0.6).
     pub coverage_min: f64,
     /// `coverage-gap`: threshold as a share of the median coverage of nodes with ≥ 2
-    /// children (0.5).
+    /// children (0.7).
     pub coverage_relative: f64,
     /// `wide-fanout` above this many children (15).
     pub max_fanout: usize,
@@ -180,13 +180,13 @@ impl Default for AuditConfig {
             seed: 0x7472_6565_7772_6974,
             inversion_margin: 0.5,
             containment_min: 0.3,
-            better_parent_margin: 1.0,
+            better_parent_margin: 1.5,
             better_parent_ratio: 0.1,
-            better_parent_broader: 0.1,
-            duplicate_bc_min: 0.8,
+            better_parent_broader: 1.5,
+            duplicate_bc_min: 0.9,
             duplicate_generality_margin: 2.0,
-            coverage_min: 0.5,
-            coverage_relative: 0.5,
+            coverage_min: 0.6,
+            coverage_relative: 0.7,
             max_fanout: 15,
             single_child_chain_min: 1,
             search_beam: 3,
@@ -474,7 +474,7 @@ impl Searcher<'_> {
         let ldc = self.g.log_det(c as usize);
         let margin = self.cfg.duplicate_generality_margin;
         let parent = self.eff.tree.parent(c).unwrap_or(NO_PARENT);
-        let min_ld = ldc + self.cfg.better_parent_broader * self.g.dim() as f64;
+        let min_ld = ldc + self.cfg.better_parent_broader;
         let mut out = Placement::default();
         let consider = |x: PhraseId, klx: Option<f64>, out: &mut Placement| {
             if x == c || !self.eff.tree.is_placed(x) {
