@@ -284,7 +284,7 @@ fn synthetic_project_loads_with_its_true_tree() {
     // the variance stays well below the 95 % radius (chi-square table)
     let r2 = chi2_quantile(16, 0.95);
     // NIST/SEMATECH e-Handbook of Statistical Methods, table of chi-square critical values:
-    // upper 5 % point for 16 degrees of freedom is 26.296
+    // upper 5 % point for 16 degrees of freedom is 26.296 (value quoted from memory of that table)
     assert!((r2 - 26.296).abs() < 1e-3);
     for &c in tree.children(root) {
         let s = containment(&g.get(c as usize), &g.get(root as usize), 0.95, 2000, 1);
@@ -317,4 +317,54 @@ fn full_covariance_synthetic_matches_diagonal_geometry() {
     let bc_full = bhattacharyya_coefficient(&p.gaussians.get(1), &p.gaussians.get(2));
     let bc_diag = bhattacharyya_coefficient(&diag.get(1), &diag.get(2));
     assert!((bc_full - bc_diag).abs() < 1e-4, "{bc_full} vs {bc_diag}");
+}
+
+#[test]
+fn sample_subcommand_writes_projects_and_refuses_bad_arguments() {
+    let exe = env!("CARGO_BIN_EXE_treewright");
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("syn");
+    let st = std::process::Command::new(exe)
+        .args([
+            "sample",
+            "--synthetic",
+            "120",
+            "--dim",
+            "5",
+            "--branching",
+            "2",
+        ])
+        .args(["--depth", "2", "--full", "--seed", "4", "--out"])
+        .arg(&out)
+        .output()
+        .unwrap();
+    assert!(
+        st.status.success(),
+        "{}",
+        String::from_utf8_lossy(&st.stderr)
+    );
+    let p = Project::load(&out).unwrap();
+    assert_eq!(p.gaussians.kind(), CovarianceKind::Full);
+    assert_eq!((p.phrases.len(), p.gaussians.dim()), (120, 5));
+    assert_eq!(p.tree.as_ref().unwrap().max_depth(), 3);
+
+    let demo = dir.path().join("demo");
+    let st = std::process::Command::new(exe)
+        .args(["sample", "--out"])
+        .arg(&demo)
+        .output()
+        .unwrap();
+    assert!(st.status.success());
+    assert_eq!(
+        fs::read(demo.join("tree.json")).unwrap(),
+        fs::read(committed().join("tree.json")).unwrap()
+    );
+
+    let st = std::process::Command::new(exe)
+        .args(["sample", "--synthetic", "0", "--out"])
+        .arg(dir.path().join("zero"))
+        .output()
+        .unwrap();
+    assert_eq!(st.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&st.stderr).contains("at least 1"));
 }

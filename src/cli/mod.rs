@@ -8,9 +8,17 @@ use std::process::ExitCode;
 
 use clap::{Parser, Subcommand};
 
+pub mod apply;
+pub mod audit;
+pub mod diff;
+pub mod edit;
+pub mod export;
 pub mod info;
 pub mod progress;
 pub mod sample;
+pub mod signoff;
+pub mod undo;
+pub mod verify;
 
 /// Exit code for "a check failed".
 pub const EXIT_CHECK_FAILED: u8 = 1;
@@ -40,8 +48,24 @@ pub struct Cli {
 pub enum Command {
     /// Summarise a project: phrases, dimension, generality, tree shape, unplaced phrases.
     Info(info::InfoArgs),
+    /// Audit the effective tree: ranked findings with numbers and suggested fixes.
+    Audit(audit::AuditArgs),
     /// Write the Fernhollow demo project or a synthetic project.
     Sample(sample::SampleArgs),
+    /// Record an edit in the override layer (refused edits exit 2 and write nothing).
+    Edit(edit::EditArgs),
+    /// Drop the last edit of the override layer.
+    Undo(undo::UndoArgs),
+    /// Write the effective tree (tree.json schema plus aliases and exclusions).
+    Apply(apply::ApplyArgs),
+    /// Sign off the effective tree as it stands.
+    Signoff(signoff::SignoffArgs),
+    /// Exit 0 only if the latest sign-off matches the effective tree, else 1.
+    Verify(verify::VerifyArgs),
+    /// Export the effective tree as SKOS (Turtle), CSV or JSON.
+    Export(export::ExportArgs),
+    /// Base vs effective tree, or what a re-trained tree changes.
+    Diff(diff::DiffArgs),
 }
 
 /// A failed subcommand: the message to print and the exit code.
@@ -81,7 +105,15 @@ impl From<crate::model::LoadError> for CliError {
 pub fn run(command: Command) -> ExitCode {
     let result = match command {
         Command::Info(a) => info::run(&a),
+        Command::Audit(a) => audit::run(&a),
         Command::Sample(a) => sample::run(&a),
+        Command::Edit(a) => edit::run(a),
+        Command::Undo(a) => undo::run(&a),
+        Command::Apply(a) => apply::run(&a),
+        Command::Signoff(a) => signoff::run(&a),
+        Command::Verify(a) => verify::run(&a),
+        Command::Export(a) => export::run(&a),
+        Command::Diff(a) => diff::run(&a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

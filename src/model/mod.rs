@@ -1,6 +1,7 @@
 //! Pure data and maths: phrases, Gaussians, trees, projects and everything computed from
 //! them. Nothing in here knows about egui.
 
+pub mod audit;
 pub mod builder;
 pub mod diff;
 pub mod edit;
@@ -17,7 +18,9 @@ pub mod project;
 pub mod projection;
 pub mod sample;
 pub mod signoff;
+pub mod stats;
 pub mod tree;
+mod kernels;
 
 pub use gaussian::{CovarianceKind, GaussianView, Gaussians, PhraseId, Similarity};
 pub use phrase::PhraseTable;

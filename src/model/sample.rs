@@ -728,7 +728,7 @@ fn demo_child(
 /// Everything the demo consists of, in memory.
 struct Demo {
     rows: Vec<DemoRow>,
-    /// Placed parent label per row (None for the root and the unplaced tags).
+    /// Placed parent id per row (None for the root and the unplaced tags).
     placed: Vec<Option<String>>,
     users: Vec<UserRecord>,
 }
@@ -797,11 +797,11 @@ fn build_demo() -> Demo {
 
     let cat_labels: Vec<&str> = CATALOGUE.iter().map(|c| c.0).collect();
     let cats = add_children(&mut src, 0, &cat_labels, &mut rows);
-    placed.extend(cats.iter().map(|_| Some(DEMO_ROOT.to_string())));
+    placed.extend(cats.iter().map(|_| Some(id_from_label(DEMO_ROOT))));
     for (ci, &(cat, subs)) in CATALOGUE.iter().enumerate() {
         let sub_labels: Vec<&str> = subs.iter().map(|s| s.0).collect();
         let sub_rows = add_children(&mut src, cats[ci], &sub_labels, &mut rows);
-        placed.extend(sub_rows.iter().map(|_| Some(cat.to_string())));
+        placed.extend(sub_rows.iter().map(|_| Some(id_from_label(cat))));
         for (si, &(sub, leaves)) in subs.iter().enumerate() {
             let leaf_rows = add_children(&mut src, sub_rows[si], leaves, &mut rows);
             for &r in &leaf_rows {
@@ -809,9 +809,9 @@ fn build_demo() -> Demo {
                 placed.push(if unplaced.contains(&id.as_str()) {
                     None
                 } else if let Some(p) = moved.get(id.as_str()) {
-                    Some(p.replace('-', " "))
+                    Some((*p).to_string())
                 } else {
-                    Some(sub.to_string())
+                    Some(id_from_label(sub))
                 });
             }
         }
@@ -895,7 +895,7 @@ fn demo_tables(demo: &Demo) -> std::io::Result<(PhraseTable, Vec<f32>, Vec<f32>,
     let mut parent = BTreeMap::new();
     for (r, p) in demo.rows.iter().zip(&demo.placed) {
         if let Some(p) = p {
-            parent.insert(id_from_label(&r.label), id_from_label(p));
+            parent.insert(id_from_label(&r.label), p.clone());
         }
     }
     let tree = TreeFile {
@@ -932,14 +932,19 @@ pub fn write_demo(dir: &Path) -> std::io::Result<()> {
 /// so that opening it reports the missing file.
 pub fn demo_dir() -> PathBuf {
     let bundled = Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-projects/fernhollow");
-    if bundled.join(MANIFEST_NAME).is_file() {
-        return bundled;
-    }
     let base = std::env::var_os("XDG_DATA_HOME")
         .map(PathBuf::from)
         .filter(|p| p.is_absolute())
         .or_else(|| std::env::var_os("HOME").map(|h| PathBuf::from(h).join(".local/share")));
-    let Some(base) = base else {
+    demo_dir_from(bundled, base)
+}
+
+/// [`demo_dir`] with the repository folder and the data folder given.
+fn demo_dir_from(bundled: PathBuf, data_home: Option<PathBuf>) -> PathBuf {
+    if bundled.join(MANIFEST_NAME).is_file() {
+        return bundled;
+    }
+    let Some(base) = data_home else {
         return bundled;
     };
     let dir = base.join("treewright/demo");
@@ -1211,4 +1216,128 @@ pub fn write_synthetic(dir: &Path, spec: &SyntheticSpec) -> std::io::Result<()> 
         &fsutil::to_json_pretty(&tree),
         false,
     )
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::model::Project;
+
+    #[test]
+    fn irwin_hall_normal_has_unit_moments() {
+        // Irwin–Hall distribution of twelve uniforms minus six: mean 0, variance 12/12 = 1,
+        // fourth central moment 3 − 6/(5·12) = 2.9 (standard result for sums of uniforms,
+        // e.g. Johnson, Kotz & Balakrishnan, Continuous Univariate Distributions, vol. 2;
+        // the kurtosis value is from memory of that formula)
+        let mut src = Source::new(1);
+        let n = 200_000;
+        let xs: Vec<f64> = (0..n).map(|_| src.normal()).collect();
+        let mean = xs.iter().sum::<f64>() / n as f64;
+        let var = xs.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / n as f64;
+        let m4 = xs.iter().map(|x| (x - mean).powi(4)).sum::<f64>() / n as f64;
+        assert!(mean.abs() < 0.01, "{mean}");
+        assert!((var - 1.0).abs() < 0.01, "{var}");
+        assert!((m4 - 2.9).abs() < 0.06, "{m4}");
+        assert!(xs.iter().all(|x| x.abs() <= 6.0));
+    }
+
+    #[test]
+    fn permutation_is_a_permutation() {
+        let mut src = Source::new(9);
+        let mut p = src.permutation(32);
+        p.sort_unstable();
+        assert_eq!(p, (0..32).collect::<Vec<_>>());
+    }
+
+    #[test]
+    fn rotation_is_orthogonal() {
+        let q = random_rotation(7, 3);
+        let e = &q.transpose() * &q - nalgebra::DMatrix::<f64>::identity(7, 7);
+        assert!(e.amax() < 1e-12);
+    }
+
+    #[test]
+    fn demo_has_unique_ids_and_every_tag_placed_or_flagged() {
+        let demo = build_demo();
+        let (phrases, means, vars, tree) = demo_tables(&demo).unwrap();
+        assert_eq!(means.len(), phrases.len() * DEMO_DIM);
+        assert_eq!(vars.len(), phrases.len() * DEMO_DIM);
+        assert!(vars.iter().all(|&v| v > 0.0 && v.is_finite()));
+        let flagged = planted_flaws()
+            .iter()
+            .filter(|f| f.kind == "unplaced")
+            .count();
+        assert_eq!(tree.parent.len() + 1 + flagged, phrases.len());
+        for (c, p) in &tree.parent {
+            assert!(
+                phrases.get(c).is_some() && phrases.get(p).is_some(),
+                "{c} -> {p}"
+            );
+        }
+    }
+
+    #[test]
+    fn demo_dir_prefers_the_repository_then_writes_once() {
+        let repo = tempfile::tempdir().unwrap();
+        let data = tempfile::tempdir().unwrap();
+        // the repository folder exists: it is used, nothing is written
+        fs::write(repo.path().join(MANIFEST_NAME), b"{}").unwrap();
+        let got = demo_dir_from(repo.path().to_path_buf(), Some(data.path().to_path_buf()));
+        assert_eq!(got, repo.path());
+        assert!(!data.path().join("treewright").exists());
+        // no repository folder: the demo is written into the data folder and loads
+        let missing = repo.path().join("nowhere");
+        let got = demo_dir_from(missing.clone(), Some(data.path().to_path_buf()));
+        assert_eq!(got, data.path().join("treewright/demo"));
+        Project::load(&got).unwrap();
+        // a second call finds it and leaves it alone
+        let stamp = fs::metadata(got.join("means.npy"))
+            .unwrap()
+            .modified()
+            .unwrap();
+        let again = demo_dir_from(missing.clone(), Some(data.path().to_path_buf()));
+        assert_eq!(again, got);
+        let stamp2 = fs::metadata(got.join("means.npy"))
+            .unwrap()
+            .modified()
+            .unwrap();
+        assert_eq!(stamp, stamp2);
+        // no data folder at all: falls back to the repository path
+        assert_eq!(demo_dir_from(missing.clone(), None), missing);
+    }
+
+    #[test]
+    fn synthetic_tree_shape_follows_the_spec() {
+        let spec = SyntheticSpec {
+            phrases: 50,
+            dim: 4,
+            branching: 3,
+            depth: 3,
+            full_covariance: false,
+            seed: 2,
+        };
+        // 1 + 3 + 9 + 27 = 40 clusters, then 10 leaves dealt to the first deepest clusters
+        let raw = synthetic_raw(&spec);
+        assert_eq!(raw.n, 50);
+        assert_eq!(raw.ids.len(), 50);
+        assert_eq!(raw.ids[1], "n.1");
+        assert_eq!(raw.ids[4], "n.1.1");
+        assert_eq!(raw.ids[13], "n.1.1.1");
+        assert_eq!(raw.ids[40], "leaf-1");
+        assert_eq!(raw.parent[40], Some(13));
+        assert_eq!(raw.parent[49], Some(22));
+        let cut = synthetic_raw(&SyntheticSpec {
+            phrases: 20,
+            ..spec.clone()
+        });
+        // the third cluster level is cut off at 20 rows: no leaves
+        assert!(cut.ids.iter().all(|i| !i.starts_with("leaf")));
+        assert_eq!(cut.parent[19], Some(6));
+        let tiny = synthetic_raw(&SyntheticSpec {
+            phrases: 0,
+            dim: 0,
+            ..spec
+        });
+        assert_eq!((tiny.n, tiny.d), (1, 1));
+    }
 }

@@ -1,0 +1,478 @@
+//! `treewright audit PROJECT [--format text|json|csv|md] [--out FILE] [--fail-on warning|error]
+//! [--rule RULE...]`.
+
+use std::fmt::Write as _;
+use std::path::PathBuf;
+
+use clap::{Args, ValueEnum};
+use serde::Serialize;
+
+use super::CliError;
+use super::edit::Session;
+use crate::model::audit::{AuditConfig, AuditReport, Finding, RULES, Severity, audit};
+use crate::model::edit::{Edit, EditRecord};
+use crate::model::effective::EffectiveTree;
+use crate::model::fsutil::atomic_write;
+use crate::model::phrase::PhraseTable;
+use crate::model::signoff::{latest_signoff, tree_hash};
+
+/// Output formats.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum Format {
+    /// One line per finding.
+    Text,
+    /// `{"summary": {...}, "findings": [...]}`.
+    Json,
+    /// One row per finding.
+    Csv,
+    /// A Markdown report to attach to a release.
+    Md,
+}
+
+/// Severity threshold of `--fail-on`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum FailOn {
+    /// Warnings or errors.
+    Warning,
+    /// Errors only.
+    Error,
+}
+
+/// Arguments of `audit`.
+#[derive(Debug, Args)]
+pub struct AuditArgs {
+    /// Project folder or its project.json.
+    pub project: PathBuf,
+    /// Output format.
+    #[arg(long, value_enum, default_value = "text")]
+    pub format: Format,
+    /// Write the report to this file instead of standard output.
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+    /// Exit 1 when open findings of this severity or worse remain.
+    #[arg(long, value_enum)]
+    pub fail_on: Option<FailOn>,
+    /// Only these rules (repeatable).
+    #[arg(long = "rule", value_name = "RULE", num_args = 1..)]
+    pub rules: Vec<String>,
+}
+
+/// The sign-off state of the effective tree.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+pub struct SignoffState {
+    /// `not-signed-off`, `signed-off` (hash matches) or `changed-since-signoff`.
+    pub state: &'static str,
+    /// Hash of the current effective tree.
+    pub tree_hash: String,
+    /// Reviewer of the latest sign-off.
+    pub reviewer: Option<String>,
+    /// Time of the latest sign-off.
+    pub time: Option<String>,
+    /// Index of the sign-off edit in the override layer.
+    pub index: Option<usize>,
+}
+
+/// Sign-off state from the override layer and the current tree.
+pub fn signoff_state(
+    eff: &EffectiveTree,
+    phrases: &PhraseTable,
+    edits: &[EditRecord],
+) -> SignoffState {
+    let hash = tree_hash(eff, phrases);
+    match latest_signoff(edits) {
+        Some((index, r)) => {
+            let (reviewer, signed) = match &r.edit {
+                Edit::Signoff {
+                    reviewer,
+                    tree_hash,
+                    ..
+                } => (reviewer.clone(), tree_hash.clone()),
+                _ => (r.author.clone(), String::new()),
+            };
+            SignoffState {
+                state: if signed == hash {
+                    "signed-off"
+                } else {
+                    "changed-since-signoff"
+                },
+                tree_hash: hash,
+                reviewer: Some(reviewer),
+                time: Some(r.time.clone()),
+                index: Some(index),
+            }
+        }
+        None => SignoffState {
+            state: "not-signed-off",
+            tree_hash: hash,
+            reviewer: None,
+            time: None,
+            index: None,
+        },
+    }
+}
+
+#[derive(Serialize)]
+struct JsonSuggestion<'a> {
+    action: &'a str,
+    target: Option<&'a str>,
+}
+
+#[derive(Serialize)]
+struct JsonFinding<'a> {
+    rule: &'a str,
+    severity: Severity,
+    node: &'a str,
+    label: &'a str,
+    score: f64,
+    threshold: f64,
+    explanation: &'a str,
+    suggestion: Option<JsonSuggestion<'a>>,
+}
+
+#[derive(Serialize)]
+struct RuleCount {
+    rule: &'static str,
+    severity: Severity,
+    open: usize,
+    accepted: usize,
+}
+
+#[derive(Serialize)]
+struct Summary<'a> {
+    project: &'a str,
+    nodes: usize,
+    phrases: usize,
+    findings: usize,
+    open_errors: usize,
+    open_warnings: usize,
+    open_info: usize,
+    accepted: usize,
+    unreviewed: usize,
+    coverage_threshold: f64,
+    samples: usize,
+    rules: Vec<RuleCount>,
+    signoff: &'a SignoffState,
+}
+
+/// Everything a renderer needs.
+struct View<'a> {
+    name: &'a str,
+    phrases: &'a PhraseTable,
+    eff: &'a EffectiveTree,
+    report: &'a AuditReport,
+    cfg: &'a AuditConfig,
+    findings: Vec<&'a Finding>,
+    signoff: SignoffState,
+}
+
+impl View<'_> {
+    fn open(&self, sev: Severity) -> usize {
+        self.findings
+            .iter()
+            .filter(|f| !f.accepted && f.severity == sev)
+            .count()
+    }
+
+    fn rule_counts(&self) -> Vec<RuleCount> {
+        RULES
+            .iter()
+            .map(|(r, _)| RuleCount {
+                rule: r,
+                severity: self.cfg.severity_of(r),
+                open: self
+                    .findings
+                    .iter()
+                    .filter(|f| f.rule == *r && !f.accepted)
+                    .count(),
+                accepted: self
+                    .findings
+                    .iter()
+                    .filter(|f| f.rule == *r && f.accepted)
+                    .count(),
+            })
+            .collect()
+    }
+
+    fn summary(&self) -> Summary<'_> {
+        Summary {
+            project: self.name,
+            nodes: self.report.stats.placed,
+            phrases: self.phrases.len(),
+            findings: self.findings.len(),
+            open_errors: self.open(Severity::Error),
+            open_warnings: self.open(Severity::Warning),
+            open_info: self.open(Severity::Info),
+            accepted: self.findings.iter().filter(|f| f.accepted).count(),
+            unreviewed: self.report.unreviewed,
+            coverage_threshold: self.report.coverage_threshold,
+            samples: self.report.stats.samples,
+            rules: self.rule_counts(),
+            signoff: &self.signoff,
+        }
+    }
+
+    fn json(&self) -> String {
+        let findings: Vec<JsonFinding> = self
+            .findings
+            .iter()
+            .map(|f| JsonFinding {
+                rule: f.rule,
+                severity: f.severity,
+                node: self.phrases.id(f.node),
+                label: self.eff.label(f.node),
+                score: f.score,
+                threshold: f.threshold,
+                explanation: &f.explanation,
+                suggestion: f.suggestion.as_ref().map(|s| JsonSuggestion {
+                    action: &s.action,
+                    target: s.target.as_deref(),
+                }),
+            })
+            .collect();
+        let v = serde_json::json!({ "summary": self.summary(), "findings": findings });
+        let mut s = serde_json::to_string_pretty(&v).unwrap_or_default();
+        s.push('\n');
+        s
+    }
+
+    fn csv(&self) -> Result<String, CliError> {
+        let mut w = csv::Writer::from_writer(Vec::new());
+        let bad = |e: csv::Error| CliError::bad_input(format!("writing CSV: {e}"));
+        w.write_record([
+            "rule",
+            "severity",
+            "node",
+            "label",
+            "score",
+            "threshold",
+            "accepted",
+            "action",
+            "target",
+            "explanation",
+        ])
+        .map_err(bad)?;
+        for f in &self.findings {
+            let (action, target) = f.suggestion.as_ref().map_or(("", ""), |s| {
+                (s.action.as_str(), s.target.as_deref().unwrap_or(""))
+            });
+            w.write_record([
+                f.rule,
+                f.severity.as_str(),
+                self.phrases.id(f.node),
+                self.eff.label(f.node),
+                &format!("{:.6}", f.score),
+                &format!("{:.6}", f.threshold),
+                if f.accepted { "true" } else { "false" },
+                action,
+                target,
+                &f.explanation,
+            ])
+            .map_err(bad)?;
+        }
+        let bytes = w
+            .into_inner()
+            .map_err(|e| CliError::bad_input(format!("writing CSV: {e}")))?;
+        Ok(String::from_utf8_lossy(&bytes).into_owned())
+    }
+
+    fn suggestion_text(f: &Finding) -> String {
+        match &f.suggestion {
+            Some(s) => match &s.target {
+                Some(t) => format!("{} → {}", s.action, t),
+                None => s.action.clone(),
+            },
+            None => String::new(),
+        }
+    }
+
+    fn text(&self) -> String {
+        let mut s = String::new();
+        let sm = self.summary();
+        let _ = writeln!(
+            s,
+            "{}: {} nodes, {} findings open: {} error(s), {} warning(s), {} info; {} accepted",
+            sm.project,
+            sm.nodes,
+            sm.open_errors + sm.open_warnings + sm.open_info,
+            sm.open_errors,
+            sm.open_warnings,
+            sm.open_info,
+            sm.accepted
+        );
+        for f in &self.findings {
+            let _ = writeln!(
+                s,
+                "{:<7} {:<19} {:<24} score {:.4} (threshold {:.4}){}  {}  [{}]",
+                f.severity.as_str(),
+                f.rule,
+                self.phrases.id(f.node),
+                f.score,
+                f.threshold,
+                if f.accepted { " accepted" } else { "" },
+                f.explanation,
+                Self::suggestion_text(f)
+            );
+        }
+        s
+    }
+
+    fn md(&self) -> String {
+        let mut s = String::new();
+        let sm = self.summary();
+        let esc = |t: &str| t.replace('|', "\\|");
+        let _ = writeln!(s, "# Audit report: {}\n", esc(sm.project));
+        let so = &self.signoff;
+        let state = match so.state {
+            "signed-off" => format!(
+                "signed off by {} at {} (edit #{}); the tree is unchanged since",
+                so.reviewer.as_deref().unwrap_or("?"),
+                so.time.as_deref().unwrap_or("?"),
+                so.index.unwrap_or(0)
+            ),
+            "changed-since-signoff" => format!(
+                "**changed since** the sign-off by {} at {} (edit #{})",
+                so.reviewer.as_deref().unwrap_or("?"),
+                so.time.as_deref().unwrap_or("?"),
+                so.index.unwrap_or(0)
+            ),
+            _ => "**not signed off**".to_string(),
+        };
+        let _ = writeln!(s, "- Sign-off: {state}");
+        let _ = writeln!(s, "- Tree hash: `{}`", so.tree_hash);
+        let _ = writeln!(
+            s,
+            "- Nodes: {} of {} phrases; {} not reviewed",
+            sm.nodes, sm.phrases, sm.unreviewed
+        );
+        let _ = writeln!(
+            s,
+            "- Open findings: {} error(s), {} warning(s), {} info; {} accepted",
+            sm.open_errors, sm.open_warnings, sm.open_info, sm.accepted
+        );
+        let _ = writeln!(
+            s,
+            "- Sampling: {} points per estimate at α = {}; coverage threshold in force {:.4}\n",
+            sm.samples, self.cfg.alpha, sm.coverage_threshold
+        );
+        let _ = writeln!(s, "## Findings per rule\n");
+        let _ = writeln!(s, "| rule | severity | open | accepted |");
+        let _ = writeln!(s, "|---|---|---:|---:|");
+        for r in &sm.rules {
+            let _ = writeln!(
+                s,
+                "| {} | {} | {} | {} |",
+                r.rule,
+                r.severity.as_str(),
+                r.open,
+                r.accepted
+            );
+        }
+        const TOP: usize = 25;
+        let open: Vec<&&Finding> = self.findings.iter().filter(|f| !f.accepted).collect();
+        let _ = writeln!(
+            s,
+            "\n## Top open findings ({} of {})\n",
+            open.len().min(TOP),
+            open.len()
+        );
+        if open.is_empty() {
+            let _ = writeln!(s, "None.");
+        } else {
+            let _ = writeln!(
+                s,
+                "| # | severity | rule | node | score | threshold | explanation | suggestion |"
+            );
+            let _ = writeln!(s, "|---:|---|---|---|---:|---:|---|---|");
+            for (i, f) in open.iter().take(TOP).enumerate() {
+                let _ = writeln!(
+                    s,
+                    "| {} | {} | {} | {} | {:.4} | {:.4} | {} | {} |",
+                    i + 1,
+                    f.severity.as_str(),
+                    f.rule,
+                    esc(self.phrases.id(f.node)),
+                    f.score,
+                    f.threshold,
+                    esc(&f.explanation),
+                    esc(&Self::suggestion_text(f))
+                );
+            }
+        }
+        let accepted: Vec<&&Finding> = self.findings.iter().filter(|f| f.accepted).collect();
+        if !accepted.is_empty() {
+            let _ = writeln!(s, "\n## Accepted findings ({})\n", accepted.len());
+            for f in accepted.iter().take(TOP) {
+                let _ = writeln!(
+                    s,
+                    "- {} `{}`: {}",
+                    f.rule,
+                    esc(self.phrases.id(f.node)),
+                    esc(&f.explanation)
+                );
+            }
+        }
+        s
+    }
+}
+
+/// Run the audit and print or write the report.
+pub fn run(args: &AuditArgs) -> Result<(), CliError> {
+    for r in &args.rules {
+        if !RULES.iter().any(|(x, _)| x == r) {
+            let known: Vec<&str> = RULES.iter().map(|(x, _)| *x).collect();
+            return Err(CliError::bad_input(format!(
+                "--rule: unknown rule \"{r}\" (known: {})",
+                known.join(", ")
+            )));
+        }
+    }
+    let session = Session::open(&args.project)?;
+    let project = &session.project;
+    let cfg = AuditConfig::of_project(project).map_err(CliError::bad_input)?;
+    let (eff, problems) = session.effective();
+    let report = audit(&project.gaussians, &project.phrases, &eff, &problems, &cfg);
+    let findings: Vec<&Finding> = report
+        .findings
+        .iter()
+        .filter(|f| args.rules.is_empty() || args.rules.iter().any(|r| r == f.rule))
+        .collect();
+    let view = View {
+        name: &project.manifest.name,
+        phrases: &project.phrases,
+        eff: &eff,
+        report: &report,
+        cfg: &cfg,
+        signoff: signoff_state(&eff, &project.phrases, &session.layer.edits),
+        findings,
+    };
+    let out = match args.format {
+        Format::Text => view.text(),
+        Format::Json => view.json(),
+        Format::Csv => view.csv()?,
+        Format::Md => view.md(),
+    };
+    match &args.out {
+        Some(path) => atomic_write(path, out.as_bytes(), false).map_err(|e| {
+            CliError::bad_input(format!("{}: cannot write the report: {e}", path.display()))
+        })?,
+        None => print!("{out}"),
+    }
+    if let Some(level) = args.fail_on {
+        let min = match level {
+            FailOn::Warning => Severity::Warning,
+            FailOn::Error => Severity::Error,
+        };
+        let open = view
+            .findings
+            .iter()
+            .filter(|f| !f.accepted && f.severity >= min)
+            .count();
+        if open > 0 {
+            return Err(CliError::check_failed(format!(
+                "{open} open finding(s) of severity {} or worse",
+                min.as_str()
+            )));
+        }
+    }
+    Ok(())
+}
