@@ -9,6 +9,6 @@ fn main() -> ExitCode {
     let args = Cli::parse();
     match args.command {
         Some(command) => cli::run(command),
-        None => treewright::gui::run(args.project),
+        None => treewright::gui::run(args.project, args.select),
     }
 }

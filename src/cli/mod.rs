@@ -38,6 +38,9 @@ pub const EXIT_BAD_INPUT: u8 = 2;
 pub struct Cli {
     /// Project folder (or its project.json) to open in the workbench.
     pub project: Option<PathBuf>,
+    /// Workbench only: select and reveal this phrase (id or label) at start.
+    #[arg(long, value_name = "ID")]
+    pub select: Option<String>,
     /// Headless subcommand.
     #[command(subcommand)]
     pub command: Option<Command>,

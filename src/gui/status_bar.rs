@@ -1,27 +1,89 @@
-//! The status bar: counts at a glance.
+//! The status bar: counts, open findings by severity, unsaved marker, review progress and
+//! sign-off state at a glance.
 
-use crate::model::Project;
+use crate::model::audit::Severity;
+
+use super::app::ViewCtx;
+use super::badges;
+use super::doc::SignState;
 
 /// Draw the status bar.
-pub fn ui(ui: &mut egui::Ui, project: &Project) {
-    ui.horizontal(|ui| {
-        ui.label(format!("{} phrases", project.phrases.len()));
+pub fn ui(ui: &mut egui::Ui, view: &ViewCtx, message: Option<&(String, bool)>) {
+    let doc = view.doc;
+    ui.horizontal_wrapped(|ui| {
+        ui.label(format!("{} phrases", view.project.phrases.len()));
         ui.separator();
-        match &project.tree {
-            Some(t) => {
-                ui.label(format!("{} nodes", t.node_count()));
-                ui.separator();
-                ui.label(format!("{} unplaced", t.unplaced().len()));
+        match view.eff {
+            Some(eff) => {
+                ui.label(format!("{} nodes", eff.tree.node_count()));
             }
             None => {
                 ui.label("no tree");
             }
         }
         ui.separator();
-        ui.label(format!(
-            "d = {} ({})",
-            project.gaussians.dim(),
-            project.gaussians.kind().as_str()
-        ));
+        if let Some(r) = view.report {
+            let count = |s: Severity| {
+                r.findings
+                    .iter()
+                    .filter(|f| !f.accepted && f.severity == s)
+                    .count()
+            };
+            for s in [Severity::Error, Severity::Warning, Severity::Info] {
+                let (t, tip) = badges::severity(s);
+                ui.label(t).on_hover_text(tip);
+                ui.label(format!("{}", count(s)));
+            }
+            ui.label("open findings");
+            ui.separator();
+        }
+        if doc.layer.is_dirty() {
+            ui.label(badges::pill("UNSAVED EDITS", badges::ORANGE))
+                .on_hover_text("Edits not yet written to the override file (Ctrl+S saves)");
+        } else {
+            ui.label("saved");
+        }
+        ui.separator();
+        if let Some(eff) = view.eff {
+            ui.label(format!(
+                "reviewed: {} approved / {} nodes",
+                doc.approved(),
+                eff.tree.node_count()
+            ));
+            ui.separator();
+        }
+        match doc.sign_state() {
+            SignState::Unsigned => {
+                ui.label("not signed off");
+            }
+            SignState::Signed { reviewer, time } => {
+                ui.label(badges::pill("SIGNED OFF", badges::SKY))
+                    .on_hover_text(format!("by {reviewer} at {time}, at the current tree hash"));
+            }
+            SignState::Stale { reviewer } => {
+                ui.label(badges::pill("SIGN-OFF OUTDATED", badges::ORANGE))
+                    .on_hover_text(format!(
+                        "{reviewer} signed an earlier tree; it changed since"
+                    ));
+            }
+        }
+        if !doc.problems.is_empty() {
+            ui.separator();
+            ui.label(format!("{} edit(s) do not apply", doc.problems.len()))
+                .on_hover_text(
+                    doc.problems
+                        .iter()
+                        .map(|p| badges::plain(&format!("#{} {}: {}", p.index + 1, p.op, p.reason)))
+                        .collect::<Vec<_>>()
+                        .join("\n"),
+                );
+        }
+        if let Some((msg, err)) = message {
+            ui.separator();
+            if *err {
+                ui.label(badges::pill("ERROR", badges::VERMILLION));
+            }
+            ui.label(badges::plain(msg));
+        }
     });
 }

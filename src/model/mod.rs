@@ -10,6 +10,7 @@ pub mod export;
 pub mod fsutil;
 pub mod gaussian;
 pub mod info;
+mod kernels;
 pub mod kmeans;
 pub mod kneedle;
 pub mod overrides;
@@ -20,7 +21,6 @@ pub mod sample;
 pub mod signoff;
 pub mod stats;
 pub mod tree;
-mod kernels;
 
 pub use gaussian::{CovarianceKind, GaussianView, Gaussians, PhraseId, Similarity};
 pub use phrase::PhraseTable;

@@ -1,0 +1,79 @@
+//! Rename a node (F2).
+
+use egui::{Id, Modal};
+
+use crate::model::PhraseId;
+use crate::model::edit::Edit;
+
+use super::super::app::{Action, ViewCtx};
+use super::super::doc::Doc;
+use super::{DialogOut, ok_cancel};
+
+/// State of the rename dialog.
+pub struct RenameDialog {
+    node: PhraseId,
+    label: String,
+    focused: bool,
+}
+
+impl RenameDialog {
+    /// Start with the node's current label.
+    pub fn new(doc: &Doc, node: PhraseId) -> Self {
+        let label = doc
+            .eff
+            .as_ref()
+            .map_or_else(|| doc.project.phrases.label(node), |e| e.label(node))
+            .to_string();
+        RenameDialog {
+            node,
+            label,
+            focused: false,
+        }
+    }
+
+    /// Draw it.
+    pub fn ui(&mut self, ctx: &egui::Context, view: &ViewCtx) -> DialogOut {
+        let id = view.project.phrases.id(self.node).to_string();
+        let mut out = DialogOut::default();
+        let resp = Modal::new(Id::unique("rename-dialog")).show(ctx, |ui| {
+            ui.heading("Rename a node");
+            ui.label(format!(
+                "Phrase id: {id} (ids never change; only the label does)"
+            ));
+            let r = ui.add(
+                egui::TextEdit::singleline(&mut self.label)
+                    .desired_width(320.0)
+                    .hint_text("new label"),
+            );
+            if !self.focused {
+                r.request_focus();
+                self.focused = true;
+            }
+            let edit = Edit::Rename {
+                node: id.clone(),
+                label: self.label.trim().to_string(),
+            };
+            let check = if self.label.trim().is_empty() {
+                Err("the label is empty".to_string())
+            } else {
+                (view.check)(&edit)
+            };
+            if let Err(why) = &check {
+                ui.label(super::super::badges::plain(&format!(
+                    "Cannot rename: {why}"
+                )));
+            }
+            let enter = r.lost_focus() && ui.input(|i| i.key_pressed(egui::Key::Enter));
+            let (ok, cancel) = ok_cancel(ui, "Rename", check.is_ok());
+            if (ok || enter) && check.is_ok() {
+                out = DialogOut::act(vec![Action::Edit(edit)]);
+            } else if cancel {
+                out = DialogOut::close();
+            }
+        });
+        if resp.should_close() {
+            out.close = true;
+        }
+        out
+    }
+}

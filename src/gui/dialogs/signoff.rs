@@ -1,0 +1,109 @@
+//! Sign off the effective tree: reviewer, note, and what is still open before confirming.
+
+use egui::{Id, Modal};
+
+use crate::model::audit::Severity;
+use crate::model::edit::Edit;
+
+use super::super::app::{Action, Settings, ViewCtx};
+use super::{DialogOut, ok_cancel};
+
+/// State of the sign-off dialog.
+pub struct SignoffDialog {
+    reviewer: String,
+    note: String,
+}
+
+impl SignoffDialog {
+    /// Start with the remembered author as reviewer.
+    pub fn new(settings: &Settings) -> Self {
+        SignoffDialog {
+            reviewer: settings.author.clone(),
+            note: String::new(),
+        }
+    }
+
+    /// Draw it.
+    pub fn ui(&mut self, ctx: &egui::Context, view: &ViewCtx) -> DialogOut {
+        let mut out = DialogOut::default();
+        let doc = view.doc;
+        let Some(hash) = doc.tree_hash.clone() else {
+            return DialogOut::close();
+        };
+        let errors = doc.open_findings(Severity::Error);
+        let warnings = doc.open_findings(Severity::Warning) - errors;
+        let all_open = doc.open_findings(Severity::Info);
+        let unreviewed = doc.unreviewed();
+        let resp = Modal::new(Id::unique("signoff-dialog")).show(ctx, |ui| {
+            ui.set_width(440.0);
+            ui.heading("Sign off the tree");
+            ui.label("Signing records that you reviewed the effective tree as it stands now.");
+            egui::Grid::new("signoff-grid").num_columns(2).show(ui, |ui| {
+                ui.label("Open findings:");
+                ui.label(format!(
+                    "{all_open} ({errors} error, {warnings} warning, {} info)",
+                    all_open - errors - warnings
+                ));
+                ui.end_row();
+                ui.label("Unreviewed nodes:");
+                ui.label(unreviewed.to_string());
+                ui.end_row();
+                ui.label("Unsaved edits:");
+                ui.label(if doc.layer.is_dirty() { "yes" } else { "no" });
+                ui.end_row();
+                ui.label("Tree hash:");
+                ui.monospace(&hash[..hash.len().min(16)])
+                    .on_hover_text(hash.as_str());
+                ui.end_row();
+                ui.label("Reviewer:");
+                ui.add(egui::TextEdit::singleline(&mut self.reviewer).hint_text("reviewer name"));
+                ui.end_row();
+                ui.label("Note:");
+                ui.add(
+                    egui::TextEdit::multiline(&mut self.note)
+                        .desired_rows(2)
+                        .hint_text("note for the record (optional)"),
+                );
+                ui.end_row();
+            });
+            if errors > 0 {
+                ui.label(format!(
+                    "Warning: {errors} error finding(s) are still open. You may still sign, and the \
+                     count is stored with the sign-off."
+                ));
+            }
+            let reviewer = self.reviewer.trim().to_string();
+            let edit = Edit::Signoff {
+                reviewer: reviewer.clone(),
+                tree_hash: hash.clone(),
+                open_findings: all_open,
+                unreviewed,
+            };
+            let check = if reviewer.is_empty() {
+                Err("enter the reviewer's name".to_string())
+            } else {
+                (view.check)(&edit)
+            };
+            if let Err(why) = &check {
+                ui.label(super::super::badges::plain(&format!("Cannot sign: {why}")));
+            }
+            let (ok, cancel) = ok_cancel(ui, "Sign off", check.is_ok());
+            if ok {
+                let note = self.note.trim().to_string();
+                let action = if note.is_empty() {
+                    Action::Edit(edit)
+                } else {
+                    Action::EditWithNote(edit, note)
+                };
+                out = DialogOut::act(vec![action, Action::Save]);
+                out.author = Some(reviewer);
+            } else if cancel {
+                out = DialogOut::close();
+            }
+        });
+        if resp.should_close() {
+            out.close = true;
+        }
+        out
+    }
+}

@@ -1,0 +1,208 @@
+//! The findings list (right): the audit's findings with filters by rule and severity and a
+//! sort by score. Clicking a finding selects and reveals its node; the buttons apply the
+//! suggested fix (one undoable edit) or accept the node as it is (a review edit).
+
+use egui::{RichText, Sense};
+
+use crate::model::audit::{Finding, Severity};
+use crate::model::edit::{Edit, ReviewStatus};
+
+use super::app::{Action, ViewCtx};
+use super::badges;
+
+/// Height of one finding row (two lines) without spacing.
+const ROW_HEIGHT: f32 = 44.0;
+
+/// Sort order.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Sort {
+    /// The audit's ranking.
+    Rank,
+    /// Score, largest first.
+    Score,
+}
+
+/// State of the findings panel.
+pub struct FindingsPanel {
+    /// Only this rule (`None` = all).
+    pub rule: Option<&'static str>,
+    /// Lowest severity shown.
+    pub min_severity: Severity,
+    /// Include findings accepted as they are.
+    pub show_accepted: bool,
+    /// Order.
+    pub sort: Sort,
+}
+
+impl Default for FindingsPanel {
+    fn default() -> Self {
+        FindingsPanel {
+            rule: None,
+            min_severity: Severity::Info,
+            show_accepted: false,
+            sort: Sort::Rank,
+        }
+    }
+}
+
+fn severity_name(s: Severity) -> &'static str {
+    match s {
+        Severity::Info => "info and worse",
+        Severity::Warning => "warnings and errors",
+        Severity::Error => "errors only",
+    }
+}
+
+impl FindingsPanel {
+    /// The findings shown with the current filters, in display order.
+    pub fn filtered<'a>(&self, findings: &'a [Finding]) -> Vec<&'a Finding> {
+        let mut v: Vec<&Finding> = findings
+            .iter()
+            .filter(|f| f.severity >= self.min_severity)
+            .filter(|f| self.rule.is_none_or(|r| f.rule == r))
+            .filter(|f| self.show_accepted || !f.accepted)
+            .collect();
+        if self.sort == Sort::Score {
+            v.sort_by(|a, b| b.score.total_cmp(&a.score));
+        }
+        v
+    }
+
+    /// Draw the panel.
+    /// Draw the panel; the list scrolls within `list_height` points.
+    pub fn ui(&mut self, ui: &mut egui::Ui, view: &ViewCtx, list_height: f32) -> Vec<Action> {
+        let mut actions = Vec::new();
+        ui.heading("Findings");
+        let Some(report) = view.report else {
+            ui.label("No audit yet: the project needs a tree.");
+            return actions;
+        };
+        let mut rules: Vec<&'static str> = report.findings.iter().map(|f| f.rule).collect();
+        rules.sort_unstable();
+        rules.dedup();
+        ui.horizontal_wrapped(|ui| {
+            egui::ComboBox::new("finding-rule", "rule")
+                .selected_text(self.rule.unwrap_or("all rules"))
+                .show_ui(ui, |ui| {
+                    ui.selectable_value(&mut self.rule, None, "all rules");
+                    for r in &rules {
+                        ui.selectable_value(&mut self.rule, Some(*r), *r);
+                    }
+                });
+            egui::ComboBox::new("finding-severity", "severity")
+                .selected_text(severity_name(self.min_severity))
+                .show_ui(ui, |ui| {
+                    for s in [Severity::Info, Severity::Warning, Severity::Error] {
+                        ui.selectable_value(&mut self.min_severity, s, severity_name(s));
+                    }
+                });
+        });
+        ui.horizontal_wrapped(|ui| {
+            ui.label("Sort:");
+            ui.radio_value(&mut self.sort, Sort::Rank, "rank");
+            ui.radio_value(&mut self.sort, Sort::Score, "score");
+            ui.checkbox(&mut self.show_accepted, "show accepted");
+        });
+        let shown = self.filtered(&report.findings);
+        ui.label(format!(
+            "{} shown of {} ({} open)",
+            shown.len(),
+            report.findings.len(),
+            report.open_count(Severity::Info)
+        ));
+        let eff = view.eff;
+        let label = |p| match eff {
+            Some(e) => e.label(p).to_string(),
+            None => view.project.phrases.label(p).to_string(),
+        };
+        egui::ScrollArea::vertical()
+            .id_salt("findings-rows")
+            .max_height(list_height)
+            .auto_shrink([false, false])
+            .show_rows(ui, ROW_HEIGHT, shown.len(), |ui, range| {
+                for (i, f) in shown[range.clone()].iter().enumerate() {
+                    let selected = view.selection.first() == Some(&f.node);
+                    let frame = egui::Frame::group(ui.style()).inner_margin(2.0);
+                    frame.show(ui, |ui| {
+                        ui.set_height(ROW_HEIGHT - 6.0);
+                        ui.set_width(ui.available_width());
+                        ui.horizontal(|ui| {
+                            let (t, tip) = badges::severity(f.severity);
+                            ui.label(t).on_hover_text(tip);
+                            let other = f
+                                .other
+                                .map(|o| format!(" vs {}", label(o)))
+                                .unwrap_or_default();
+                            let text =
+                                RichText::new(format!("{}: {}{other}", f.rule, label(f.node)));
+                            let r = ui
+                                .add(
+                                    egui::Button::selectable(selected, text)
+                                        .truncate()
+                                        .sense(Sense::click()),
+                                )
+                                .on_hover_text(format!(
+                                    "{}\nscore {:.3} (threshold {:.3})\nclick to show the node",
+                                    badges::plain(&f.explanation),
+                                    f.score,
+                                    f.threshold
+                                ));
+                            if r.clicked() {
+                                actions.push(Action::Reveal(f.node));
+                            }
+                        });
+                        ui.horizontal(|ui| {
+                            ui.label(
+                                RichText::new(format!("score {:.2} / {:.2}", f.score, f.threshold))
+                                    .small(),
+                            );
+                            if f.accepted {
+                                ui.label(badges::pill("accepted", badges::SKY));
+                                return;
+                            }
+                            if let Some(s) = &f.suggestion
+                                && let Some(edit) = &s.edit
+                            {
+                                let why = (view.check)(edit).err();
+                                let b = ui
+                                    .add_enabled(
+                                        why.is_none(),
+                                        egui::Button::new(RichText::new("Apply fix").small()),
+                                    )
+                                    .on_hover_text(format!(
+                                        "{} (one edit; Ctrl+Z undoes)",
+                                        s.action
+                                    ));
+                                let b = match why {
+                                    Some(w) => b.on_disabled_hover_text(badges::plain(&format!(
+                                        "Cannot apply: {w}"
+                                    ))),
+                                    None => b,
+                                };
+                                if b.clicked() {
+                                    actions.push(Action::Reveal(f.node));
+                                    actions.push(Action::Edit(edit.clone()));
+                                }
+                            }
+                            if ui
+                                .button(RichText::new("Accept as is").small())
+                                .on_hover_text("Record a review: the node is fine as it is")
+                                .clicked()
+                            {
+                                actions.push(Action::Edit(Edit::Review {
+                                    node: view.project.phrases.id(f.node).to_string(),
+                                    status: ReviewStatus::Approved,
+                                    comment: format!(
+                                        "accepted finding {}: {}",
+                                        f.rule, f.explanation
+                                    ),
+                                }));
+                            }
+                        });
+                    });
+                    let _ = i;
+                }
+            });
+        actions
+    }
+}
