@@ -29,7 +29,9 @@ fn settings() -> Settings {
 }
 
 fn open(dir: &Path) -> Harness<'static, App> {
-    let app = App::new(treewright::gui::Doc::open(dir).unwrap(), settings());
+    let mut doc = treewright::gui::Doc::open(dir).unwrap();
+    doc.wait_for_audit();
+    let app = App::new(doc, settings());
     let mut h = Harness::builder()
         .with_size([1280.0, 800.0])
         .with_max_steps(12)

@@ -508,6 +508,10 @@ impl App {
             egui::Theme::Light
         });
         let mut actions = Vec::new();
+        self.doc.poll_audit();
+        if self.doc.is_auditing() {
+            ctx.request_repaint_after(Duration::from_millis(200));
+        }
 
         // closing the window with unsaved edits asks first
         if ctx.input(|i| i.viewport().close_requested()) && self.is_dirty() && !self.allow_close {

@@ -4,6 +4,8 @@
 //! override layer: an edit is checked, recorded, pushed and the effective tree re-applied.
 
 use std::path::{Path, PathBuf};
+use std::sync::Arc;
+use std::sync::mpsc::{Receiver, TryRecvError, channel};
 
 use crate::model::audit::{AuditConfig, AuditReport, Auditor, Severity};
 use crate::model::builder::BuildReport;
@@ -37,6 +39,26 @@ pub enum SignState {
     },
 }
 
+/// From this many phrases on, the first audit of a project runs on a worker thread (the
+/// window stays responsive; findings appear when it is done). Later audits are
+/// incremental and run in place.
+pub const BACKGROUND_AUDIT_FROM: usize = 5_000;
+
+enum AuditState {
+    NotStarted,
+    Running(Receiver<Auditor>),
+    Ready(Box<Auditor>),
+}
+
+/// Position of a severity in [`Doc::open_by_severity`].
+pub fn severity_index(s: Severity) -> usize {
+    match s {
+        Severity::Info => 0,
+        Severity::Warning => 1,
+        Severity::Error => 2,
+    }
+}
+
 /// The open project with its edits applied.
 pub struct Doc {
     /// The loaded project (its `tree` is the base tree).
@@ -49,9 +71,13 @@ pub struct Doc {
     pub problems: Vec<ApplyProblem>,
     /// Audit configuration from the manifest.
     pub audit_config: AuditConfig,
-    auditor: Option<Auditor>,
+    audit: AuditState,
+    approved: usize,
+    unreviewed: usize,
     /// Worst open finding severity of every phrase.
     pub worst: Vec<Option<Severity>>,
+    /// Open (not accepted) findings per severity: info, warning, error.
+    pub open_by_severity: [usize; 3],
     /// Bumped whenever the effective tree or the audit changes (views key caches on it).
     pub generation: u64,
     /// The report of the last build in this session or of `build-report.json`.
@@ -80,8 +106,11 @@ impl Doc {
             eff: None,
             problems: Vec::new(),
             audit_config,
-            auditor: None,
+            audit: AuditState::NotStarted,
+            approved: 0,
+            unreviewed: 0,
             worst: Vec::new(),
+            open_by_severity: [0; 3],
             generation: 0,
             build_report,
             tree_hash: None,
@@ -112,38 +141,118 @@ impl Doc {
         };
         let (eff, problems) = overrides::apply(base, &self.project.phrases, &self.layer.edits);
         let (g, phrases) = (&*self.project.gaussians, &self.project.phrases);
-        let report = match &mut self.auditor {
-            Some(a) => a.update(g, phrases, &eff, &problems),
-            None => self
-                .auditor
-                .insert(Auditor::new(
-                    g,
-                    phrases,
-                    &eff,
-                    &problems,
-                    self.audit_config.clone(),
-                ))
-                .report(),
-        };
-        let mut worst = vec![None; self.project.phrases.len()];
-        for f in &report.findings {
-            if f.accepted {
-                continue;
+        match &mut self.audit {
+            AuditState::Ready(a) => {
+                a.update(g, phrases, &eff, &problems);
             }
-            let w: &mut Option<Severity> = &mut worst[f.node as usize];
-            if w.is_none_or(|s| f.severity > s) {
-                *w = Some(f.severity);
+            AuditState::Running(_) => {}
+            AuditState::NotStarted if phrases.len() < BACKGROUND_AUDIT_FROM => {
+                let cfg = self.audit_config.clone();
+                self.audit =
+                    AuditState::Ready(Box::new(Auditor::new(g, phrases, &eff, &problems, cfg)));
+            }
+            AuditState::NotStarted => {
+                let (tx, rx) = channel();
+                let g = Arc::clone(&self.project.gaussians);
+                let phrases = phrases.clone();
+                let (eff, problems) = (eff.clone(), problems.clone());
+                let cfg = self.audit_config.clone();
+                std::thread::spawn(move || {
+                    // the document may be gone by the time the audit is done
+                    let _ = tx.send(Auditor::new(&g, &phrases, &eff, &problems, cfg));
+                });
+                self.audit = AuditState::Running(rx);
             }
         }
-        self.worst = worst;
+        self.update_worst();
+        let placed = eff.tree.preorder();
+        self.approved = placed
+            .iter()
+            .filter(|&&p| eff.review[p as usize] == ReviewStatus::Approved)
+            .count();
+        self.unreviewed = placed
+            .iter()
+            .filter(|&&p| eff.review[p as usize] == ReviewStatus::Unreviewed)
+            .count();
         self.tree_hash = Some(tree_hash(&eff, &self.project.phrases));
         self.eff = Some(eff);
         self.problems = problems;
     }
 
-    /// The current audit report.
+    fn update_worst(&mut self) {
+        let mut worst = vec![None; self.project.phrases.len()];
+        let mut open = [0usize; 3];
+        if let AuditState::Ready(a) = &self.audit {
+            for f in &a.report().findings {
+                if f.accepted {
+                    continue;
+                }
+                open[severity_index(f.severity)] += 1;
+                let w: &mut Option<Severity> = &mut worst[f.node as usize];
+                if w.is_none_or(|s| f.severity > s) {
+                    *w = Some(f.severity);
+                }
+            }
+        }
+        self.worst = worst;
+        self.open_by_severity = open;
+    }
+
+    /// Take the result of a background audit when it is done. Returns true when the report
+    /// changed.
+    pub fn poll_audit(&mut self) -> bool {
+        let AuditState::Running(rx) = &self.audit else {
+            return false;
+        };
+        match rx.try_recv() {
+            Ok(a) => {
+                self.finish_audit(a);
+                true
+            }
+            Err(TryRecvError::Empty) => false,
+            Err(TryRecvError::Disconnected) => {
+                self.audit = AuditState::NotStarted;
+                false
+            }
+        }
+    }
+
+    /// Block until a background audit is done (tests and benchmarks).
+    pub fn wait_for_audit(&mut self) {
+        if let AuditState::Running(rx) = &self.audit {
+            match rx.recv() {
+                Ok(a) => self.finish_audit(a),
+                Err(_) => self.audit = AuditState::NotStarted,
+            }
+        }
+    }
+
+    /// Bring a finished background audit up to date with the edits made meanwhile.
+    fn finish_audit(&mut self, mut a: Auditor) {
+        if let Some(eff) = &self.eff {
+            a.update(
+                &self.project.gaussians,
+                &self.project.phrases,
+                eff,
+                &self.problems,
+            );
+        }
+        self.audit = AuditState::Ready(Box::new(a));
+        self.update_worst();
+        self.generation += 1;
+    }
+
+    /// Whether the audit is still running in the background.
+    pub fn is_auditing(&self) -> bool {
+        matches!(self.audit, AuditState::Running(_))
+    }
+
+    /// The current audit report (none while the first audit runs in the background).
     pub fn report(&self) -> Option<&AuditReport> {
-        self.auditor.as_ref().map(Auditor::report)
+        match &self.audit {
+            AuditState::Ready(a) => Some(a.report()),
+            _ => None,
+        }
     }
 
     /// Would `edit` apply to the current effective tree? `Err` says why not.
@@ -201,34 +310,24 @@ impl Doc {
                 .map_err(|e| format!("{}: {e}", rpath.display()))?;
         }
         self.project.tree = Some(tree);
-        self.auditor = None;
+        self.audit = AuditState::NotStarted;
         self.refresh();
         Ok(())
     }
 
     /// Number of placed nodes whose review status is still unreviewed.
     pub fn unreviewed(&self) -> usize {
-        let Some(eff) = &self.eff else { return 0 };
-        eff.tree
-            .preorder()
-            .into_iter()
-            .filter(|&p| eff.review[p as usize] == ReviewStatus::Unreviewed)
-            .count()
+        self.unreviewed
     }
 
     /// Number of placed nodes approved by a reviewer.
     pub fn approved(&self) -> usize {
-        let Some(eff) = &self.eff else { return 0 };
-        eff.tree
-            .preorder()
-            .into_iter()
-            .filter(|&p| eff.review[p as usize] == ReviewStatus::Approved)
-            .count()
+        self.approved
     }
 
     /// Open findings at or above `min`.
     pub fn open_findings(&self, min: Severity) -> usize {
-        self.report().map_or(0, |r| r.open_count(min))
+        self.open_by_severity[severity_index(min)..].iter().sum()
     }
 
     /// Whether the latest sign-off matches the current tree.

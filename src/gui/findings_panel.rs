@@ -2,6 +2,8 @@
 //! sort by score. Clicking a finding selects and reveals its node; the buttons apply the
 //! suggested fix (one undoable edit) or accept the node as it is (a review edit).
 
+use std::collections::HashMap;
+
 use egui::{RichText, Sense};
 
 use crate::model::audit::{Finding, Severity};
@@ -32,6 +34,18 @@ pub struct FindingsPanel {
     pub show_accepted: bool,
     /// Order.
     pub sort: Sort,
+    cache: Option<Cached>,
+}
+
+/// Filtered finding indices and rule names, recomputed only when the audit or a filter
+/// changes (a big tree has tens of thousands of findings).
+struct Cached {
+    key: (u64, Option<&'static str>, Severity, bool, Sort),
+    rules: Vec<&'static str>,
+    shown: Vec<usize>,
+    open: usize,
+    /// Whether each suggested fix applies now (checked lazily, only for rows drawn).
+    fix_ok: HashMap<usize, Option<String>>,
 }
 
 impl Default for FindingsPanel {
@@ -41,6 +55,7 @@ impl Default for FindingsPanel {
             min_severity: Severity::Info,
             show_accepted: false,
             sort: Sort::Rank,
+            cache: None,
         }
     }
 }
@@ -54,18 +69,48 @@ fn severity_name(s: Severity) -> &'static str {
 }
 
 impl FindingsPanel {
-    /// The findings shown with the current filters, in display order.
-    pub fn filtered<'a>(&self, findings: &'a [Finding]) -> Vec<&'a Finding> {
-        let mut v: Vec<&Finding> = findings
-            .iter()
-            .filter(|f| f.severity >= self.min_severity)
-            .filter(|f| self.rule.is_none_or(|r| f.rule == r))
-            .filter(|f| self.show_accepted || !f.accepted)
+    /// Indices of the findings shown with the current filters, in display order.
+    pub fn filtered(&self, findings: &[Finding]) -> Vec<usize> {
+        let mut v: Vec<usize> = (0..findings.len())
+            .filter(|&i| {
+                let f = &findings[i];
+                f.severity >= self.min_severity
+                    && self.rule.is_none_or(|r| f.rule == r)
+                    && (self.show_accepted || !f.accepted)
+            })
             .collect();
         if self.sort == Sort::Score {
-            v.sort_by(|a, b| b.score.total_cmp(&a.score));
+            v.sort_by(|&a, &b| {
+                findings[b]
+                    .score
+                    .total_cmp(&findings[a].score)
+                    .then(a.cmp(&b))
+            });
         }
         v
+    }
+
+    fn refresh(&mut self, view: &ViewCtx, findings: &[Finding]) {
+        let key = (
+            view.generation,
+            self.rule,
+            self.min_severity,
+            self.show_accepted,
+            self.sort,
+        );
+        if self.cache.as_ref().is_some_and(|c| c.key == key) {
+            return;
+        }
+        let mut rules: Vec<&'static str> = findings.iter().map(|f| f.rule).collect();
+        rules.sort_unstable();
+        rules.dedup();
+        self.cache = Some(Cached {
+            key,
+            rules,
+            shown: self.filtered(findings),
+            open: findings.iter().filter(|f| !f.accepted).count(),
+            fix_ok: HashMap::new(),
+        });
     }
 
     /// Draw the panel.
@@ -74,12 +119,25 @@ impl FindingsPanel {
         let mut actions = Vec::new();
         ui.heading("Findings");
         let Some(report) = view.report else {
-            ui.label("No audit yet: the project needs a tree.");
+            if view.doc.is_auditing() {
+                ui.horizontal(|ui| {
+                    ui.spinner();
+                    ui.label(format!(
+                        "Auditing {} phrases in the background; you can browse and edit meanwhile.",
+                        view.project.phrases.len()
+                    ));
+                });
+            } else {
+                ui.label("No audit yet: the project needs a tree.");
+            }
             return actions;
         };
-        let mut rules: Vec<&'static str> = report.findings.iter().map(|f| f.rule).collect();
-        rules.sort_unstable();
-        rules.dedup();
+        self.refresh(view, &report.findings);
+        let rules = self
+            .cache
+            .as_ref()
+            .map(|c| c.rules.clone())
+            .unwrap_or_default();
         ui.horizontal_wrapped(|ui| {
             egui::ComboBox::new("finding-rule", "rule")
                 .selected_text(self.rule.unwrap_or("all rules"))
@@ -103,12 +161,15 @@ impl FindingsPanel {
             ui.radio_value(&mut self.sort, Sort::Score, "score");
             ui.checkbox(&mut self.show_accepted, "show accepted");
         });
-        let shown = self.filtered(&report.findings);
+        self.refresh(view, &report.findings);
+        let Some(cache) = &mut self.cache else {
+            return actions;
+        };
         ui.label(format!(
             "{} shown of {} ({} open)",
-            shown.len(),
+            cache.shown.len(),
             report.findings.len(),
-            report.open_count(Severity::Info)
+            cache.open
         ));
         let eff = view.eff;
         let label = |p| match eff {
@@ -119,8 +180,9 @@ impl FindingsPanel {
             .id_salt("findings-rows")
             .max_height(list_height)
             .auto_shrink([false, false])
-            .show_rows(ui, ROW_HEIGHT, shown.len(), |ui, range| {
-                for (i, f) in shown[range.clone()].iter().enumerate() {
+            .show_rows(ui, ROW_HEIGHT, cache.shown.len(), |ui, range| {
+                for &i in &cache.shown[range] {
+                    let f = &report.findings[i];
                     let selected = view.selection.first() == Some(&f.node);
                     let frame = egui::Frame::group(ui.style()).inner_margin(2.0);
                     frame.show(ui, |ui| {
@@ -163,7 +225,11 @@ impl FindingsPanel {
                             if let Some(s) = &f.suggestion
                                 && let Some(edit) = &s.edit
                             {
-                                let why = (view.check)(edit).err();
+                                let why = cache
+                                    .fix_ok
+                                    .entry(i)
+                                    .or_insert_with(|| (view.check)(edit).err())
+                                    .clone();
                                 let b = ui
                                     .add_enabled(
                                         why.is_none(),
@@ -200,7 +266,6 @@ impl FindingsPanel {
                             }
                         });
                     });
-                    let _ = i;
                 }
             });
         actions

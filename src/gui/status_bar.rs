@@ -5,7 +5,7 @@ use crate::model::audit::Severity;
 
 use super::app::ViewCtx;
 use super::badges;
-use super::doc::SignState;
+use super::doc::{SignState, severity_index};
 
 /// Draw the status bar.
 pub fn ui(ui: &mut egui::Ui, view: &ViewCtx, message: Option<&(String, bool)>) {
@@ -22,17 +22,11 @@ pub fn ui(ui: &mut egui::Ui, view: &ViewCtx, message: Option<&(String, bool)>) {
             }
         }
         ui.separator();
-        if let Some(r) = view.report {
-            let count = |s: Severity| {
-                r.findings
-                    .iter()
-                    .filter(|f| !f.accepted && f.severity == s)
-                    .count()
-            };
+        if view.report.is_some() {
             for s in [Severity::Error, Severity::Warning, Severity::Info] {
                 let (t, tip) = badges::severity(s);
                 ui.label(t).on_hover_text(tip);
-                ui.label(format!("{}", count(s)));
+                ui.label(format!("{}", doc.open_by_severity[severity_index(s)]));
             }
             ui.label("open findings");
             ui.separator();

@@ -1,5 +1,7 @@
 //! Searchable picker of a target node for "Reparent to…" and "Merge into…".
 
+use std::collections::HashMap;
+
 use egui::{Id, Modal};
 
 use crate::model::PhraseId;
@@ -20,6 +22,10 @@ pub struct PickerDialog {
     query: String,
     target: Option<PhraseId>,
     focused: bool,
+    /// Candidates for (query, generation).
+    candidates: Option<((String, u64), Vec<PhraseId>)>,
+    /// Why a target is refused (None = allowed), for the current generation.
+    refusals: (u64, HashMap<PhraseId, Option<String>>),
 }
 
 impl PickerDialog {
@@ -36,6 +42,8 @@ impl PickerDialog {
             query: String::new(),
             target: None,
             focused: false,
+            candidates: None,
+            refusals: (0, HashMap::new()),
         }
     }
 
@@ -87,14 +95,26 @@ impl PickerDialog {
                 self.focused = true;
             }
             let q = self.query.trim().to_lowercase();
-            let candidates: Vec<PhraseId> = eff
-                .tree
-                .preorder()
-                .into_iter()
-                .filter(|p| !self.nodes.contains(p))
-                .filter(|&p| q.is_empty() || eff.label(p).to_lowercase().contains(&q))
-                .take(MAX_LISTED)
-                .collect();
+            let key = (q.clone(), view.generation);
+            if self.candidates.as_ref().is_none_or(|c| c.0 != key) {
+                let list: Vec<PhraseId> = eff
+                    .tree
+                    .preorder()
+                    .into_iter()
+                    .filter(|p| !self.nodes.contains(p))
+                    .filter(|&p| q.is_empty() || eff.label(p).to_lowercase().contains(&q))
+                    .take(MAX_LISTED)
+                    .collect();
+                self.candidates = Some((key, list));
+            }
+            if self.refusals.0 != view.generation {
+                self.refusals = (view.generation, HashMap::new());
+            }
+            let candidates = self
+                .candidates
+                .as_ref()
+                .map(|c| c.1.clone())
+                .unwrap_or_default();
             ui.label(format!("{} candidate(s) shown", candidates.len()));
             egui::ScrollArea::vertical()
                 .id_salt("picker-list")
@@ -102,7 +122,12 @@ impl PickerDialog {
                 .show_rows(ui, 20.0, candidates.len(), |ui, range| {
                     for &p in &candidates[range] {
                         let edits = self.edits(view, p);
-                        let why = edits.iter().find_map(|e| (view.check)(e).err());
+                        let why = self
+                            .refusals
+                            .1
+                            .entry(p)
+                            .or_insert_with(|| edits.iter().find_map(|e| (view.check)(e).err()))
+                            .clone();
                         let parent = eff
                             .tree
                             .parent(p)
