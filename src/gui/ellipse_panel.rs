@@ -240,11 +240,21 @@ impl EllipsePanel {
             ui.checkbox(&mut self.with_children, "children");
             ui.checkbox(&mut self.with_siblings, "siblings");
             ui.checkbox(&mut self.labels, "labels");
-            ui.separator();
+        });
+        ui.horizontal_wrapped(|ui| {
             ui.label("Ellipses:");
             ui.checkbox(&mut self.levels[0], "1σ");
             ui.checkbox(&mut self.levels[1], "2σ");
             ui.checkbox(&mut self.levels[2], "3σ");
+            let [a, b, c] = projection::sigma_levels().map(|p| p * 100.0);
+            ui.label(format!("({a:.0} %, {b:.0} %, {c:.0} % of the 2-D mass)"));
+            if ui
+                .button("Fit view")
+                .on_hover_text("Zoom to show everything (or double-click the plot)")
+                .clicked()
+            {
+                self.fit = true;
+            }
         });
         ui.horizontal_wrapped(|ui| {
             ui.label("Projection:");
@@ -268,13 +278,6 @@ impl EllipsePanel {
                 let max = d.saturating_sub(1);
                 ui.add(egui::DragValue::new(a).range(0..=max).prefix("x: dim "));
                 ui.add(egui::DragValue::new(b).range(0..=max).prefix("y: dim "));
-            }
-            if ui
-                .button("Fit view")
-                .on_hover_text("Zoom to show everything (or double-click the plot)")
-                .clicked()
-            {
-                self.fit = true;
             }
         });
     }
@@ -370,10 +373,12 @@ impl EllipsePanel {
                         continue;
                     }
                     let pts: PlotPoints = g2.ellipse(alpha, OUTLINE_POINTS).into();
-                    let width = if role == Role::Selected { 2.0 } else { 1.2 };
+                    // one colour per role (so the legend shows it); the 1σ line is the widest
+                    let base = if role == Role::Selected { 2.4 } else { 1.6 };
+                    let width = base - 0.4 * k as f32;
                     pui.line(
                         Line::new(role.name(), pts)
-                            .color(role.colour().gamma_multiply(1.0 - 0.25 * k as f32))
+                            .color(role.colour())
                             .style(role.line_style())
                             .width(width)
                             .allow_hover(false)
@@ -390,14 +395,11 @@ impl EllipsePanel {
                 );
                 if labels {
                     pui.text(
-                        Text::new(
-                            role.name(),
-                            PlotPoint::new(g2.mean[0], g2.mean[1]),
-                            label_of(p),
-                        )
-                        .anchor(egui::Align2::LEFT_BOTTOM)
-                        .allow_hover(false)
-                        .id(("label", p)),
+                        // unnamed: labels stay out of the legend
+                        Text::new("", PlotPoint::new(g2.mean[0], g2.mean[1]), label_of(p))
+                            .anchor(egui::Align2::LEFT_BOTTOM)
+                            .allow_hover(false)
+                            .id(("label", p)),
                     );
                 }
             }

@@ -22,6 +22,11 @@ pub fn ui(ui: &mut egui::Ui, view: &ViewCtx, message: Option<&(String, bool)>) {
             }
         }
         ui.separator();
+        if doc.is_auditing() {
+            ui.spinner();
+            ui.label("auditing…");
+            ui.separator();
+        }
         if view.report.is_some() {
             for s in [Severity::Error, Severity::Warning, Severity::Info] {
                 let (t, tip) = badges::severity(s);
