@@ -484,3 +484,92 @@ fn settings_persist_as_json_and_tolerate_missing_fields() {
     let partial: Settings = serde_json::from_str(r#"{"dark": true}"#).unwrap();
     assert!(partial.dark && partial.show_tree);
 }
+
+#[test]
+fn merge_a_near_duplicate_through_search_and_the_picker() {
+    let (_t, dir) = demo_dir();
+    let mut h = open(&dir);
+    h.key_press_modifiers(Modifiers::COMMAND, Key::F);
+    h.run();
+    h.get_by_role(Role::TextInput)
+        .type_text("drought resistant");
+    h.run();
+    h.get_by_label("Next match").click();
+    h.run();
+    let dr = id_of(&h, "drought-resistant");
+    assert_eq!(h.state().selection, vec![dr]);
+    h.get_all_by_label("drought resistant")
+        .next()
+        .unwrap()
+        .click_secondary();
+    h.run();
+    h.get_by_label("Merge into…").click();
+    h.run();
+    h.event(egui::Event::Text("drought tol".into()));
+    h.run();
+    h.get_by_label("drought tolerant  (under perennials)")
+        .click();
+    h.run();
+    h.get_by_label("Merge").click();
+    h.run();
+    let dt = id_of(&h, "drought-tolerant");
+    let eff = h.state().doc.eff.as_ref().unwrap();
+    assert_eq!(eff.alias_of[dr as usize], Some(dt));
+    assert_eq!(eff.aliases[dt as usize], vec![dr]);
+    // the merged-alias badge is shown on the target's row
+    h.get_by_label("+1");
+}
+
+#[test]
+fn the_diff_window_lists_what_the_edits_changed() {
+    let (_t, dir) = demo_dir();
+    let mut h = open(&dir);
+    let e = Edit::Reparent {
+        node: "bird-netting".into(),
+        parent: "animal-deterrents".into(),
+    };
+    h.state_mut().apply(treewright::gui::Action::Edit(e));
+    h.run();
+    menu(&mut h, "Tree", "Compare trees…");
+    h.get_by_label("1 change(s)");
+    h.get_by_label_contains("bird-netting: cushions-and-textiles -> animal-deterrents");
+}
+
+#[test]
+fn dragging_a_row_onto_another_reparents_it() {
+    let (_t, dir) = demo_dir();
+    let mut h = open(&dir);
+    let target = id_of(&h, "animal-deterrents");
+    let node = id_of(&h, "bird-netting");
+    h.state_mut().apply(treewright::gui::Action::Reveal(target));
+    h.state_mut().apply(treewright::gui::Action::Reveal(node));
+    h.run();
+    let src = h
+        .get_all_by_label("bird netting")
+        .next()
+        .unwrap()
+        .rect()
+        .center();
+    let dst = h
+        .get_all_by_label_contains("animal deterrents  (")
+        .next()
+        .unwrap()
+        .rect()
+        .center();
+    h.hover_at(src);
+    h.run();
+    h.drag_at(src);
+    h.step();
+    for k in 1..=6 {
+        let t = k as f32 / 6.0;
+        h.hover_at(src + (dst - src) * t);
+        h.step();
+    }
+    h.drop_at(dst);
+    h.run();
+    assert_eq!(
+        parent_id(&h, "bird-netting").as_deref(),
+        Some("animal-deterrents")
+    );
+    assert_eq!(h.state().doc.layer.edits.len(), 1);
+}
