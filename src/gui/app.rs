@@ -63,7 +63,10 @@ impl App {
                 let g = &self.project.gaussians;
                 ui.heading(self.project.phrases.label(p));
                 ui.label(format!("id: {}", self.project.phrases.id(p)));
-                ui.label(format!("generality (ln det Σ): {:.3}", g.log_det(p as usize)));
+                ui.label(format!(
+                    "generality (ln det Σ): {:.3}",
+                    g.log_det(p as usize)
+                ));
                 ui.label(format!("entropy: {:.3} nats", g.entropy(p as usize)));
             }
             None => {

@@ -182,6 +182,9 @@ mod tests {
             r#"{"op":"merge","sources":["a","b"],"into":"c","author":"ana","time":"2026-12-02T10:00:00Z"}"#
         );
         assert_eq!(serde_json::from_str::<EditRecord>(&s).unwrap(), r);
-        assert_eq!(ReviewStatus::parse("needs-work"), Some(ReviewStatus::NeedsWork));
+        assert_eq!(
+            ReviewStatus::parse("needs-work"),
+            Some(ReviewStatus::NeedsWork)
+        );
     }
 }

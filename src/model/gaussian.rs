@@ -124,10 +124,9 @@ impl GaussianView<'_> {
     pub fn cov_matrix(&self) -> DMatrix<f64> {
         let d = self.dim();
         match self.cov {
-            CovView::Diag(v) => DMatrix::from_diagonal(&DVector::from_iterator(
-                d,
-                v.iter().map(|&x| x as f64),
-            )),
+            CovView::Diag(v) => {
+                DMatrix::from_diagonal(&DVector::from_iterator(d, v.iter().map(|&x| x as f64)))
+            }
             CovView::Full(_) => {
                 let l = self.chol_matrix();
                 &l * l.transpose()
@@ -353,7 +352,10 @@ impl Gaussians {
 
     /// Bytes held by the embedding arrays (for memory reports).
     pub fn heap_bytes(&self) -> usize {
-        self.means.len() * 4 + self.variances.len() * 4 + self.chol.len() * 8 + self.log_det.len() * 8
+        self.means.len() * 4
+            + self.variances.len() * 4
+            + self.chol.len() * 8
+            + self.log_det.len() * 8
     }
 }
 
@@ -829,7 +831,11 @@ mod tests {
         close(bhattacharyya_distance(&p.view(), &q.view()), m2 / 8.0, 1e-9);
         close(kl(&p.view(), &q.view()), m2 / 2.0, 1e-9);
         let (pf, qf) = (full_of(&p), full_of(&q));
-        close(bhattacharyya_distance(&pf.view(), &qf.view()), m2 / 8.0, 1e-9);
+        close(
+            bhattacharyya_distance(&pf.view(), &qf.view()),
+            m2 / 8.0,
+            1e-9,
+        );
     }
 
     #[test]
@@ -869,7 +875,11 @@ mod tests {
         let q = diag(&[1.0], &[3.0]);
         // N(0; 1, 4) = exp(−1/8)/√(8π)
         let want = (-1.0f64 / 8.0).exp() / (8.0 * std::f64::consts::PI).sqrt();
-        close(log_expected_likelihood(&p.view(), &q.view()), want.ln(), 1e-12);
+        close(
+            log_expected_likelihood(&p.view(), &q.view()),
+            want.ln(),
+            1e-12,
+        );
     }
 
     #[test]
@@ -941,7 +951,9 @@ mod tests {
         };
         let n = 40_000;
         let mut vals = Vec::with_capacity(n);
-        sample_points(&pf.view(), n, 5, |x| vals.push(log_pdf(x, &pf) - log_pdf(x, &qf)));
+        sample_points(&pf.view(), n, 5, |x| {
+            vals.push(log_pdf(x, &pf) - log_pdf(x, &qf))
+        });
         let mean = vals.iter().sum::<f64>() / n as f64;
         let var = vals.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / n as f64;
         let se = (var / n as f64).sqrt();

@@ -165,8 +165,8 @@ mod tests {
     #[test]
     fn ids_are_derived_from_labels() {
         assert_eq!(id_from_label("Peat  Free compost"), "peat-free-compost");
-        let t = PhraseTable::from_records(&[rec(None, "Shade loving"), rec(Some("x"), "y")])
-            .unwrap();
+        let t =
+            PhraseTable::from_records(&[rec(None, "Shade loving"), rec(Some("x"), "y")]).unwrap();
         assert_eq!(t.id(0), "shade-loving");
         assert_eq!(t.find("Shade Loving"), Some(0));
         assert_eq!(t.find("x"), Some(1));
@@ -174,8 +174,8 @@ mod tests {
 
     #[test]
     fn duplicates_are_refused() {
-        let e = PhraseTable::from_records(&[rec(None, "a b"), rec(Some("a-b"), "other")])
-            .unwrap_err();
+        let e =
+            PhraseTable::from_records(&[rec(None, "a b"), rec(Some("a-b"), "other")]).unwrap_err();
         assert_eq!(
             e.to_string(),
             "duplicate id \"a-b\" at rows 0 and 1".to_string()

@@ -221,7 +221,9 @@ pub fn resolve_inside(dir: &Path, rel: &str, field: &str) -> Result<PathBuf, Loa
                 return Err(LoadError::invalid(
                     &manifest,
                     field,
-                    format!("\"{rel}\" is an absolute path; paths must be relative to the project folder"),
+                    format!(
+                        "\"{rel}\" is an absolute path; paths must be relative to the project folder"
+                    ),
                 ));
             }
             Component::ParentDir => {
@@ -266,12 +268,19 @@ pub fn read_json<T: serde::de::DeserializeOwned>(path: &Path) -> Result<T, LoadE
 }
 
 /// Parse JSON bytes, naming `file` on error.
-pub fn parse_json<T: serde::de::DeserializeOwned>(bytes: &[u8], file: &str) -> Result<T, LoadError> {
-    serde_json::from_slice(bytes).map_err(|e| LoadError::Json {
-        file: file.to_string(),
-        line: e.line(),
-        column: e.column(),
-        message: e.to_string(),
+pub fn parse_json<T: serde::de::DeserializeOwned>(
+    bytes: &[u8],
+    file: &str,
+) -> Result<T, LoadError> {
+    serde_json::from_slice(bytes).map_err(|e| {
+        let full = e.to_string();
+        let suffix = format!(" at line {} column {}", e.line(), e.column());
+        LoadError::Json {
+            file: file.to_string(),
+            line: e.line(),
+            column: e.column(),
+            message: full.strip_suffix(&suffix).unwrap_or(&full).to_string(),
+        }
     })
 }
 
@@ -442,8 +451,12 @@ impl Project {
 
     /// The override layer file.
     pub fn overrides_path(&self) -> PathBuf {
-        self.dir
-            .join(self.manifest.overrides.as_deref().unwrap_or("overrides.json"))
+        self.dir.join(
+            self.manifest
+                .overrides
+                .as_deref()
+                .unwrap_or("overrides.json"),
+        )
     }
 }
 
@@ -573,7 +586,10 @@ fn load_embeddings(
                         if m.len() != d || m.iter().any(|r| r.len() != d) {
                             return Err(LoadError::invalid(
                                 &file,
-                                format!("covariances[{i}] (phrase \"{}\")", phrases.id(i as PhraseId)),
+                                format!(
+                                    "covariances[{i}] (phrase \"{}\")",
+                                    phrases.id(i as PhraseId)
+                                ),
                                 format!("is not a {d}×{d} matrix"),
                             ));
                         }
@@ -625,7 +641,11 @@ fn load_users(path: &Path, d: usize) -> Result<Vec<UserProfile>, LoadError> {
     for (i, r) in recs.into_iter().enumerate() {
         let field = format!("user \"{}\" (row {i})", r.id);
         if let Some(first) = seen.insert(r.id.clone(), i) {
-            return Err(LoadError::invalid(&file, field, format!("duplicate id (first at row {first})")));
+            return Err(LoadError::invalid(
+                &file,
+                field,
+                format!("duplicate id (first at row {first})"),
+            ));
         }
         if r.mean.len() != d || r.variance.len() != d {
             return Err(LoadError::invalid(
@@ -638,8 +658,13 @@ fn load_users(path: &Path, d: usize) -> Result<Vec<UserProfile>, LoadError> {
                 ),
             ));
         }
-        let g = OwnedGaussian::diagonal(&r.mean, &r.variance)
-            .map_err(|e| LoadError::invalid(&file, field.clone(), e.to_string().replacen("row 0: ", "", 1)))?;
+        let g = OwnedGaussian::diagonal(&r.mean, &r.variance).map_err(|e| {
+            LoadError::invalid(
+                &file,
+                field.clone(),
+                e.to_string().replacen("row 0: ", "", 1),
+            )
+        })?;
         out.push(UserProfile {
             id: r.id,
             label: r.label,
@@ -667,7 +692,9 @@ pub fn load_tree(path: &Path, phrases: &PhraseTable) -> Result<Tree, LoadError> 
 }
 
 fn parse_tree_csv(bytes: &[u8], file: &str) -> Result<TreeFile, LoadError> {
-    let mut rdr = csv::ReaderBuilder::new().has_headers(true).from_reader(bytes);
+    let mut rdr = csv::ReaderBuilder::new()
+        .has_headers(true)
+        .from_reader(bytes);
     let headers = rdr
         .headers()
         .map_err(|e| LoadError::invalid(file, "header", e.to_string()))?
@@ -687,11 +714,16 @@ fn parse_tree_csv(bytes: &[u8], file: &str) -> Result<TreeFile, LoadError> {
     let mut roots = Vec::new();
     for (i, rec) in rdr.records().enumerate() {
         let line = i + 2;
-        let rec = rec.map_err(|e| LoadError::invalid(file, format!("line {line}"), e.to_string()))?;
+        let rec =
+            rec.map_err(|e| LoadError::invalid(file, format!("line {line}"), e.to_string()))?;
         let c = rec.get(ci).unwrap_or("").trim().to_string();
         let p = rec.get(pi).unwrap_or("").trim().to_string();
         if c.is_empty() {
-            return Err(LoadError::invalid(file, format!("line {line}"), "child is empty"));
+            return Err(LoadError::invalid(
+                file,
+                format!("line {line}"),
+                "child is empty",
+            ));
         }
         if p.is_empty() {
             roots.push(c);
@@ -715,7 +747,11 @@ fn parse_tree_csv(bytes: &[u8], file: &str) -> Result<TreeFile, LoadError> {
         roots = cand.into_iter().cloned().collect();
     }
     match roots.len() {
-        0 => Err(LoadError::invalid(file, "root", "no root: every node has a parent (a cycle?)")),
+        0 => Err(LoadError::invalid(
+            file,
+            "root",
+            "no root: every node has a parent (a cycle?)",
+        )),
         1 => Ok(TreeFile {
             root: roots.remove(0),
             parent,
@@ -769,7 +805,11 @@ impl ProjectWriter<'_> {
             overrides: Some("overrides.json".into()),
             audit: None,
         };
-        fsutil::atomic_write(&dir.join(MANIFEST_NAME), &fsutil::to_json_pretty(&manifest), false)?;
+        fsutil::atomic_write(
+            &dir.join(MANIFEST_NAME),
+            &fsutil::to_json_pretty(&manifest),
+            false,
+        )?;
         fsutil::atomic_write(
             &dir.join("phrases.json"),
             &fsutil::to_json_pretty(&self.phrases.records()),
@@ -783,7 +823,11 @@ impl ProjectWriter<'_> {
             fsutil::atomic_write(&dir.join(name), &buf, false)?;
         }
         if !self.users.is_empty() {
-            fsutil::atomic_write(&dir.join("users.json"), &fsutil::to_json_pretty(&self.users), false)?;
+            fsutil::atomic_write(
+                &dir.join("users.json"),
+                &fsutil::to_json_pretty(&self.users),
+                false,
+            )?;
         }
         if let Some(t) = self.tree {
             fsutil::atomic_write(&dir.join("tree.json"), &fsutil::to_json_pretty(t), false)?;

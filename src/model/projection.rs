@@ -139,7 +139,11 @@ fn explained(scatter: &DMatrix<f64>, axes: &[Vec<f64>; 2]) -> [f64; 2] {
 fn top_eigvecs(m: &DMatrix<f64>, count: usize) -> Vec<Vec<f64>> {
     let eig = m.clone().symmetric_eigen();
     let mut idx: Vec<usize> = (0..eig.eigenvalues.len()).collect();
-    idx.sort_by(|&a, &b| eig.eigenvalues[b].total_cmp(&eig.eigenvalues[a]).then(a.cmp(&b)));
+    idx.sort_by(|&a, &b| {
+        eig.eigenvalues[b]
+            .total_cmp(&eig.eigenvalues[a])
+            .then(a.cmp(&b))
+    });
     idx.into_iter()
         .take(count)
         .map(|i| {

@@ -346,8 +346,12 @@ mod tests {
     #[test]
     fn builds_and_measures() {
         let t = table(&["root", "a", "b", "c", "loose"]);
-        let tree = Tree::from_id_map(&t, "root", &map(&[("a", "root"), ("b", "root"), ("c", "a")]))
-            .unwrap();
+        let tree = Tree::from_id_map(
+            &t,
+            "root",
+            &map(&[("a", "root"), ("b", "root"), ("c", "a")]),
+        )
+        .unwrap();
         assert_eq!(tree.node_count(), 4);
         assert_eq!(tree.unplaced(), vec![4]);
         assert_eq!(tree.max_depth(), 2);
@@ -357,7 +361,10 @@ mod tests {
         assert!(tree.is_ancestor(0, 3) && !tree.is_ancestor(2, 3));
         assert_eq!(tree.subtree_sizes()[0], 4);
         let back = tree.to_file(&t);
-        assert_eq!(Tree::from_id_map(&t, &back.root, &back.parent).unwrap(), tree);
+        assert_eq!(
+            Tree::from_id_map(&t, &back.root, &back.parent).unwrap(),
+            tree
+        );
     }
 
     #[test]
@@ -368,7 +375,10 @@ mod tests {
         let two = Tree::from_id_map(&t, "root", &map(&[("a", "root"), ("b", "c")])).unwrap_err();
         assert!(matches!(two, TreeError::SeveralRoots { .. }), "{two}");
         let unk = Tree::from_id_map(&t, "root", &map(&[("a", "zzz")])).unwrap_err();
-        assert_eq!(unk.to_string(), "parent of \"a\": unknown phrase id \"zzz\"");
+        assert_eq!(
+            unk.to_string(),
+            "parent of \"a\": unknown phrase id \"zzz\""
+        );
         let missing = Tree::from_id_map(&t, "nope", &map(&[])).unwrap_err();
         assert!(matches!(missing, TreeError::UnknownId { .. }));
         let rp = Tree::from_id_map(&t, "root", &map(&[("root", "a")])).unwrap_err();
