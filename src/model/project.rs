@@ -344,7 +344,11 @@ fn gauss_err(file: &str, phrases: &PhraseTable, e: GaussError) -> LoadError {
     let (row, msg) = match &e {
         GaussError::NonFinite { row, .. }
         | GaussError::NonPositiveVariance { row, .. }
-        | GaussError::NotPositiveDefinite { row, .. } => (Some(*row), e.to_string()),
+        | GaussError::NotPositiveDefinite { row, .. } => {
+            let full = e.to_string();
+            let prefix = format!("row {row}: ");
+            (Some(*row), full.strip_prefix(&prefix).unwrap_or(&full).to_string())
+        }
         GaussError::Shape(_) => (None, e.to_string()),
     };
     match row {
