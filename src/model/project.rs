@@ -347,7 +347,10 @@ fn gauss_err(file: &str, phrases: &PhraseTable, e: GaussError) -> LoadError {
         | GaussError::NotPositiveDefinite { row, .. } => {
             let full = e.to_string();
             let prefix = format!("row {row}: ");
-            (Some(*row), full.strip_prefix(&prefix).unwrap_or(&full).to_string())
+            (
+                Some(*row),
+                full.strip_prefix(&prefix).unwrap_or(&full).to_string(),
+            )
         }
         GaussError::Shape(_) => (None, e.to_string()),
     };
