@@ -458,16 +458,29 @@ impl BulkRow {
 /// Top broader offer of every node of the effective tree (the root excluded), with flags.
 /// Uses the bounded candidate pool (see the module docs); runs in parallel.
 pub fn bulk_check(ctx: &SuggestCtx, users: &[UserProfile]) -> Vec<BulkRow> {
+    let done = std::sync::atomic::AtomicUsize::new(0);
+    let cancel = std::sync::atomic::AtomicBool::new(false);
+    bulk_check_with(ctx, users, &done, &cancel).unwrap_or_default()
+}
+
+/// [`bulk_check`] with a progress counter (phrases done) and a cancel flag; `None` when
+/// cancelled. Rows come in tree pre-order.
+pub fn bulk_check_with(
+    ctx: &SuggestCtx,
+    users: &[UserProfile],
+    done: &std::sync::atomic::AtomicUsize,
+    cancel: &std::sync::atomic::AtomicBool,
+) -> Option<Vec<BulkRow>> {
     use rayon::prelude::*;
+    use std::sync::atomic::Ordering;
     let tree = &ctx.eff.tree;
-    let nodes: Vec<PhraseId> = tree
-        .preorder()
-        .into_iter()
-        .filter(|&p| tree.parent(p).is_some())
-        .collect();
-    nodes
+    let nodes = bulk_nodes(ctx.eff);
+    let rows: Vec<Option<BulkRow>> = nodes
         .par_iter()
         .map(|&p| {
+            if cancel.load(Ordering::Relaxed) {
+                return None;
+            }
             let ranked = rank(ctx.broader(p, false), ctx.params.top.max(1), None, ctx);
             let top = ranked.first();
             let mut differ = 0usize;
@@ -484,7 +497,8 @@ pub fn bulk_check(ctx: &SuggestCtx, users: &[UserProfile]) -> Vec<BulkRow> {
                 differ as f64 / users.len() as f64
             };
             let containment = top.map_or(0.0, |c| c.containment);
-            BulkRow {
+            done.fetch_add(1, Ordering::Relaxed);
+            Some(BulkRow {
                 id: ctx.phrases.id(p).to_string(),
                 label: ctx.eff.label(p).to_string(),
                 top_broader: top.map_or(String::new(), |c| c.id.clone()),
@@ -494,8 +508,21 @@ pub fn bulk_check(ctx: &SuggestCtx, users: &[UserProfile]) -> Vec<BulkRow> {
                 weak_containment: containment < ctx.params.min_containment,
                 user_disagreement: share,
                 users_disagree: share > ctx.params.max_user_disagreement,
-            }
+            })
         })
+        .collect();
+    if cancel.load(Ordering::Relaxed) {
+        return None;
+    }
+    rows.into_iter().collect()
+}
+
+/// The phrases the bulk check covers: every node of the effective tree but the root.
+pub fn bulk_nodes(eff: &EffectiveTree) -> Vec<PhraseId> {
+    let tree = &eff.tree;
+    tree.preorder()
+        .into_iter()
+        .filter(|&p| tree.parent(p).is_some())
         .collect()
 }
 
