@@ -10,6 +10,7 @@ use clap::{Parser, Subcommand};
 
 pub mod info;
 pub mod progress;
+pub mod sample;
 pub mod suggest;
 
 /// Exit code for "a check failed".
@@ -42,6 +43,8 @@ pub enum Command {
     Info(info::InfoArgs),
     /// Preview the broader / narrower / sibling offers for a phrase, or check them all.
     Suggest(suggest::SuggestArgs),
+    /// Write the Fernhollow demo project or a synthetic project.
+    Sample(sample::SampleArgs),
 }
 
 /// A failed subcommand: the message to print and the exit code.
@@ -105,6 +108,7 @@ pub fn run(command: Command) -> ExitCode {
     let result = match command {
         Command::Info(a) => info::run(&a),
         Command::Suggest(a) => suggest::run(&a),
+        Command::Sample(a) => sample::run(&a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

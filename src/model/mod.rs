@@ -9,6 +9,7 @@ pub mod info;
 pub mod phrase;
 pub mod project;
 pub mod projection;
+pub mod sample;
 pub mod suggest;
 pub mod tree;
 
