@@ -10,6 +10,8 @@ use clap::{Parser, Subcommand};
 
 pub mod info;
 pub mod progress;
+pub mod sample;
+pub mod suggest;
 
 /// Exit code for "a check failed".
 pub const EXIT_CHECK_FAILED: u8 = 1;
@@ -39,6 +41,10 @@ pub struct Cli {
 pub enum Command {
     /// Summarise a project: phrases, dimension, generality, tree shape, unplaced phrases.
     Info(info::InfoArgs),
+    /// Preview the broader / narrower / sibling offers for a phrase, or check them all.
+    Suggest(suggest::SuggestArgs),
+    /// Write the Fernhollow demo project or a synthetic project.
+    Sample(sample::SampleArgs),
 }
 
 /// A failed subcommand: the message to print and the exit code.
@@ -74,10 +80,35 @@ impl From<crate::model::LoadError> for CliError {
     }
 }
 
+/// The effective tree of a project: its base tree with the override layer applied, plus
+/// the edits that could not be applied.
+pub fn effective_tree(
+    project: &crate::model::Project,
+) -> Result<
+    (
+        crate::model::effective::EffectiveTree,
+        Vec<crate::model::effective::ApplyProblem>,
+    ),
+    CliError,
+> {
+    let base = project.tree.as_ref().ok_or_else(|| {
+        CliError::bad_input(format!(
+            "{}: the project has no tree yet (run `treewright build`)",
+            project.dir.display()
+        ))
+    })?;
+    Ok((
+        crate::model::effective::EffectiveTree::from_base(base, &project.phrases),
+        Vec::new(),
+    ))
+}
+
 /// Run a subcommand, printing errors to standard error.
 pub fn run(command: Command) -> ExitCode {
     let result = match command {
         Command::Info(a) => info::run(&a),
+        Command::Suggest(a) => suggest::run(&a),
+        Command::Sample(a) => sample::run(&a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

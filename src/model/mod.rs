@@ -12,6 +12,8 @@ pub mod kneedle;
 pub mod phrase;
 pub mod project;
 pub mod projection;
+pub mod sample;
+pub mod suggest;
 pub mod tree;
 
 pub use gaussian::{CovarianceKind, GaussianView, Gaussians, PhraseId, Similarity};
