@@ -8,6 +8,7 @@ use std::process::ExitCode;
 
 use clap::{Parser, Subcommand};
 
+pub mod build;
 pub mod info;
 pub mod progress;
 pub mod sample;
@@ -45,6 +46,8 @@ pub enum Command {
     Suggest(suggest::SuggestArgs),
     /// Write the Fernhollow demo project or a synthetic project.
     Sample(sample::SampleArgs),
+    /// Regenerate the machine-built tree from the embeddings (divisive clustering).
+    Build(build::BuildArgs),
 }
 
 /// A failed subcommand: the message to print and the exit code.
@@ -109,6 +112,7 @@ pub fn run(command: Command) -> ExitCode {
         Command::Info(a) => info::run(&a),
         Command::Suggest(a) => suggest::run(&a),
         Command::Sample(a) => sample::run(&a),
+        Command::Build(a) => build::run(&a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
