@@ -362,27 +362,34 @@ fn fast_ln(x: f64) -> f64 {
     e * std::f64::consts::LN_2 + 2.0 * f * poly
 }
 
-/// The per-dimension sums of the diagonal similarities, each with four interleaved
-/// accumulators (dimension k goes to accumulator k mod 4) that are combined in a fixed
-/// order: independent chains let the compiler vectorise, and the result is the same for
-/// every call with the same operands (swapping i and j gives the same bits).
+/// Σₖ term(k) over the per-dimension slices `[s…]` of length ≥ d, with `lanes`
+/// interleaved accumulators (dimension k goes to accumulator k mod lanes) that are added
+/// up in f64 in a fixed order: independent chains let the compiler vectorise, and the
+/// result is the same for every call with the same operands (swapping i and j gives the
+/// same bits, as every term is symmetric).
 macro_rules! lane_sum {
-    ($d:expr, |$k:ident| $term:expr) => {{
-        let d = $d;
-        let mut acc = [0.0f64; 4];
-        let full = d / 4 * 4;
+    ($t:ty, $lanes:expr, $d:expr, [$($s:ident),+], |$k:ident| $term:expr) => {{
+        let d: usize = $d;
+        let mut acc = [0.0 as $t; $lanes];
+        let full = d / $lanes * $lanes;
         let mut base = 0;
         while base < full {
-            for lane in 0..4 {
-                let $k = base + lane;
-                acc[lane] += $term;
+            // fixed-size chunks: no bounds checks, straight-line lanes the compiler vectorises
+            $(
+                let $s: &[$t; $lanes] = match $s[base..].first_chunk() {
+                    Some(c) => c,
+                    None => break,
+                };
+            )+
+            for $k in 0..$lanes {
+                acc[$k] += $term;
             }
-            base += 4;
+            base += $lanes;
         }
         for (lane, $k) in (full..d).enumerate() {
             acc[lane] += $term;
         }
-        (acc[0] + acc[1]) + (acc[2] + acc[3])
+        acc.iter().fold(0.0f64, |t, &a| t + a as f64)
     }};
 }
 
@@ -390,7 +397,7 @@ macro_rules! lane_sum {
 fn elk_sum(mi: &[f64], mj: &[f64], vi: &[f64], vj: &[f64]) -> f64 {
     let d = mi.len();
     let (mj, vi, vj) = (&mj[..d], &vi[..d], &vj[..d]);
-    lane_sum!(d, |k| {
+    lane_sum!(f64, 4, d, [mi, mj, vi, vj], |k| {
         let sum = vi[k] + vj[k];
         let delta = mi[k] - mj[k];
         fast_ln(sum) + delta * delta / sum
@@ -401,7 +408,7 @@ fn elk_sum(mi: &[f64], mj: &[f64], vi: &[f64], vj: &[f64]) -> f64 {
 fn bc_sum(mi: &[f64], mj: &[f64], vi: &[f64], vj: &[f64]) -> f64 {
     let d = mi.len();
     let (mj, vi, vj) = (&mj[..d], &vi[..d], &vj[..d]);
-    lane_sum!(d, |k| {
+    lane_sum!(f64, 4, d, [mi, mj, vi, vj], |k| {
         let bar = 0.5 * (vi[k] + vj[k]);
         let delta = mi[k] - mj[k];
         delta * delta / (8.0 * bar) + 0.5 * fast_ln(bar)
@@ -412,7 +419,7 @@ fn bc_sum(mi: &[f64], mj: &[f64], vi: &[f64], vj: &[f64]) -> f64 {
 fn kl_sum(mi: &[f64], mj: &[f64], vi: &[f64], vj: &[f64], ii: &[f64], ij: &[f64]) -> f64 {
     let d = mi.len();
     let (mj, vi, vj, ii, ij) = (&mj[..d], &vi[..d], &vj[..d], &ii[..d], &ij[..d]);
-    lane_sum!(d, |k| {
+    lane_sum!(f64, 4, d, [mi, mj, vi, vj, ii, ij], |k| {
         let delta = mi[k] - mj[k];
         vi[k] * ij[k] + vj[k] * ii[k] + delta * delta * (ii[k] + ij[k])
     })
@@ -490,7 +497,7 @@ impl<'a> SimBlock<'a> {
             }
             Similarity::Bhattacharyya => {
                 let s = bc_sum(mi, mj, vi, vj);
-                let db = (s - self.quarter_ld[i] - other.quarter_ld[j]).max(0.0);
+                let db = (s - (self.quarter_ld[i] + other.quarter_ld[j])).max(0.0);
                 (-db).exp()
             }
             Similarity::Kl => {
@@ -556,27 +563,6 @@ fn fast_ln_f32(x: f32) -> f32 {
     e * std::f32::consts::LN_2 + 2.0 * f * poly
 }
 
-/// Eight-lane f32 version of the per-dimension sums, combined in f64 in a fixed order.
-macro_rules! lane_sum_f32 {
-    ($d:expr, |$k:ident| $term:expr) => {{
-        let d = $d;
-        let mut acc = [0.0f32; 8];
-        let full = d / 8 * 8;
-        let mut base = 0;
-        while base < full {
-            for lane in 0..8 {
-                let $k = base + lane;
-                acc[lane] += $term;
-            }
-            base += 8;
-        }
-        for (lane, $k) in (full..d).enumerate() {
-            acc[lane] += $term;
-        }
-        acc.iter().map(|&a| a as f64).sum::<f64>()
-    }};
-}
-
 /// Screening scores: like [`mean_scores`] but in f32 arithmetic for diagonal covariance
 /// (the stored precision of the embeddings); used only to shortlist candidates, whose
 /// scores are then recomputed in f64.
@@ -628,7 +614,7 @@ fn screen_scores(
                 let (mi, vi) = (&mi[..d], &vi[..d]);
                 sum += match sim {
                     Similarity::Elk => {
-                        let t = lane_sum_f32!(d, |k| {
+                        let t = lane_sum!(f32, 8, d, [mi, mj, vi, vj], |k| {
                             let s = vi[k] + vj[k];
                             let delta = mi[k] - mj[k];
                             fast_ln_f32(s) + delta * delta / s
@@ -636,18 +622,18 @@ fn screen_scores(
                         -0.5 * (d as f64 * LN_2PI + t)
                     }
                     Similarity::Bhattacharyya => {
-                        let t = lane_sum_f32!(d, |k| {
+                        let t = lane_sum!(f32, 8, d, [mi, mj, vi, vj], |k| {
                             let bar = 0.5 * (vi[k] + vj[k]);
                             let delta = mi[k] - mj[k];
                             delta * delta / (8.0 * bar) + 0.5 * fast_ln_f32(bar)
                         });
                         let qj = 0.25 * g.log_det(r as usize);
-                        (-(t - qi - qj).max(0.0)).exp()
+                        (-(t - (qi + qj)).max(0.0)).exp()
                     }
                     Similarity::Kl => {
                         let ij = &rinv[j * d..(j + 1) * d];
                         let ii = &ii[..d];
-                        let t = lane_sum_f32!(d, |k| {
+                        let t = lane_sum!(f32, 8, d, [mi, mj, vi, vj, ii, ij], |k| {
                             let delta = mi[k] - mj[k];
                             vi[k] * ij[k] + vj[k] * ii[k] + delta * delta * (ii[k] + ij[k])
                         });
@@ -664,14 +650,52 @@ fn screen_scores(
         .collect()
 }
 
+/// Up to this many members, [`exact_scores`] evaluates each pair once (the triangle is
+/// kept in memory: at most 8 MB·(this/1024)²/2); above it each row is computed in full.
+const SYMMETRIC_LIMIT: usize = 2048;
+
 /// Exact mean similarity of every member to every other member (O(m²·d)).
+///
+/// Each pair is evaluated once and used for both members (the similarities are symmetric
+/// to the last bit); each member's sum still runs in member order, so the result is the
+/// same as summing its row in full.
 pub fn exact_scores(
     g: &Gaussians,
     sim: Similarity,
     members: &[PhraseId],
     cancel: &AtomicBool,
 ) -> Result<Vec<f64>, BuildError> {
-    mean_scores(g, sim, members, members, cancel)
+    let m = members.len();
+    if m > SYMMETRIC_LIMIT {
+        return mean_scores(g, sim, members, members, cancel);
+    }
+    let b = SimBlock::new(g, sim, members);
+    // upper[i][j - i - 1] = pair(i, j) for j > i
+    let upper: Vec<Option<Vec<f64>>> = (0..m)
+        .into_par_iter()
+        .map(|i| {
+            if cancel.load(Ordering::Relaxed) {
+                return None;
+            }
+            Some(((i + 1)..m).map(|j| b.pair(i, &b, j)).collect())
+        })
+        .collect();
+    let upper: Vec<Vec<f64>> = upper
+        .into_iter()
+        .map(|r| r.ok_or(BuildError::Cancelled))
+        .collect::<Result<_, _>>()?;
+    Ok((0..m)
+        .map(|i| {
+            let mut sum = 0.0;
+            for (j, row) in upper.iter().enumerate().take(i) {
+                sum += row[i - j - 1];
+            }
+            for &v in &upper[i] {
+                sum += v;
+            }
+            if m > 1 { sum / (m - 1) as f64 } else { 0.0 }
+        })
+        .collect())
 }
 
 /// The representative of `members`: highest mean similarity to the others; ties go to the
@@ -1235,6 +1259,19 @@ mod tests {
     }
 
     #[test]
+    fn exact_scores_use_each_pair_once_with_the_same_result() {
+        let g = random_gaussians(120, 7, 5);
+        let rows: Vec<PhraseId> = (0..120).rev().collect();
+        let cancel = AtomicBool::new(false);
+        for sim in [Similarity::Elk, Similarity::Bhattacharyya, Similarity::Kl] {
+            let a = exact_scores(&g, sim, &rows, &cancel).unwrap();
+            let b = mean_scores(&g, sim, &rows, &rows, &cancel).unwrap();
+            let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+            assert_eq!(bits(&a), bits(&b), "{sim:?}");
+        }
+    }
+
+    #[test]
     fn screening_scores_agree_with_the_f64_scores() {
         let g = random_gaussians(300, 13, 8);
         let rows: Vec<PhraseId> = (0..300).collect();
@@ -1632,8 +1669,9 @@ mod tests {
 
     #[test]
     fn sampled_representative_is_close_to_the_exact_one() {
-        // mid-size data: 1 531 phrases of a planted hierarchy in 16 dimensions, scored
-        // against 256 of them
+        // mid-size data: 1 531 phrases of a planted hierarchy in 16 dimensions, with the
+        // default sample size and number of finalists
+        let d = BuildParams::default();
         let (g, _) = planted(16, 5, 5, 60, 77);
         let members: Vec<PhraseId> = (0..g.len() as PhraseId).collect();
         let cancel = AtomicBool::new(false);
@@ -1643,8 +1681,18 @@ mod tests {
             let mut worst_rank = 0;
             let mut worst_gap: f64 = 0.0;
             for seed in 0..5 {
-                let rep = representative(&g, sim, &members, 1000, 256, 32, seed, &cancel).unwrap();
-                assert_eq!(rep.sample, 256);
+                let rep = representative(
+                    &g,
+                    sim,
+                    &members,
+                    d.exact_limit,
+                    d.sample_size,
+                    d.refine,
+                    seed,
+                    &cancel,
+                )
+                .unwrap();
+                assert_eq!(rep.sample, d.sample_size);
                 let got = exact[rep.row as usize];
                 let rank = exact.iter().filter(|&&s| s > got).count();
                 worst_rank = worst_rank.max(rank);
