@@ -9,7 +9,8 @@
 //!    the [`BuildParams::refine`] best of the screening are rescored exactly (O(m·(s + r)·d));
 //! 2. the number of sub-clusters k is chosen by the **elbow** of the k-means inertia curve
 //!    for k = 2..k_max (k-means fits) with kneedle (Satopaa et al. 2011, sensitivity S).
-//!    Without a knee, the smallest k whose inertia drop from k = 1 (the total sum of
+//!    k never exceeds half the cluster (sub-clusters of two members on average) nor its
+//!    number of distinct feature vectors. Without a knee, the smallest k whose inertia drop from k = 1 (the total sum of
 //!    squares, also in the report) reaches [`BuildParams::fallback_share`] of the drop from
 //!    k = 1 to k_max is taken. For clusters larger than [`BuildParams::elbow_sample`] the curve is computed on a
 //!    fixed random subsample of that size; the partition itself always uses every member;
@@ -982,7 +983,9 @@ fn choose_split(ctx: &Ctx, rest: &[PhraseId], seed: u64) -> Result<Split, BuildE
         full.clone()
     };
     let distinct = distinct_rows(&elbow_x);
-    let k_top = p.k_max.min(distinct).min(elbow_x.nrows());
+    // at most k_max, at most the number of distinct points, and sub-clusters of two
+    // members on average (k ≤ m / 2; always k ≥ 2 when there are 3 or more members)
+    let k_top = p.k_max.min(distinct).min((elbow_x.nrows() / 2).max(2));
     if k_top < 2 {
         return Ok(flat(
             rest,
