@@ -1514,6 +1514,46 @@ mod tests {
     }
 
     #[test]
+    fn full_covariance_builds_with_the_reference_similarities() {
+        // 2-D full covariances: two groups of 12, correlated within each phrase
+        let mut means = Vec::new();
+        let mut covs = Vec::new();
+        for i in 0..24 {
+            let c = if i < 12 { -4.0 } else { 4.0 };
+            means.extend([c + 0.1 * (i % 12) as f64, 0.05 * i as f64]);
+            covs.extend([1.0, 0.3, 0.3, 0.5]);
+        }
+        let g = Gaussians::from_full(24, 2, means, covs, 1e-6).unwrap();
+        let phrases = table(24);
+        let params = BuildParams {
+            exact_limit: 10,
+            sample_size: 8,
+            ..BuildParams::default()
+        };
+        let b = build(
+            &g,
+            &phrases,
+            None,
+            &params,
+            &quiet(),
+            &AtomicBool::new(false),
+        )
+        .unwrap();
+        let all: Vec<PhraseId> = (0..24).collect();
+        assert_covers(&b.tree_file, &phrases, &all);
+        let root = b.report.node(&b.tree_file.root).unwrap();
+        assert_eq!(root.score_sample, 8);
+        // the reported score is the exact mean similarity (gaussian.rs formulas)
+        let r = phrases.get(&b.tree_file.root).unwrap() as usize;
+        let want: f64 = (0..24)
+            .filter(|&j| j != r)
+            .map(|j| log_expected_likelihood(&g.get(r), &g.get(j)))
+            .sum::<f64>()
+            / 23.0;
+        assert!((root.representative_score - want).abs() < 1e-9);
+    }
+
+    #[test]
     fn one_and_two_phrases() {
         let g = Gaussians::from_diagonal(1, 2, vec![1.0, 2.0], vec![1.0, 1.0], 1e-6).unwrap();
         let phrases = table(1);
