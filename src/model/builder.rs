@@ -47,13 +47,16 @@ pub const REPORT_FORMAT: &str = "treewright-build-report";
 /// Build report version.
 pub const REPORT_VERSION: u32 = 1;
 
+/// Largest accepted [`BuildParams::max_depth`] (keeps the recursion shallow).
+pub const MAX_DEPTH_LIMIT: usize = 64;
+
 /// Everything that steers a build. Written into the build report.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct BuildParams {
     /// Seed of every random choice (k-means++, samples).
     pub seed: u64,
-    /// Maximum depth of the tree (root = 0); nodes at this depth are leaves. ≥ 1.
+    /// Maximum depth of the tree (root = 0); nodes at this depth are leaves. 1 ..= 64.
     pub max_depth: usize,
     /// Largest k tried by the elbow method. ≥ 2.
     pub k_max: usize,
@@ -125,10 +128,10 @@ impl BuildParams {
             }
         }
         rule(
-            self.max_depth >= 1,
+            (1..=MAX_DEPTH_LIMIT).contains(&self.max_depth),
             "max_depth",
             self.max_depth.to_string(),
-            "must be ≥ 1",
+            "must be between 1 and 64",
         )?;
         rule(
             self.k_max >= 2,
@@ -1677,6 +1680,14 @@ mod tests {
         )
         .unwrap_err();
         assert_eq!(e.to_string(), "parameter k_max is 1: it must be ≥ 2");
+        let deep = BuildParams {
+            max_depth: 65,
+            ..BuildParams::default()
+        };
+        assert_eq!(
+            deep.validate().unwrap_err().to_string(),
+            "parameter max_depth is 65: it must be between 1 and 64"
+        );
         let params = BuildParams {
             fallback_share: 0.0,
             ..BuildParams::default()
