@@ -977,6 +977,102 @@ mod tests {
     }
 
     #[test]
+    fn crash_between_write_and_rename_leaves_the_old_file() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("overrides.json");
+        let mut layer = OverrideLayer::load(&p).unwrap();
+        layer.push(rec(Edit::Exclude {
+            node: "fern".into(),
+        }));
+        layer.save(&p).unwrap();
+        let old = std::fs::read(&p).unwrap();
+        // the crash: the new version was (partly) written to the temporary file that
+        // fsutil::atomic_write renames over the target, and the rename never happened
+        let mut next = layer.edits.clone();
+        next.push(rec(Edit::Exclude {
+            node: "hosta".into(),
+        }));
+        let new_bytes = serialize_overrides(&next);
+        let tmp = dir
+            .path()
+            .join(format!(".overrides.json.{}.tmp", std::process::id()));
+        std::fs::write(&tmp, &new_bytes[..new_bytes.len() / 2]).unwrap();
+        std::fs::copy(&p, dir.path().join("overrides.json.bak")).unwrap();
+        // the next load sees the old file, whole
+        let reloaded = OverrideLayer::load(&p).unwrap();
+        assert_eq!(std::fs::read(&p).unwrap(), old);
+        assert_eq!(reloaded.edits, layer.edits);
+        // and saving afterwards replaces the stale temporary file and leaves none behind
+        let mut again = reloaded;
+        again.push(next[1].clone());
+        again.save(&p).unwrap();
+        assert_eq!(std::fs::read(&p).unwrap(), new_bytes);
+        assert_eq!(
+            std::fs::read(dir.path().join("overrides.json.bak")).unwrap(),
+            old
+        );
+        assert!(!tmp.exists());
+        // a torn main file (not produced by save) is an error, never an empty layer
+        std::fs::write(&p, &new_bytes[..new_bytes.len() - 5]).unwrap();
+        assert!(matches!(
+            OverrideLayer::load(&p).unwrap_err(),
+            OverrideError::Corrupt { .. }
+        ));
+    }
+
+    #[test]
+    fn retrained_base_pins_hold_and_vanished_phrases_go_stale() {
+        let (_, base) = garden();
+        let (t_old, _) = garden();
+        let edits = [
+            rec(Edit::Pin {
+                node: "hosta".into(),
+                parent: "shade-loving".into(),
+            }),
+            rec(Edit::Rename {
+                node: "cactus".into(),
+                label: "cacti".into(),
+            }),
+            rec(Edit::Merge {
+                sources: vec!["fern".into()],
+                into: "shade-loving".into(),
+            }),
+        ];
+        let (before, p0) = apply(&base, &t_old, &edits);
+        assert!(p0.is_empty());
+        assert_eq!(parent_id(&before, &t_old, "hosta"), Some("shade-loving"));
+        // re-trained: "cactus" and "fern" vanished, rows reordered, hosta moved
+        let t_new = table(&[
+            "compost",
+            "hosta",
+            "plants",
+            "shade-loving",
+            "succulent",
+            "drought-tolerant",
+        ]);
+        let new_base = tree(
+            &t_new,
+            "plants",
+            &[
+                ("drought-tolerant", "plants"),
+                ("succulent", "drought-tolerant"),
+                ("hosta", "succulent"),
+                ("shade-loving", "plants"),
+            ],
+        );
+        let (after, probs) = apply(&new_base, &t_new, &edits);
+        assert_eq!(parent_id(&after, &t_new, "hosta"), Some("shade-loving"));
+        assert!(after.pinned[t_new.get("hosta").unwrap() as usize]);
+        let stale: Vec<usize> = probs
+            .iter()
+            .filter(|p| p.is_stale())
+            .map(|p| p.index)
+            .collect();
+        assert_eq!(stale, vec![1, 2], "{probs:?}");
+        assert!(probs[0].reason.contains("\"cactus\""));
+    }
+
+    #[test]
     fn undo_redo_stacks() {
         let mut l = OverrideLayer::new();
         assert!(!l.can_undo() && !l.can_redo());
