@@ -14,7 +14,9 @@ pub mod edit;
 pub mod export;
 pub mod info;
 pub mod progress;
+pub mod sample;
 pub mod signoff;
+pub mod suggest;
 pub mod undo;
 pub mod verify;
 
@@ -60,6 +62,10 @@ pub enum Command {
     Export(export::ExportArgs),
     /// Base vs effective tree, or what a re-trained tree changes.
     Diff(diff::DiffArgs),
+    /// Preview the broader / narrower / sibling offers for a phrase, or check them all.
+    Suggest(suggest::SuggestArgs),
+    /// Write the Fernhollow demo project or a synthetic project.
+    Sample(sample::SampleArgs),
 }
 
 /// A failed subcommand: the message to print and the exit code.
@@ -95,6 +101,32 @@ impl From<crate::model::LoadError> for CliError {
     }
 }
 
+/// The effective tree of a project: its base tree with the override layer applied, plus
+/// the edits that could not be applied.
+pub fn effective_tree(
+    project: &crate::model::Project,
+) -> Result<
+    (
+        crate::model::effective::EffectiveTree,
+        Vec<crate::model::effective::ApplyProblem>,
+    ),
+    CliError,
+> {
+    let base = project.tree.as_ref().ok_or_else(|| {
+        CliError::bad_input(format!(
+            "{}: the project has no tree yet (run `treewright build`)",
+            project.dir.display()
+        ))
+    })?;
+    let layer = crate::model::overrides::OverrideLayer::load(&project.overrides_path())
+        .map_err(CliError::bad_input)?;
+    Ok(crate::model::overrides::apply(
+        base,
+        &project.phrases,
+        &layer.edits,
+    ))
+}
+
 /// Run a subcommand, printing errors to standard error.
 pub fn run(command: Command) -> ExitCode {
     let result = match command {
@@ -106,6 +138,8 @@ pub fn run(command: Command) -> ExitCode {
         Command::Verify(a) => verify::run(&a),
         Command::Export(a) => export::run(&a),
         Command::Diff(a) => diff::run(&a),
+        Command::Suggest(a) => suggest::run(&a),
+        Command::Sample(a) => sample::run(&a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

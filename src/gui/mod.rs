@@ -6,6 +6,7 @@ use std::process::ExitCode;
 
 pub mod app;
 pub mod status_bar;
+pub mod suggest_panel;
 pub mod tree_panel;
 
 pub use app::{Action, App};
@@ -15,9 +16,9 @@ pub fn bundled_demo_dir() -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-projects/fernhollow")
 }
 
-/// Open the workbench on `project`, or on the bundled demo project.
+/// Open the workbench on `project`, or on the demo project ([`crate::model::sample::demo_dir`]).
 pub fn run(project: Option<PathBuf>) -> ExitCode {
-    let path = project.unwrap_or_else(bundled_demo_dir);
+    let path = project.unwrap_or_else(crate::model::sample::demo_dir);
     let app = match App::open(&path) {
         Ok(a) => a,
         Err(e) => {

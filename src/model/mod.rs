@@ -12,7 +12,9 @@ pub mod overrides;
 pub mod phrase;
 pub mod project;
 pub mod projection;
+pub mod sample;
 pub mod signoff;
+pub mod suggest;
 pub mod tree;
 
 pub use gaussian::{CovarianceKind, GaussianView, Gaussians, PhraseId, Similarity};
