@@ -342,3 +342,95 @@ fn corrupt_or_changed_override_file_is_an_error() {
         "not json"
     );
 }
+
+#[test]
+fn scripted_sequence_on_the_demo_project() {
+    let tmp = tempfile::tempdir().unwrap();
+    let src = Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-projects/fernhollow");
+    let dir = tmp.path().join("fernhollow");
+    std::fs::create_dir_all(&dir).unwrap();
+    for e in std::fs::read_dir(&src).unwrap() {
+        let e = e.unwrap();
+        if e.file_name() != "overrides.json" {
+            std::fs::copy(e.path(), dir.join(e.file_name())).unwrap();
+        }
+    }
+    let p = dir.to_str().unwrap();
+    for args in [
+        vec![
+            "edit",
+            p,
+            "reparent",
+            "bee friendly",
+            "houseplants",
+            "--author",
+            "ines",
+        ],
+        vec!["edit", p, "pin", "aloe", "--author", "ines"],
+        vec![
+            "edit",
+            p,
+            "merge",
+            "bark mulch",
+            "--into",
+            "mulches",
+            "--author",
+            "ines",
+        ],
+        vec![
+            "edit",
+            p,
+            "rename",
+            "autumn",
+            "autumn range",
+            "--author",
+            "ines",
+        ],
+        vec!["edit", p, "exclude", "autumn-planters", "--author", "ines"],
+        vec![
+            "edit",
+            p,
+            "reparent",
+            "grow-lights",
+            "houseplants",
+            "--author",
+            "ines",
+        ],
+        vec!["edit", p, "review", "aloe", "approved", "--author", "rowan"],
+    ] {
+        let o = tw(&args);
+        assert_eq!(code(&o), 0, "{args:?}: {}", text(&o));
+    }
+    let out = tmp.path().join("eff.json");
+    assert_eq!(code(&tw(&["apply", p, "--out", out.to_str().unwrap()])), 0);
+    assert_eq!(code(&tw(&["signoff", p, "--reviewer", "rowan"])), 0);
+    assert_eq!(code(&tw(&["verify", p])), 0);
+    let o = tw(&["edit", p, "rename", "aloe", "aloe vera", "--author", "ines"]);
+    assert_eq!(code(&o), 0, "{}", text(&o));
+    let o = tw(&["verify", p]);
+    assert_eq!(code(&o), 1);
+    assert!(
+        text(&o).contains("renamed   aloe: \"aloe\" → \"aloe vera\""),
+        "{}",
+        text(&o)
+    );
+    let ttl = tmp.path().join("demo.ttl");
+    let export = || {
+        tw(&[
+            "export",
+            p,
+            "--format",
+            "skos",
+            "--out",
+            ttl.to_str().unwrap(),
+            "--require-signoff",
+        ])
+    };
+    assert_eq!(code(&export()), 1);
+    assert!(!ttl.exists());
+    assert_eq!(code(&tw(&["signoff", p, "--reviewer", "rowan"])), 0);
+    assert_eq!(code(&export()), 0);
+    let text = std::fs::read_to_string(&ttl).unwrap();
+    assert!(text.contains("\"aloe vera\"@en") && text.contains("skos:altLabel \"bark mulch\"@en"));
+    assert!(!text.contains("/autumn-planters>"));
+}
