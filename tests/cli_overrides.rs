@@ -434,3 +434,50 @@ fn scripted_sequence_on_the_demo_project() {
     assert!(text.contains("\"aloe vera\"@en") && text.contains("skos:altLabel \"bark mulch\"@en"));
     assert!(!text.contains("/autumn-planters>"));
 }
+
+#[test]
+fn json_outputs_and_empty_undo() {
+    let tmp = tempfile::tempdir().unwrap();
+    let dir = tmp.path().join("proj");
+    write_project(&dir);
+    let p = dir.to_str().unwrap();
+    let o = tw(&["undo", p]);
+    assert_eq!(code(&o), 2);
+    assert!(text(&o).contains("no edit to undo"), "{}", text(&o));
+    assert!(!dir.join("overrides.json").exists());
+    let o = tw(&["verify", p, "--json"]);
+    assert_eq!(code(&o), 1);
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["state"], "no-signoff");
+    assert_eq!(
+        code(&tw(&[
+            "edit",
+            p,
+            "merge",
+            "fern",
+            "hosta",
+            "--into",
+            "shade loving",
+            "--author",
+            "ines"
+        ])),
+        0
+    );
+    let o = tw(&["diff", p, "--json"]);
+    assert_eq!(code(&o), 0);
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let kinds: Vec<&str> = v
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| c["kind"].as_str().unwrap())
+        .collect();
+    // fern and hosta merged; slug-resistant (child of hosta) moved to shade-loving
+    assert_eq!(kinds, vec!["merged", "merged", "moved"], "{v}");
+    assert_eq!(code(&tw(&["signoff", p, "--reviewer", "rowan"])), 0);
+    let o = tw(&["verify", p, "--json"]);
+    assert_eq!(code(&o), 0);
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["state"], "valid");
+    assert_eq!(v["hash"].as_str().unwrap().len(), 64);
+}
