@@ -317,6 +317,18 @@ fn edit_apply_signoff_verify_export() {
         "{t}"
     );
     assert!(t.contains("stale edits (2)"), "{t}");
+    // the same re-trained tree as a CSV edge list gives the same report
+    let csv_tree = tmp.path().join("retrained.csv");
+    std::fs::write(
+        &csv_tree,
+        "child,parent\ngarden-supplies,\ndrought-tolerant,garden-supplies\n\
+         succulent,drought-tolerant\nshade-loving,garden-supplies\nfern,shade-loving\n\
+         hosta,shade-loving\nslug-resistant,hosta\nmulch,garden-supplies\n",
+    )
+    .unwrap();
+    let o = tw(&["diff", p, "--against", csv_tree.to_str().unwrap()]);
+    assert_eq!(code(&o), 0, "{}", text(&o));
+    assert_eq!(text(&o), t);
 }
 
 #[test]
