@@ -8,11 +8,18 @@ use std::process::ExitCode;
 
 use clap::{Parser, Subcommand};
 
+pub mod apply;
 pub mod build;
+pub mod diff;
+pub mod edit;
+pub mod export;
 pub mod info;
 pub mod progress;
 pub mod sample;
+pub mod signoff;
 pub mod suggest;
+pub mod undo;
+pub mod verify;
 
 /// Exit code for "a check failed".
 pub const EXIT_CHECK_FAILED: u8 = 1;
@@ -42,6 +49,20 @@ pub struct Cli {
 pub enum Command {
     /// Summarise a project: phrases, dimension, generality, tree shape, unplaced phrases.
     Info(info::InfoArgs),
+    /// Record an edit in the override layer (refused edits exit 2 and write nothing).
+    Edit(edit::EditArgs),
+    /// Drop the last edit of the override layer.
+    Undo(undo::UndoArgs),
+    /// Write the effective tree (tree.json schema plus aliases and exclusions).
+    Apply(apply::ApplyArgs),
+    /// Sign off the effective tree as it stands.
+    Signoff(signoff::SignoffArgs),
+    /// Exit 0 only if the latest sign-off matches the effective tree, else 1.
+    Verify(verify::VerifyArgs),
+    /// Export the effective tree as SKOS (Turtle), CSV or JSON.
+    Export(export::ExportArgs),
+    /// Base vs effective tree, or what a re-trained tree changes.
+    Diff(diff::DiffArgs),
     /// Preview the broader / narrower / sibling offers for a phrase, or check them all.
     Suggest(suggest::SuggestArgs),
     /// Write the Fernhollow demo project or a synthetic project.
@@ -100,9 +121,12 @@ pub fn effective_tree(
             project.dir.display()
         ))
     })?;
-    Ok((
-        crate::model::effective::EffectiveTree::from_base(base, &project.phrases),
-        Vec::new(),
+    let layer = crate::model::overrides::OverrideLayer::load(&project.overrides_path())
+        .map_err(CliError::bad_input)?;
+    Ok(crate::model::overrides::apply(
+        base,
+        &project.phrases,
+        &layer.edits,
     ))
 }
 
@@ -110,6 +134,13 @@ pub fn effective_tree(
 pub fn run(command: Command) -> ExitCode {
     let result = match command {
         Command::Info(a) => info::run(&a),
+        Command::Edit(a) => edit::run(a),
+        Command::Undo(a) => undo::run(&a),
+        Command::Apply(a) => apply::run(&a),
+        Command::Signoff(a) => signoff::run(&a),
+        Command::Verify(a) => verify::run(&a),
+        Command::Export(a) => export::run(&a),
+        Command::Diff(a) => diff::run(&a),
         Command::Suggest(a) => suggest::run(&a),
         Command::Sample(a) => sample::run(&a),
         Command::Build(a) => build::run(&a),

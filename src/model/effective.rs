@@ -31,6 +31,10 @@ pub struct EffectiveTree {
     pub review_comment: Vec<String>,
 }
 
+/// Reason prefix of a problem caused by a phrase that is no longer in the phrase table
+/// (the edit went stale after re-training).
+pub const STALE_PREFIX: &str = "stale:";
+
 /// An edit that could not be applied: reported, never dropped from the file.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize)]
 pub struct ApplyProblem {
@@ -40,6 +44,13 @@ pub struct ApplyProblem {
     pub op: String,
     /// Why it was skipped.
     pub reason: String,
+}
+
+impl ApplyProblem {
+    /// Whether the edit went stale: it names a phrase the phrase table no longer has.
+    pub fn is_stale(&self) -> bool {
+        self.reason.starts_with(STALE_PREFIX)
+    }
 }
 
 impl EffectiveTree {

@@ -2,17 +2,21 @@
 //! them. Nothing in here knows about egui.
 
 pub mod builder;
+pub mod diff;
 pub mod edit;
 pub mod effective;
+pub mod export;
 pub mod fsutil;
 pub mod gaussian;
 pub mod info;
 pub mod kmeans;
 pub mod kneedle;
+pub mod overrides;
 pub mod phrase;
 pub mod project;
 pub mod projection;
 pub mod sample;
+pub mod signoff;
 pub mod suggest;
 pub mod tree;
 

@@ -1,0 +1,105 @@
+//! `treewright diff PROJECT [--against OTHER_TREE]`: base vs effective tree, or what a
+//! re-trained tree changes for the override layer.
+
+use std::path::PathBuf;
+
+use clap::Args;
+
+use super::CliError;
+use super::edit::Session;
+use crate::model::diff::{base_vs_effective, diff_retrained};
+use crate::model::project::read_json;
+use crate::model::tree::TreeFile;
+
+/// Arguments of `diff`.
+#[derive(Debug, Args)]
+pub struct DiffArgs {
+    /// Project folder or its project.json.
+    pub project: PathBuf,
+    /// A re-trained tree file (JSON, the tree.json schema) to compare against.
+    #[arg(long)]
+    pub against: Option<PathBuf>,
+    /// Print JSON instead of text.
+    #[arg(long)]
+    pub json: bool,
+}
+
+/// Print the differences.
+pub fn run(args: &DiffArgs) -> Result<(), CliError> {
+    let s = Session::open(&args.project)?;
+    let phrases = &s.project.phrases;
+    let Some(other) = &args.against else {
+        let (eff, _) = s.effective();
+        let changes = base_vs_effective(&s.base, phrases, &eff);
+        if args.json {
+            println!(
+                "{}",
+                serde_json::to_string_pretty(&changes).map_err(CliError::bad_input)?
+            );
+        } else if changes.is_empty() {
+            println!("no difference between the base and the effective tree");
+        } else {
+            for c in &changes {
+                println!("{c}");
+            }
+        }
+        return Ok(());
+    };
+    let file = other.display().to_string();
+    let tf: TreeFile = if other
+        .extension()
+        .is_some_and(|e| e.eq_ignore_ascii_case("csv"))
+    {
+        let bytes = std::fs::read(other)
+            .map_err(|e| CliError::bad_input(format!("{file}: cannot read: {e}")))?;
+        crate::model::project::parse_tree_csv(&bytes, &file)?
+    } else {
+        read_json(other)?
+    };
+    let d = diff_retrained(&s.base, phrases, &s.layer.edits, &tf, &file)
+        .map_err(CliError::bad_input)?;
+    if args.json {
+        println!(
+            "{}",
+            serde_json::to_string_pretty(&d).map_err(CliError::bad_input)?
+        );
+        return Ok(());
+    }
+    let list = |name: &str, v: &[String]| {
+        println!(
+            "{name} ({}){}",
+            v.len(),
+            if v.is_empty() { "" } else { ":" }
+        );
+        for x in v {
+            println!("  {x}");
+        }
+    };
+    list("new phrases", &d.new_phrases);
+    list("vanished phrases", &d.vanished_phrases);
+    println!(
+        "pins holding against the new tree ({})",
+        d.pins_holding.len()
+    );
+    for p in &d.pins_holding {
+        println!(
+            "  {} stays under {} (new tree: {})",
+            p.node,
+            p.pinned_under,
+            if p.tree_parent.is_empty() {
+                "not placed"
+            } else {
+                &p.tree_parent
+            }
+        );
+    }
+    println!("stale edits ({})", d.stale_edits.len());
+    for p in &d.stale_edits {
+        println!("  #{} ({}): {}", p.index, p.op, p.reason);
+    }
+    println!("other skipped edits ({})", d.other_problems.len());
+    for p in &d.other_problems {
+        println!("  #{} ({}): {}", p.index, p.op, p.reason);
+    }
+    Ok(())
+}

@@ -1,0 +1,1145 @@
+//! The override layer: the ordered list of human edits, how it is applied to a base tree,
+//! and how it is stored (`overrides.json`).
+//!
+//! [`apply`] is a pure function: base tree + edits → effective tree + problems. Edits are
+//! applied in file order; an edit that no longer fits (its phrase vanished after re-training,
+//! a reparent that would make a cycle, a merge into an excluded node, ...) is skipped and
+//! reported as an [`ApplyProblem`] with its index and reason, never dropped from the file.
+//!
+//! File format (version 1):
+//! `{"format": "treewright-overrides", "version": 1, "edits": [EditRecord, ...]}`.
+
+use std::path::Path;
+use std::time::{SystemTime, UNIX_EPOCH};
+
+use serde::{Deserialize, Serialize};
+use sha2::{Digest, Sha256};
+
+use super::edit::{Edit, EditRecord, ReviewStatus};
+use super::effective::{ApplyProblem, EffectiveTree, STALE_PREFIX};
+use super::fsutil;
+use super::gaussian::PhraseId;
+use super::phrase::PhraseTable;
+use super::tree::Tree;
+
+/// The `format` value of an override file.
+pub const OVERRIDES_FORMAT: &str = "treewright-overrides";
+/// The override file version this build reads and writes.
+pub const OVERRIDES_VERSION: u32 = 1;
+
+/// Why the override layer could not be loaded or saved. Every variant names the file.
+#[derive(Debug, thiserror::Error)]
+pub enum OverrideError {
+    /// Reading or writing failed.
+    #[error("{file}: {source}")]
+    Io {
+        /// The file.
+        file: String,
+        /// The OS error.
+        source: std::io::Error,
+    },
+    /// The file is not valid JSON of the expected shape.
+    #[error("{file}:{line}:{column}: {message}")]
+    Corrupt {
+        /// The file.
+        file: String,
+        /// 1-based line.
+        line: usize,
+        /// 1-based column.
+        column: usize,
+        /// serde_json's message.
+        message: String,
+    },
+    /// The `format` field is not `treewright-overrides`.
+    #[error("{file}: format: is \"{found}\", expected \"{OVERRIDES_FORMAT}\"")]
+    WrongFormat {
+        /// The file.
+        file: String,
+        /// What the file says.
+        found: String,
+    },
+    /// The file has a version this build cannot read.
+    #[error("{file}: version: is {found}, this build reads version {OVERRIDES_VERSION}")]
+    UnknownVersion {
+        /// The file.
+        file: String,
+        /// What the file says.
+        found: u64,
+    },
+    /// Someone else changed the file since it was loaded or last saved.
+    #[error(
+        "{file}: changed on disk since it was loaded; not overwriting it (reload to see the other changes)"
+    )]
+    ChangedOnDisk {
+        /// The file.
+        file: String,
+    },
+}
+
+/// The on-disk shape of `overrides.json`.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct OverrideFile {
+    format: String,
+    version: u64,
+    #[serde(default)]
+    edits: Vec<EditRecord>,
+}
+
+/// Only the header, read first so an unknown version is reported as such even when the
+/// edits of that version do not parse.
+#[derive(Deserialize)]
+struct OverrideHeader {
+    format: String,
+    version: u64,
+}
+
+/// What the file looked like when we last read or wrote it.
+#[derive(Debug, Clone, PartialEq, Eq)]
+enum Fingerprint {
+    /// The file did not exist.
+    Missing,
+    /// Length and SHA-256 of its bytes.
+    Present { len: u64, sha256: [u8; 32] },
+}
+
+impl Fingerprint {
+    fn of_bytes(bytes: &[u8]) -> Self {
+        Fingerprint::Present {
+            len: bytes.len() as u64,
+            sha256: Sha256::digest(bytes).into(),
+        }
+    }
+
+    fn of_file(path: &Path) -> Result<Self, OverrideError> {
+        match std::fs::read(path) {
+            Ok(b) => Ok(Self::of_bytes(&b)),
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => Ok(Fingerprint::Missing),
+            Err(source) => Err(OverrideError::Io {
+                file: path.display().to_string(),
+                source,
+            }),
+        }
+    }
+}
+
+/// The ordered edits of a project with undo/redo stacks and the on-disk fingerprint.
+#[derive(Debug, Clone)]
+pub struct OverrideLayer {
+    /// The edits in file order.
+    pub edits: Vec<EditRecord>,
+    redo: Vec<EditRecord>,
+    saved: Vec<EditRecord>,
+    disk: Fingerprint,
+}
+
+impl Default for OverrideLayer {
+    fn default() -> Self {
+        OverrideLayer {
+            edits: Vec::new(),
+            redo: Vec::new(),
+            saved: Vec::new(),
+            disk: Fingerprint::Missing,
+        }
+    }
+}
+
+/// Parse override-file bytes, naming `file` in errors.
+pub fn parse_overrides(bytes: &[u8], file: &str) -> Result<Vec<EditRecord>, OverrideError> {
+    let corrupt = |e: serde_json::Error| OverrideError::Corrupt {
+        file: file.to_string(),
+        line: e.line(),
+        column: e.column(),
+        message: e.to_string(),
+    };
+    let header: OverrideHeader = serde_json::from_slice(bytes).map_err(corrupt)?;
+    if header.format != OVERRIDES_FORMAT {
+        return Err(OverrideError::WrongFormat {
+            file: file.to_string(),
+            found: header.format,
+        });
+    }
+    if header.version != u64::from(OVERRIDES_VERSION) {
+        return Err(OverrideError::UnknownVersion {
+            file: file.to_string(),
+            found: header.version,
+        });
+    }
+    let f: OverrideFile = serde_json::from_slice(bytes).map_err(corrupt)?;
+    Ok(f.edits)
+}
+
+/// Serialise edits in the version-1 file format (pretty JSON, trailing newline).
+pub fn serialize_overrides(edits: &[EditRecord]) -> Vec<u8> {
+    let f = OverrideFile {
+        format: OVERRIDES_FORMAT.to_string(),
+        version: u64::from(OVERRIDES_VERSION),
+        edits: edits.to_vec(),
+    };
+    fsutil::to_json_pretty(&f)
+}
+
+impl OverrideLayer {
+    /// An empty layer whose file does not exist yet.
+    pub fn new() -> Self {
+        Self::default()
+    }
+
+    /// Load `path`. A missing file is an empty layer; a corrupt file or an unknown
+    /// format/version is an error, never an empty layer.
+    pub fn load(path: &Path) -> Result<Self, OverrideError> {
+        let file = path.display().to_string();
+        let bytes = match std::fs::read(path) {
+            Ok(b) => b,
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(Self::default()),
+            Err(source) => return Err(OverrideError::Io { file, source }),
+        };
+        let edits = parse_overrides(&bytes, &file)?;
+        Ok(OverrideLayer {
+            saved: edits.clone(),
+            edits,
+            redo: Vec::new(),
+            disk: Fingerprint::of_bytes(&bytes),
+        })
+    }
+
+    /// Save atomically (temporary file, fsync, rename) keeping the previous file as
+    /// `<name>.bak`. Refuses with [`OverrideError::ChangedOnDisk`] when the file was changed
+    /// by someone else since it was loaded or last saved.
+    pub fn save(&mut self, path: &Path) -> Result<(), OverrideError> {
+        let file = path.display().to_string();
+        if Fingerprint::of_file(path)? != self.disk {
+            return Err(OverrideError::ChangedOnDisk { file });
+        }
+        let bytes = serialize_overrides(&self.edits);
+        fsutil::atomic_write(path, &bytes, true)
+            .map_err(|source| OverrideError::Io { file, source })?;
+        self.disk = Fingerprint::of_bytes(&bytes);
+        self.saved = self.edits.clone();
+        Ok(())
+    }
+
+    /// Append an edit; clears the redo stack.
+    pub fn push(&mut self, r: EditRecord) {
+        self.edits.push(r);
+        self.redo.clear();
+    }
+
+    /// Drop the last edit (kept for redo).
+    pub fn undo(&mut self) -> Option<EditRecord> {
+        let r = self.edits.pop()?;
+        self.redo.push(r.clone());
+        Some(r)
+    }
+
+    /// Re-append the last undone edit.
+    pub fn redo(&mut self) -> Option<EditRecord> {
+        let r = self.redo.pop()?;
+        self.edits.push(r.clone());
+        Some(r)
+    }
+
+    /// Whether there is an edit to undo.
+    pub fn can_undo(&self) -> bool {
+        !self.edits.is_empty()
+    }
+
+    /// Whether there is an undone edit to redo.
+    pub fn can_redo(&self) -> bool {
+        !self.redo.is_empty()
+    }
+
+    /// Whether the edits differ from what was last loaded or saved.
+    pub fn is_dirty(&self) -> bool {
+        self.edits != self.saved
+    }
+}
+
+/// The current time as RFC 3339 UTC with second precision (`2026-12-02T10:00:00Z`).
+pub fn now_rfc3339() -> String {
+    let secs = SystemTime::now()
+        .duration_since(UNIX_EPOCH)
+        .map(|d| d.as_secs() as i64)
+        .unwrap_or(0);
+    rfc3339_from_unix(secs)
+}
+
+/// Format seconds since the Unix epoch as RFC 3339 UTC. The civil date is computed with
+/// the days-to-civil algorithm of H. Hinnant, "chrono-Compatible Low-Level Date
+/// Algorithms" (proleptic Gregorian calendar).
+pub fn rfc3339_from_unix(secs: i64) -> String {
+    let days = secs.div_euclid(86_400);
+    let rem = secs.rem_euclid(86_400);
+    let (y, m, d) = civil_from_days(days);
+    format!(
+        "{y:04}-{m:02}-{d:02}T{:02}:{:02}:{:02}Z",
+        rem / 3600,
+        (rem / 60) % 60,
+        rem % 60
+    )
+}
+
+fn civil_from_days(z: i64) -> (i64, u32, u32) {
+    let z = z + 719_468;
+    let era = z.div_euclid(146_097);
+    let doe = z.rem_euclid(146_097);
+    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
+    let y = yoe + era * 400;
+    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    let mp = (5 * doy + 2) / 153;
+    let d = (doy - (153 * mp + 2) / 5 + 1) as u32;
+    let m = if mp < 10 { mp + 3 } else { mp - 9 } as u32;
+    (if m <= 2 { y + 1 } else { y }, m, d)
+}
+
+/// Wrap an edit with its author, the current time and an optional note.
+pub fn record(edit: Edit, author: &str, note: Option<String>) -> EditRecord {
+    EditRecord {
+        edit,
+        author: author.to_string(),
+        time: now_rfc3339(),
+        note,
+    }
+}
+
+/// Working state of [`apply`]: a mutable tree plus the per-phrase layers.
+#[derive(Debug, Clone)]
+struct State {
+    root: PhraseId,
+    parent: Vec<Option<PhraseId>>,
+    children: Vec<Vec<PhraseId>>,
+    placed: Vec<bool>,
+    labels: Vec<String>,
+    alias_of: Vec<Option<PhraseId>>,
+    aliases: Vec<Vec<PhraseId>>,
+    excluded: Vec<bool>,
+    pinned: Vec<bool>,
+    review: Vec<ReviewStatus>,
+    review_comment: Vec<String>,
+    /// For an excluded phrase: the parent it had and the children that moved up, so that
+    /// `include` can put them back.
+    excluded_from: Vec<Option<(PhraseId, Vec<PhraseId>)>>,
+    /// Base-tree parent of every phrase (include's fallback).
+    base_parent: Vec<Option<PhraseId>>,
+}
+
+impl State {
+    fn from_effective(eff: &EffectiveTree) -> Self {
+        let n = eff.labels.len();
+        let t = &eff.tree;
+        let parent: Vec<Option<PhraseId>> = (0..n as PhraseId).map(|p| t.parent(p)).collect();
+        State {
+            root: t.root(),
+            children: (0..n as PhraseId).map(|p| t.children(p).to_vec()).collect(),
+            placed: (0..n as PhraseId).map(|p| t.is_placed(p)).collect(),
+            base_parent: parent.clone(),
+            parent,
+            labels: eff.labels.clone(),
+            alias_of: eff.alias_of.clone(),
+            aliases: eff.aliases.clone(),
+            excluded: eff.excluded.clone(),
+            pinned: eff.pinned.clone(),
+            review: eff.review.clone(),
+            review_comment: eff.review_comment.clone(),
+            excluded_from: vec![None; n],
+        }
+    }
+
+    fn detach(&mut self, c: PhraseId) {
+        if let Some(p) = self.parent[c as usize].take() {
+            let ch = &mut self.children[p as usize];
+            if let Some(i) = ch.iter().position(|&x| x == c) {
+                ch.remove(i);
+            }
+        }
+    }
+
+    fn attach(&mut self, c: PhraseId, p: PhraseId) {
+        self.detach(c);
+        self.parent[c as usize] = Some(p);
+        self.children[p as usize].push(c);
+        self.placed[c as usize] = true;
+    }
+
+    /// Take a node out of the tree, moving its children to `to`.
+    fn unplace(&mut self, x: PhraseId, to: PhraseId) -> Vec<PhraseId> {
+        let kids = std::mem::take(&mut self.children[x as usize]);
+        for &c in &kids {
+            self.parent[c as usize] = None;
+            self.attach(c, to);
+        }
+        self.detach(x);
+        self.placed[x as usize] = false;
+        kids
+    }
+
+    fn into_effective(self, phrases: &PhraseTable) -> Option<EffectiveTree> {
+        let n = self.labels.len();
+        let edges: Vec<(PhraseId, PhraseId)> = (0..n as PhraseId)
+            .filter_map(|c| self.parent[c as usize].map(|p| (c, p)))
+            .collect();
+        let tree = Tree::from_edges(phrases, self.root, &edges).ok()?;
+        let mut aliases = self.aliases;
+        for a in &mut aliases {
+            a.sort_unstable();
+        }
+        Some(EffectiveTree {
+            tree,
+            labels: self.labels,
+            alias_of: self.alias_of,
+            aliases,
+            excluded: self.excluded,
+            pinned: self.pinned,
+            review: self.review,
+            review_comment: self.review_comment,
+        })
+    }
+}
+
+/// Read access to the layered state, shared by [`apply`]'s working state and by a finished
+/// [`EffectiveTree`] so that [`check_edit`] validates without copying the tree.
+trait View {
+    fn root(&self) -> PhraseId;
+    fn parent(&self, p: PhraseId) -> Option<PhraseId>;
+    fn is_node(&self, p: PhraseId) -> bool;
+    fn alias_of(&self, p: PhraseId) -> Option<PhraseId>;
+    fn excluded(&self, p: PhraseId) -> bool;
+    fn pinned(&self, p: PhraseId) -> bool;
+    fn label(&self, p: PhraseId) -> &str;
+    /// True when `a` is a proper ancestor of `b`.
+    fn is_ancestor(&self, a: PhraseId, b: PhraseId) -> bool {
+        let mut cur = self.parent(b);
+        while let Some(x) = cur {
+            if x == a {
+                return true;
+            }
+            cur = self.parent(x);
+        }
+        false
+    }
+}
+
+impl View for State {
+    fn root(&self) -> PhraseId {
+        self.root
+    }
+    fn parent(&self, p: PhraseId) -> Option<PhraseId> {
+        self.parent[p as usize]
+    }
+    fn is_node(&self, p: PhraseId) -> bool {
+        self.placed[p as usize]
+    }
+    fn alias_of(&self, p: PhraseId) -> Option<PhraseId> {
+        self.alias_of[p as usize]
+    }
+    fn excluded(&self, p: PhraseId) -> bool {
+        self.excluded[p as usize]
+    }
+    fn pinned(&self, p: PhraseId) -> bool {
+        self.pinned[p as usize]
+    }
+    fn label(&self, p: PhraseId) -> &str {
+        &self.labels[p as usize]
+    }
+}
+
+impl View for EffectiveTree {
+    fn root(&self) -> PhraseId {
+        self.tree.root()
+    }
+    fn parent(&self, p: PhraseId) -> Option<PhraseId> {
+        self.tree.parent(p)
+    }
+    fn is_node(&self, p: PhraseId) -> bool {
+        self.tree.is_placed(p)
+    }
+    fn alias_of(&self, p: PhraseId) -> Option<PhraseId> {
+        self.alias_of[p as usize]
+    }
+    fn excluded(&self, p: PhraseId) -> bool {
+        self.excluded[p as usize]
+    }
+    fn pinned(&self, p: PhraseId) -> bool {
+        self.pinned[p as usize]
+    }
+    fn label(&self, p: PhraseId) -> &str {
+        &self.labels[p as usize]
+    }
+}
+
+/// What a validated edit will do, with ids resolved to rows.
+enum Plan {
+    Move(PhraseId, PhraseId),
+    Pin(PhraseId, PhraseId),
+    Unpin(PhraseId),
+    Merge(Vec<PhraseId>, PhraseId),
+    Rename(PhraseId, String),
+    Exclude(PhraseId),
+    Include(PhraseId),
+    Review(PhraseId, ReviewStatus, String),
+    Nothing,
+}
+
+fn lookup(phrases: &PhraseTable, id: &str) -> Result<PhraseId, String> {
+    phrases
+        .get(id)
+        .ok_or_else(|| format!("{STALE_PREFIX} phrase \"{id}\" is no longer in the phrase table"))
+}
+
+/// Why `p` cannot take part as a tree node, if it cannot.
+fn node_problem(s: &impl View, phrases: &PhraseTable, p: PhraseId, role: &str) -> Option<String> {
+    let id = phrases.id(p);
+    if let Some(t) = s.alias_of(p) {
+        return Some(format!(
+            "{role} \"{id}\" is merged into \"{}\"",
+            phrases.id(t)
+        ));
+    }
+    if s.excluded(p) {
+        return Some(format!("{role} \"{id}\" is excluded"));
+    }
+    if !s.is_node(p) {
+        return Some(format!("{role} \"{id}\" is not in the tree"));
+    }
+    None
+}
+
+fn validate(s: &impl View, phrases: &PhraseTable, edit: &Edit) -> Result<Plan, String> {
+    let id = |p: PhraseId| phrases.id(p).to_string();
+    match edit {
+        Edit::Reparent { node, parent } | Edit::Pin { node, parent } => {
+            let is_pin = matches!(edit, Edit::Pin { .. });
+            let x = lookup(phrases, node)?;
+            let p = lookup(phrases, parent)?;
+            if x == s.root() {
+                return Err(format!("\"{node}\" is the root and has no parent"));
+            }
+            if x == p {
+                return Err(format!("\"{node}\" cannot be its own parent"));
+            }
+            if let Some(t) = s.alias_of(x) {
+                return Err(format!("\"{node}\" is merged into \"{}\"", id(t)));
+            }
+            if s.excluded(x) {
+                return Err(format!("\"{node}\" is excluded; include it first"));
+            }
+            if is_pin && !s.is_node(x) {
+                return Err(format!("\"{node}\" is not in the tree"));
+            }
+            if let Some(why) = node_problem(s, phrases, p, "parent") {
+                return Err(why);
+            }
+            if s.is_node(x) && s.is_ancestor(x, p) {
+                return Err(format!(
+                    "\"{parent}\" is below \"{node}\": that would make a cycle"
+                ));
+            }
+            if !is_pin && s.pinned(x) && s.parent(x) != Some(p) {
+                return Err(format!(
+                    "\"{node}\" is pinned under \"{}\"; unpin it first",
+                    s.parent(x).map(id).unwrap_or_default()
+                ));
+            }
+            Ok(if is_pin {
+                Plan::Pin(x, p)
+            } else {
+                Plan::Move(x, p)
+            })
+        }
+        Edit::Unpin { node } => {
+            let x = lookup(phrases, node)?;
+            if !s.pinned(x) {
+                return Err(format!("\"{node}\" is not pinned"));
+            }
+            Ok(Plan::Unpin(x))
+        }
+        Edit::Merge { sources, into } => {
+            let t = lookup(phrases, into)?;
+            if sources.is_empty() {
+                return Err("no source to merge".into());
+            }
+            if let Some(why) = node_problem(s, phrases, t, "target") {
+                return Err(why);
+            }
+            let mut rows = Vec::with_capacity(sources.len());
+            for src in sources {
+                let x = lookup(phrases, src)?;
+                if x == t {
+                    return Err(format!("\"{src}\" cannot be merged into itself"));
+                }
+                if rows.contains(&x) {
+                    return Err(format!("\"{src}\" is listed twice"));
+                }
+                if x == s.root() {
+                    return Err(format!(
+                        "\"{src}\" is the root; merge the other node into it instead"
+                    ));
+                }
+                if let Some(why) = node_problem(s, phrases, x, "source") {
+                    return Err(why);
+                }
+                rows.push(x);
+            }
+            Ok(Plan::Merge(rows, t))
+        }
+        Edit::Rename { node, label } => {
+            let x = lookup(phrases, node)?;
+            let label = label.trim();
+            if label.is_empty() {
+                return Err("the new label is empty".into());
+            }
+            if s.label(x) == label {
+                return Err(format!("\"{node}\" is already labelled \"{label}\""));
+            }
+            Ok(Plan::Rename(x, label.to_string()))
+        }
+        Edit::Exclude { node } => {
+            let x = lookup(phrases, node)?;
+            if x == s.root() {
+                return Err(format!("\"{node}\" is the root and cannot be excluded"));
+            }
+            if let Some(t) = s.alias_of(x) {
+                return Err(format!("\"{node}\" is merged into \"{}\"", id(t)));
+            }
+            if s.excluded(x) {
+                return Err(format!("\"{node}\" is already excluded"));
+            }
+            Ok(Plan::Exclude(x))
+        }
+        Edit::Include { node } => {
+            let x = lookup(phrases, node)?;
+            if !s.excluded(x) {
+                return Err(format!("\"{node}\" is not excluded"));
+            }
+            Ok(Plan::Include(x))
+        }
+        Edit::Review {
+            node,
+            status,
+            comment,
+        } => {
+            let x = lookup(phrases, node)?;
+            if let Some(t) = s.alias_of(x) {
+                return Err(format!("\"{node}\" is merged into \"{}\"", id(t)));
+            }
+            Ok(Plan::Review(x, *status, comment.clone()))
+        }
+        Edit::Signoff { .. } => Ok(Plan::Nothing),
+    }
+}
+
+fn execute(s: &mut State, plan: Plan) {
+    match plan {
+        Plan::Move(x, p) => s.attach(x, p),
+        Plan::Pin(x, p) => {
+            s.attach(x, p);
+            s.pinned[x as usize] = true;
+        }
+        Plan::Unpin(x) => s.pinned[x as usize] = false,
+        Plan::Merge(sources, t) => {
+            for x in sources {
+                if s.is_ancestor(x, t) {
+                    // the target takes the source's place before the source's children move
+                    if let Some(gp) = s.parent[x as usize] {
+                        s.attach(t, gp);
+                    }
+                }
+                s.unplace(x, t);
+                s.pinned[x as usize] = false;
+                s.alias_of[x as usize] = Some(t);
+                let moved = std::mem::take(&mut s.aliases[x as usize]);
+                for &a in &moved {
+                    s.alias_of[a as usize] = Some(t);
+                }
+                s.aliases[t as usize].push(x);
+                s.aliases[t as usize].extend(moved);
+            }
+        }
+        Plan::Rename(x, label) => s.labels[x as usize] = label,
+        Plan::Exclude(x) => {
+            if s.is_node(x) {
+                let up = s.parent[x as usize].unwrap_or(s.root);
+                let kids = s.unplace(x, up);
+                s.excluded_from[x as usize] = Some((up, kids));
+            } else {
+                s.excluded_from[x as usize] = None;
+            }
+            s.pinned[x as usize] = false;
+            s.excluded[x as usize] = true;
+        }
+        Plan::Include(x) => {
+            s.excluded[x as usize] = false;
+            let Some((up, kids)) = s.excluded_from[x as usize].take() else {
+                return;
+            };
+            // back under the parent it had, or the node that parent was merged into, or the
+            // nearest such base ancestor, or the root
+            let usable = |s: &State, p: PhraseId| {
+                let mut r = p;
+                while let Some(t) = s.alias_of[r as usize] {
+                    r = t;
+                }
+                (s.is_node(r) && r != x).then_some(r)
+            };
+            let mut target = usable(s, up);
+            let mut cur = s.base_parent[x as usize];
+            while target.is_none() {
+                match cur {
+                    Some(a) => {
+                        target = usable(s, a);
+                        cur = s.base_parent[a as usize];
+                    }
+                    None => target = Some(s.root),
+                }
+            }
+            let target = target.unwrap_or(s.root);
+            s.attach(x, target);
+            for c in kids {
+                let ci = c as usize;
+                if s.is_node(c) && s.parent[ci] == Some(target) && !s.pinned[ci] {
+                    s.attach(c, x);
+                }
+            }
+        }
+        Plan::Review(x, status, comment) => {
+            s.review[x as usize] = status;
+            s.review_comment[x as usize] = comment;
+        }
+        Plan::Nothing => {}
+    }
+}
+
+/// Apply `edits` in order to `base`: the effective tree and the edits that were skipped.
+///
+/// Deterministic and pure. The result is always a valid tree with the base root: every
+/// phrase is exactly one of a node, an alias, an excluded phrase or an unplaced phrase.
+pub fn apply(
+    base: &Tree,
+    phrases: &PhraseTable,
+    edits: &[EditRecord],
+) -> (EffectiveTree, Vec<ApplyProblem>) {
+    let start = EffectiveTree::from_base(base, phrases);
+    let mut s = State::from_effective(&start);
+    let mut problems = Vec::new();
+    for (index, r) in edits.iter().enumerate() {
+        match validate(&s, phrases, &r.edit) {
+            Ok(plan) => execute(&mut s, plan),
+            Err(reason) => problems.push(ApplyProblem {
+                index,
+                op: r.edit.op().to_string(),
+                reason,
+            }),
+        }
+    }
+    match s.into_effective(phrases) {
+        Some(eff) => (eff, problems),
+        // unreachable by construction (each step keeps one root and no cycle); stay safe
+        None => {
+            problems.push(ApplyProblem {
+                index: edits.len(),
+                op: "apply".into(),
+                reason: "internal: the edits produced an invalid tree; showing the base tree"
+                    .into(),
+            });
+            (start, problems)
+        }
+    }
+}
+
+/// Would `edit` apply to the effective tree as it stands? `Err` carries the reason shown to
+/// the user (the GUI refuses a drop with it, the CLI exits 2 with it).
+pub fn check_edit(eff: &EffectiveTree, phrases: &PhraseTable, edit: &Edit) -> Result<(), String> {
+    if eff.labels.len() != phrases.len() {
+        return Err("the effective tree does not belong to this phrase table".into());
+    }
+    validate(eff, phrases, edit).map(|_| ())
+}
+
+/// Nodes of the effective tree whose review state is `unreviewed`.
+pub fn unreviewed_count(eff: &EffectiveTree) -> usize {
+    (0..eff.labels.len() as PhraseId)
+        .filter(|&p| eff.tree.is_placed(p) && eff.review[p as usize] == ReviewStatus::Unreviewed)
+        .count()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::model::phrase::PhraseRecord;
+    use std::collections::BTreeMap;
+
+    pub(crate) fn table(ids: &[&str]) -> PhraseTable {
+        let recs: Vec<PhraseRecord> = ids
+            .iter()
+            .map(|i| PhraseRecord {
+                id: Some(i.to_string()),
+                label: i.replace('-', " "),
+            })
+            .collect();
+        PhraseTable::from_records(&recs).unwrap()
+    }
+
+    fn tree(t: &PhraseTable, root: &str, pairs: &[(&str, &str)]) -> Tree {
+        let m: BTreeMap<String, String> = pairs
+            .iter()
+            .map(|(a, b)| (a.to_string(), b.to_string()))
+            .collect();
+        Tree::from_id_map(t, root, &m).unwrap()
+    }
+
+    fn rec(e: Edit) -> EditRecord {
+        EditRecord {
+            edit: e,
+            author: "ines".into(),
+            time: "2026-12-02T10:00:00Z".into(),
+            note: None,
+        }
+    }
+
+    fn garden() -> (PhraseTable, Tree) {
+        let t = table(&[
+            "plants",
+            "drought-tolerant",
+            "succulent",
+            "cactus",
+            "shade-loving",
+            "fern",
+            "hosta",
+            "compost",
+        ]);
+        let tr = tree(
+            &t,
+            "plants",
+            &[
+                ("drought-tolerant", "plants"),
+                ("succulent", "drought-tolerant"),
+                ("cactus", "succulent"),
+                ("shade-loving", "plants"),
+                ("fern", "shade-loving"),
+                ("hosta", "shade-loving"),
+            ],
+        );
+        (t, tr)
+    }
+
+    fn parent_id<'a>(eff: &EffectiveTree, t: &'a PhraseTable, id: &str) -> Option<&'a str> {
+        eff.tree.parent(t.get(id).unwrap()).map(|p| t.id(p))
+    }
+
+    #[test]
+    fn rfc3339_matches_known_instants() {
+        // Unix epoch by definition (POSIX.1-2017, "Seconds Since the Epoch")
+        assert_eq!(rfc3339_from_unix(0), "1970-01-01T00:00:00Z");
+        // the widely reported one-billion-second instant, 2001-09-09 01:46:40 UTC
+        assert_eq!(rfc3339_from_unix(1_000_000_000), "2001-09-09T01:46:40Z");
+        // leap day of a year divisible by 400 (Gregorian rule): 2000-02-29 = day 11016
+        assert_eq!(rfc3339_from_unix(11_016 * 86_400), "2000-02-29T00:00:00Z");
+        assert_eq!(rfc3339_from_unix(-1), "1969-12-31T23:59:59Z");
+        let now = now_rfc3339();
+        assert_eq!(now.len(), 20, "{now}");
+        assert!(now.ends_with('Z'));
+    }
+
+    #[test]
+    fn merge_moves_children_and_keeps_aliases() {
+        let (t, base) = garden();
+        let e = [rec(Edit::Merge {
+            sources: vec!["shade-loving".into()],
+            into: "drought-tolerant".into(),
+        })];
+        let (eff, probs) = apply(&base, &t, &e);
+        assert!(probs.is_empty(), "{probs:?}");
+        let sl = t.get("shade-loving").unwrap();
+        let dt = t.get("drought-tolerant").unwrap();
+        assert_eq!(eff.alias_of[sl as usize], Some(dt));
+        assert_eq!(eff.aliases[dt as usize], vec![sl]);
+        assert!(!eff.tree.is_placed(sl));
+        assert_eq!(parent_id(&eff, &t, "fern"), Some("drought-tolerant"));
+        assert_eq!(eff.resolve(sl), dt);
+    }
+
+    #[test]
+    fn merging_an_ancestor_into_its_descendant_keeps_a_tree() {
+        let (t, base) = garden();
+        let e = [rec(Edit::Merge {
+            sources: vec!["drought-tolerant".into()],
+            into: "cactus".into(),
+        })];
+        let (eff, probs) = apply(&base, &t, &e);
+        assert!(probs.is_empty(), "{probs:?}");
+        assert_eq!(parent_id(&eff, &t, "cactus"), Some("plants"));
+        assert_eq!(parent_id(&eff, &t, "succulent"), Some("cactus"));
+    }
+
+    #[test]
+    fn refusals_are_reported_with_index() {
+        let (t, base) = garden();
+        let e = [
+            rec(Edit::Reparent {
+                node: "drought-tolerant".into(),
+                parent: "cactus".into(),
+            }),
+            rec(Edit::Exclude {
+                node: "plants".into(),
+            }),
+            rec(Edit::Exclude {
+                node: "compost".into(),
+            }),
+            rec(Edit::Merge {
+                sources: vec!["fern".into()],
+                into: "compost".into(),
+            }),
+            rec(Edit::Rename {
+                node: "gone".into(),
+                label: "x".into(),
+            }),
+        ];
+        let (eff, probs) = apply(&base, &t, &e);
+        let idx: Vec<usize> = probs.iter().map(|p| p.index).collect();
+        assert_eq!(idx, vec![0, 1, 3, 4], "{probs:?}");
+        assert!(probs[0].reason.contains("cycle"));
+        assert!(probs[1].reason.contains("root"));
+        assert!(probs[2].reason.contains("excluded"));
+        assert!(probs[3].is_stale());
+        assert!(!probs[0].is_stale());
+        assert!(eff.excluded[t.get("compost").unwrap() as usize]);
+        assert_eq!(eff.tree, base);
+    }
+
+    #[test]
+    fn exclude_then_include_restores_structure() {
+        let (t, base) = garden();
+        let ex = rec(Edit::Exclude {
+            node: "shade-loving".into(),
+        });
+        let (eff, _) = apply(&base, &t, std::slice::from_ref(&ex));
+        assert_eq!(parent_id(&eff, &t, "fern"), Some("plants"));
+        assert!(!eff.tree.is_placed(t.get("shade-loving").unwrap()));
+        let inc = rec(Edit::Include {
+            node: "shade-loving".into(),
+        });
+        let (eff2, probs) = apply(&base, &t, &[ex, inc]);
+        assert!(probs.is_empty());
+        assert_eq!(eff2.tree, base);
+    }
+
+    #[test]
+    fn pins_hold_and_block_reparent() {
+        let (t, base) = garden();
+        let e = [
+            rec(Edit::Pin {
+                node: "hosta".into(),
+                parent: "drought-tolerant".into(),
+            }),
+            rec(Edit::Reparent {
+                node: "hosta".into(),
+                parent: "fern".into(),
+            }),
+            rec(Edit::Unpin {
+                node: "hosta".into(),
+            }),
+            rec(Edit::Review {
+                node: "hosta".into(),
+                status: ReviewStatus::Approved,
+                comment: "ok".into(),
+            }),
+        ];
+        let (eff, probs) = apply(&base, &t, &e);
+        assert_eq!(probs.len(), 1);
+        assert_eq!(probs[0].index, 1);
+        assert!(probs[0].reason.contains("pinned"));
+        assert_eq!(parent_id(&eff, &t, "hosta"), Some("drought-tolerant"));
+        let h = t.get("hosta").unwrap() as usize;
+        assert!(!eff.pinned[h]);
+        assert_eq!(eff.review[h], ReviewStatus::Approved);
+        assert_eq!(unreviewed_count(&eff), 6);
+        assert!(check_edit(&eff, &t, &e[1].edit).is_ok());
+    }
+
+    #[test]
+    fn file_round_trip_and_errors() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("overrides.json");
+        let mut layer = OverrideLayer::load(&p).unwrap();
+        assert!(layer.edits.is_empty() && !layer.is_dirty());
+        layer.push(rec(Edit::Exclude {
+            node: "fern".into(),
+        }));
+        assert!(layer.is_dirty());
+        layer.save(&p).unwrap();
+        assert!(!layer.is_dirty());
+        let text = std::fs::read_to_string(&p).unwrap();
+        assert!(text.contains("\"format\": \"treewright-overrides\""));
+        assert!(text.contains("\"version\": 1"));
+        let back = OverrideLayer::load(&p).unwrap();
+        assert_eq!(back.edits, layer.edits);
+
+        std::fs::write(
+            &p,
+            "{\"format\":\"treewright-overrides\",\"version\":7,\"edits\":[{}]}",
+        )
+        .unwrap();
+        let e = OverrideLayer::load(&p).unwrap_err();
+        assert!(
+            matches!(e, OverrideError::UnknownVersion { found: 7, .. }),
+            "{e}"
+        );
+        std::fs::write(
+            &p,
+            "{\"format\":\"treewright-overrides\",\"version\":1,\"edits\":[",
+        )
+        .unwrap();
+        let e = OverrideLayer::load(&p).unwrap_err();
+        assert!(matches!(e, OverrideError::Corrupt { .. }), "{e}");
+        assert!(e.to_string().contains("overrides.json"));
+        std::fs::write(&p, "{\"format\":\"other\",\"version\":1}").unwrap();
+        assert!(matches!(
+            OverrideLayer::load(&p).unwrap_err(),
+            OverrideError::WrongFormat { .. }
+        ));
+    }
+
+    #[test]
+    fn save_refuses_when_changed_on_disk() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("overrides.json");
+        let mut a = OverrideLayer::load(&p).unwrap();
+        let mut b = OverrideLayer::load(&p).unwrap();
+        a.push(rec(Edit::Exclude {
+            node: "fern".into(),
+        }));
+        a.save(&p).unwrap();
+        b.push(rec(Edit::Exclude {
+            node: "hosta".into(),
+        }));
+        let e = b.save(&p).unwrap_err();
+        assert!(matches!(e, OverrideError::ChangedOnDisk { .. }), "{e}");
+        assert!(e.to_string().contains("changed on disk"));
+        // the file still holds a's edit, untouched
+        assert_eq!(OverrideLayer::load(&p).unwrap().edits, a.edits);
+        // same length, different content is caught too (hash, not only length)
+        let mut c = OverrideLayer::load(&p).unwrap();
+        let text = std::fs::read_to_string(&p).unwrap().replace("fern", "fenr");
+        std::fs::write(&p, text).unwrap();
+        c.push(rec(Edit::Unpin { node: "x".into() }));
+        assert!(matches!(
+            c.save(&p).unwrap_err(),
+            OverrideError::ChangedOnDisk { .. }
+        ));
+        // deleting the file under us is a change as well
+        std::fs::remove_file(&p).unwrap();
+        assert!(c.save(&p).is_err());
+    }
+
+    #[test]
+    fn crash_between_write_and_rename_leaves_the_old_file() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("overrides.json");
+        let mut layer = OverrideLayer::load(&p).unwrap();
+        layer.push(rec(Edit::Exclude {
+            node: "fern".into(),
+        }));
+        layer.save(&p).unwrap();
+        let old = std::fs::read(&p).unwrap();
+        // the crash: the new version was (partly) written to the temporary file that
+        // fsutil::atomic_write renames over the target, and the rename never happened
+        let mut next = layer.edits.clone();
+        next.push(rec(Edit::Exclude {
+            node: "hosta".into(),
+        }));
+        let new_bytes = serialize_overrides(&next);
+        let tmp = dir
+            .path()
+            .join(format!(".overrides.json.{}.tmp", std::process::id()));
+        std::fs::write(&tmp, &new_bytes[..new_bytes.len() / 2]).unwrap();
+        std::fs::copy(&p, dir.path().join("overrides.json.bak")).unwrap();
+        // the next load sees the old file, whole
+        let reloaded = OverrideLayer::load(&p).unwrap();
+        assert_eq!(std::fs::read(&p).unwrap(), old);
+        assert_eq!(reloaded.edits, layer.edits);
+        // and saving afterwards replaces the stale temporary file and leaves none behind
+        let mut again = reloaded;
+        again.push(next[1].clone());
+        again.save(&p).unwrap();
+        assert_eq!(std::fs::read(&p).unwrap(), new_bytes);
+        assert_eq!(
+            std::fs::read(dir.path().join("overrides.json.bak")).unwrap(),
+            old
+        );
+        assert!(!tmp.exists());
+        // a torn main file (not produced by save) is an error, never an empty layer
+        std::fs::write(&p, &new_bytes[..new_bytes.len() - 5]).unwrap();
+        assert!(matches!(
+            OverrideLayer::load(&p).unwrap_err(),
+            OverrideError::Corrupt { .. }
+        ));
+    }
+
+    #[test]
+    fn retrained_base_pins_hold_and_vanished_phrases_go_stale() {
+        let (_, base) = garden();
+        let (t_old, _) = garden();
+        let edits = [
+            rec(Edit::Pin {
+                node: "hosta".into(),
+                parent: "shade-loving".into(),
+            }),
+            rec(Edit::Rename {
+                node: "cactus".into(),
+                label: "cacti".into(),
+            }),
+            rec(Edit::Merge {
+                sources: vec!["fern".into()],
+                into: "shade-loving".into(),
+            }),
+        ];
+        let (before, p0) = apply(&base, &t_old, &edits);
+        assert!(p0.is_empty());
+        assert_eq!(parent_id(&before, &t_old, "hosta"), Some("shade-loving"));
+        // re-trained: "cactus" and "fern" vanished, rows reordered, hosta moved
+        let t_new = table(&[
+            "compost",
+            "hosta",
+            "plants",
+            "shade-loving",
+            "succulent",
+            "drought-tolerant",
+        ]);
+        let new_base = tree(
+            &t_new,
+            "plants",
+            &[
+                ("drought-tolerant", "plants"),
+                ("succulent", "drought-tolerant"),
+                ("hosta", "succulent"),
+                ("shade-loving", "plants"),
+            ],
+        );
+        let (after, probs) = apply(&new_base, &t_new, &edits);
+        assert_eq!(parent_id(&after, &t_new, "hosta"), Some("shade-loving"));
+        assert!(after.pinned[t_new.get("hosta").unwrap() as usize]);
+        let stale: Vec<usize> = probs
+            .iter()
+            .filter(|p| p.is_stale())
+            .map(|p| p.index)
+            .collect();
+        assert_eq!(stale, vec![1, 2], "{probs:?}");
+        assert!(probs[0].reason.contains("\"cactus\""));
+    }
+
+    #[test]
+    fn undo_redo_stacks() {
+        let mut l = OverrideLayer::new();
+        assert!(!l.can_undo() && !l.can_redo());
+        l.push(rec(Edit::Exclude { node: "a".into() }));
+        l.push(rec(Edit::Exclude { node: "b".into() }));
+        let u = l.undo().unwrap();
+        assert_eq!(u.edit, Edit::Exclude { node: "b".into() });
+        assert!(l.can_redo());
+        assert_eq!(l.redo().unwrap(), u);
+        l.undo();
+        l.push(rec(Edit::Exclude { node: "c".into() }));
+        assert!(!l.can_redo());
+        assert_eq!(l.edits.len(), 2);
+    }
+}
