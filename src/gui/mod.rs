@@ -15,6 +15,7 @@ pub mod menu_bar;
 pub mod shortcuts;
 pub mod stats_panel;
 pub mod status_bar;
+pub mod suggest_panel;
 pub mod tree_panel;
 
 pub use app::{Action, App, Settings};

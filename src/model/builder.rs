@@ -9,10 +9,12 @@
 //!    the [`BuildParams::refine`] best of the screening are rescored exactly (O(m·(s + r)·d));
 //! 2. the number of sub-clusters k is chosen by the **elbow** of the k-means inertia curve
 //!    for k = 2..k_max (k-means fits) with kneedle (Satopaa et al. 2011, sensitivity S).
-//!    Without a knee, the smallest k whose inertia drop from k = 1 (the total sum of
+//!    k never exceeds half the cluster (sub-clusters of two members on average) nor its
+//!    number of distinct feature vectors. Without a knee, the smallest k whose inertia drop from k = 1 (the total sum of
 //!    squares, also in the report) reaches [`BuildParams::fallback_share`] of the drop from
 //!    k = 1 to k_max is taken. For clusters larger than [`BuildParams::elbow_sample`] the curve is computed on a
 //!    fixed random subsample of that size; the partition itself always uses every member;
+//!    (The curve's fits use [`BuildParams::elbow_n_init`] runs each, 1 by default.)
 //! 3. the members are partitioned by k-means (k-means++ init, `n_init` runs, fixed seed) on
 //!    the feature vector: the mean, followed by `with_variance · ln σ²` when that weight is
 //!    positive, so that breadth takes part;
@@ -45,13 +47,16 @@ pub const REPORT_FORMAT: &str = "treewright-build-report";
 /// Build report version.
 pub const REPORT_VERSION: u32 = 1;
 
+/// Largest accepted [`BuildParams::max_depth`] (keeps the recursion shallow).
+pub const MAX_DEPTH_LIMIT: usize = 64;
+
 /// Everything that steers a build. Written into the build report.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct BuildParams {
     /// Seed of every random choice (k-means++, samples).
     pub seed: u64,
-    /// Maximum depth of the tree (root = 0); nodes at this depth are leaves. ≥ 1.
+    /// Maximum depth of the tree (root = 0); nodes at this depth are leaves. 1 ..= 64.
     pub max_depth: usize,
     /// Largest k tried by the elbow method. ≥ 2.
     pub k_max: usize,
@@ -64,6 +69,8 @@ pub struct BuildParams {
     pub with_variance: f64,
     /// k-means++ runs per fit; the lowest inertia wins. ≥ 1.
     pub n_init: usize,
+    /// k-means++ runs per fit of the elbow curve (the partition uses `n_init`). ≥ 1.
+    pub elbow_n_init: usize,
     /// Kneedle sensitivity S. ≥ 0.
     pub sensitivity: f64,
     /// Without a knee: the smallest k reaching this share of the inertia drop. In (0, 1].
@@ -92,10 +99,11 @@ impl Default for BuildParams {
             similarity: Similarity::Elk,
             with_variance: 0.0,
             n_init: 3,
+            elbow_n_init: 1,
             sensitivity: 1.0,
             fallback_share: 0.9,
-            exact_limit: 256,
-            sample_size: 256,
+            exact_limit: 160,
+            sample_size: 128,
             refine: 32,
             elbow_sample: 1024,
             max_iter: 100,
@@ -120,10 +128,10 @@ impl BuildParams {
             }
         }
         rule(
-            self.max_depth >= 1,
+            (1..=MAX_DEPTH_LIMIT).contains(&self.max_depth),
             "max_depth",
             self.max_depth.to_string(),
-            "must be ≥ 1",
+            "must be between 1 and 64",
         )?;
         rule(
             self.k_max >= 2,
@@ -333,6 +341,94 @@ pub struct Representative {
     pub sample: usize,
 }
 
+/// Natural logarithm of a positive, finite, normal f64 without a library call, so that the
+/// similarity loops vectorise: x = 2ᵉ·m with m ∈ [√½, √2), ln m = 2 atanh((m − 1)/(m + 1))
+/// by its odd series up to the 17th power. The truncation error is below 2·10⁻¹⁶ relative
+/// to ln 2 for every such x (|f| ≤ 0.1716, f¹⁹/19 · 2 < 10⁻¹⁵·f); variances are floored
+/// well above the subnormal range, so the normal-range precondition holds.
+#[inline(always)]
+fn fast_ln(x: f64) -> f64 {
+    const SQRT_HALF_BITS: u64 = 0x3FE6_A09E_667F_3BCD; // √½
+    let bits = x.to_bits();
+    // shift the exponent so that the mantissa lands in [√½, √2)
+    let adj = bits.wrapping_sub(SQRT_HALF_BITS);
+    let e = (adj as i64 >> 52) as f64;
+    let m = f64::from_bits(bits.wrapping_sub(adj & 0xFFF0_0000_0000_0000));
+    let f = (m - 1.0) / (m + 1.0);
+    let s = f * f;
+    let poly = 1.0
+        + s * (1.0 / 3.0
+            + s * (1.0 / 5.0
+                + s * (1.0 / 7.0
+                    + s * (1.0 / 9.0
+                        + s * (1.0 / 11.0
+                            + s * (1.0 / 13.0 + s * (1.0 / 15.0 + s * (1.0 / 17.0))))))));
+    e * std::f64::consts::LN_2 + 2.0 * f * poly
+}
+
+/// Σₖ term(k) over the per-dimension slices `[s…]` of length ≥ d, with `lanes`
+/// interleaved accumulators (dimension k goes to accumulator k mod lanes) that are added
+/// up in f64 in a fixed order: independent chains let the compiler vectorise, and the
+/// result is the same for every call with the same operands (swapping i and j gives the
+/// same bits, as every term is symmetric).
+macro_rules! lane_sum {
+    ($t:ty, $lanes:expr, $d:expr, [$($s:ident),+], |$k:ident| $term:expr) => {{
+        let d: usize = $d;
+        let mut acc = [0.0 as $t; $lanes];
+        let full = d / $lanes * $lanes;
+        let mut base = 0;
+        while base < full {
+            // fixed-size chunks: no bounds checks, straight-line lanes the compiler vectorises
+            $(
+                let $s: &[$t; $lanes] = match $s[base..].first_chunk() {
+                    Some(c) => c,
+                    None => break,
+                };
+            )+
+            for $k in 0..$lanes {
+                acc[$k] += $term;
+            }
+            base += $lanes;
+        }
+        for (lane, $k) in (full..d).enumerate() {
+            acc[lane] += $term;
+        }
+        acc.iter().fold(0.0f64, |t, &a| t + a as f64)
+    }};
+}
+
+/// Σₖ ln(σ²ᵢₖ + σ²ⱼₖ) + Δₖ² / (σ²ᵢₖ + σ²ⱼₖ) (the ELK sum).
+fn elk_sum(mi: &[f64], mj: &[f64], vi: &[f64], vj: &[f64]) -> f64 {
+    let d = mi.len();
+    let (mj, vi, vj) = (&mj[..d], &vi[..d], &vj[..d]);
+    lane_sum!(f64, 4, d, [mi, mj, vi, vj], |k| {
+        let sum = vi[k] + vj[k];
+        let delta = mi[k] - mj[k];
+        fast_ln(sum) + delta * delta / sum
+    })
+}
+
+/// Σₖ Δₖ² / (8 σ̄²ₖ) + ½ ln σ̄²ₖ with σ̄² = (σ²ᵢ + σ²ⱼ)/2 (the Bhattacharyya sum).
+fn bc_sum(mi: &[f64], mj: &[f64], vi: &[f64], vj: &[f64]) -> f64 {
+    let d = mi.len();
+    let (mj, vi, vj) = (&mj[..d], &vi[..d], &vj[..d]);
+    lane_sum!(f64, 4, d, [mi, mj, vi, vj], |k| {
+        let bar = 0.5 * (vi[k] + vj[k]);
+        let delta = mi[k] - mj[k];
+        delta * delta / (8.0 * bar) + 0.5 * fast_ln(bar)
+    })
+}
+
+/// Σₖ σ²ᵢ/σ²ⱼ + σ²ⱼ/σ²ᵢ + Δ²(1/σ²ᵢ + 1/σ²ⱼ) (twice the symmetric KL plus 2d).
+fn kl_sum(mi: &[f64], mj: &[f64], vi: &[f64], vj: &[f64], ii: &[f64], ij: &[f64]) -> f64 {
+    let d = mi.len();
+    let (mj, vi, vj, ii, ij) = (&mj[..d], &vi[..d], &vj[..d], &ii[..d], &ij[..d]);
+    lane_sum!(f64, 4, d, [mi, mj, vi, vj, ii, ij], |k| {
+        let delta = mi[k] - mj[k];
+        vi[k] * ij[k] + vj[k] * ii[k] + delta * delta * (ii[k] + ij[k])
+    })
+}
+
 /// Pairwise similarity over a contiguous copy of some rows, with the per-row terms of the
 /// diagonal formulas precomputed once (no allocation per pair).
 struct SimBlock<'a> {
@@ -400,22 +496,12 @@ impl<'a> SimBlock<'a> {
         );
         match self.sim {
             Similarity::Elk => {
-                let mut s = 0.0;
-                for k in 0..d {
-                    let sum = vi[k] + vj[k];
-                    let delta = mi[k] - mj[k];
-                    s += sum.ln() + delta * delta / sum;
-                }
+                let s = elk_sum(mi, mj, vi, vj);
                 -0.5 * (d as f64 * LN_2PI + s)
             }
             Similarity::Bhattacharyya => {
-                let mut s = 0.0;
-                for k in 0..d {
-                    let bar = 0.5 * (vi[k] + vj[k]);
-                    let delta = mi[k] - mj[k];
-                    s += delta * delta / (8.0 * bar) + 0.5 * bar.ln();
-                }
-                let db = (s - self.quarter_ld[i] - other.quarter_ld[j]).max(0.0);
+                let s = bc_sum(mi, mj, vi, vj);
+                let db = (s - (self.quarter_ld[i] + other.quarter_ld[j])).max(0.0);
                 (-db).exp()
             }
             Similarity::Kl => {
@@ -423,11 +509,7 @@ impl<'a> SimBlock<'a> {
                     &self.inv[i * d..(i + 1) * d],
                     &other.inv[j * d..(j + 1) * d],
                 );
-                let mut s = 0.0;
-                for k in 0..d {
-                    let delta = mi[k] - mj[k];
-                    s += vi[k] * ij[k] + vj[k] * ii[k] + delta * delta * (ii[k] + ij[k]);
-                }
+                let s = kl_sum(mi, mj, vi, vj, ii, ij);
                 d as f64 - 0.5 * s
             }
         }
@@ -470,14 +552,154 @@ fn mean_scores(
         .collect()
 }
 
+/// ln x in f32 for the screening pass, by the same reduction as [`fast_ln`] with the
+/// series up to the 9th power (truncation below 10⁻⁹, under f32 precision).
+#[inline(always)]
+fn fast_ln_f32(x: f32) -> f32 {
+    const SQRT_HALF_BITS: u32 = 0x3F35_04F3; // √½
+    let bits = x.to_bits();
+    let adj = bits.wrapping_sub(SQRT_HALF_BITS);
+    let e = (adj as i32 >> 23) as f32;
+    let m = f32::from_bits(bits.wrapping_sub(adj & 0xFF80_0000));
+    let f = (m - 1.0) / (m + 1.0);
+    let s = f * f;
+    let poly = 1.0 + s * (1.0 / 3.0 + s * (1.0 / 5.0 + s * (1.0 / 7.0 + s * (1.0 / 9.0))));
+    e * std::f32::consts::LN_2 + 2.0 * f * poly
+}
+
+/// Screening scores: like [`mean_scores`] but in f32 arithmetic for diagonal covariance
+/// (the stored precision of the embeddings); used only to shortlist candidates, whose
+/// scores are then recomputed in f64.
+fn screen_scores(
+    g: &Gaussians,
+    sim: Similarity,
+    candidates: &[PhraseId],
+    refs: &[PhraseId],
+    cancel: &AtomicBool,
+) -> Result<Vec<f64>, BuildError> {
+    if g.kind() != CovarianceKind::Diagonal {
+        return mean_scores(g, sim, candidates, refs, cancel);
+    }
+    let d = g.dim();
+    let mut rm = Vec::with_capacity(refs.len() * d);
+    let mut rv = Vec::with_capacity(refs.len() * d);
+    for &r in refs {
+        rm.extend_from_slice(g.mean(r as usize));
+        rv.extend_from_slice(g.variances(r as usize));
+    }
+    let rinv: Vec<f32> = if sim == Similarity::Kl {
+        rv.iter().map(|v| 1.0 / v).collect()
+    } else {
+        Vec::new()
+    };
+    let out: Vec<Option<f64>> = candidates
+        .par_iter()
+        .with_min_len(8)
+        .map(|&me| {
+            if cancel.load(Ordering::Relaxed) {
+                return None;
+            }
+            let mi = g.mean(me as usize);
+            let vi = g.variances(me as usize);
+            let ii: Vec<f32> = if sim == Similarity::Kl {
+                vi.iter().map(|v| 1.0 / v).collect()
+            } else {
+                Vec::new()
+            };
+            let qi = 0.25 * g.log_det(me as usize);
+            let mut sum = 0.0;
+            let mut count = 0usize;
+            for (j, &r) in refs.iter().enumerate() {
+                if r == me {
+                    continue;
+                }
+                let mj = &rm[j * d..(j + 1) * d];
+                let vj = &rv[j * d..(j + 1) * d];
+                let (mi, vi) = (&mi[..d], &vi[..d]);
+                sum += match sim {
+                    Similarity::Elk => {
+                        let t = lane_sum!(f32, 8, d, [mi, mj, vi, vj], |k| {
+                            let s = vi[k] + vj[k];
+                            let delta = mi[k] - mj[k];
+                            fast_ln_f32(s) + delta * delta / s
+                        });
+                        -0.5 * (d as f64 * LN_2PI + t)
+                    }
+                    Similarity::Bhattacharyya => {
+                        let t = lane_sum!(f32, 8, d, [mi, mj, vi, vj], |k| {
+                            let bar = 0.5 * (vi[k] + vj[k]);
+                            let delta = mi[k] - mj[k];
+                            delta * delta / (8.0 * bar) + 0.5 * fast_ln_f32(bar)
+                        });
+                        let qj = 0.25 * g.log_det(r as usize);
+                        (-(t - (qi + qj)).max(0.0)).exp()
+                    }
+                    Similarity::Kl => {
+                        let ij = &rinv[j * d..(j + 1) * d];
+                        let ii = &ii[..d];
+                        let t = lane_sum!(f32, 8, d, [mi, mj, vi, vj, ii, ij], |k| {
+                            let delta = mi[k] - mj[k];
+                            vi[k] * ij[k] + vj[k] * ii[k] + delta * delta * (ii[k] + ij[k])
+                        });
+                        d as f64 - 0.5 * t
+                    }
+                };
+                count += 1;
+            }
+            Some(if count == 0 { 0.0 } else { sum / count as f64 })
+        })
+        .collect();
+    out.into_iter()
+        .map(|x| x.ok_or(BuildError::Cancelled))
+        .collect()
+}
+
+/// Up to this many members, [`exact_scores`] evaluates each pair once (the triangle is
+/// kept in memory: at most 8 MB·(this/1024)²/2); above it each row is computed in full.
+const SYMMETRIC_LIMIT: usize = 2048;
+
 /// Exact mean similarity of every member to every other member (O(m²·d)).
+///
+/// Each pair is evaluated once and used for both members (the similarities are symmetric
+/// to the last bit); each member's sum still runs in member order, so the result is the
+/// same as summing its row in full.
 pub fn exact_scores(
     g: &Gaussians,
     sim: Similarity,
     members: &[PhraseId],
     cancel: &AtomicBool,
 ) -> Result<Vec<f64>, BuildError> {
-    mean_scores(g, sim, members, members, cancel)
+    let m = members.len();
+    if m > SYMMETRIC_LIMIT {
+        return mean_scores(g, sim, members, members, cancel);
+    }
+    let b = SimBlock::new(g, sim, members);
+    // upper[i][j - i - 1] = pair(i, j) for j > i
+    let upper: Vec<Option<Vec<f64>>> = (0..m)
+        .into_par_iter()
+        .map(|i| {
+            if cancel.load(Ordering::Relaxed) {
+                return None;
+            }
+            Some(((i + 1)..m).map(|j| b.pair(i, &b, j)).collect())
+        })
+        .collect();
+    let upper: Vec<Vec<f64>> = upper
+        .into_iter()
+        .map(|r| r.ok_or(BuildError::Cancelled))
+        .collect::<Result<_, _>>()?;
+    Ok((0..m)
+        .map(|i| {
+            let mut sum = 0.0;
+            for (j, row) in upper.iter().enumerate().take(i) {
+                sum += row[i - j - 1];
+            }
+            for &v in &upper[i] {
+                sum += v;
+            }
+            if m > 1 { sum / (m - 1) as f64 } else { 0.0 }
+        })
+        .collect())
 }
 
 /// The representative of `members`: highest mean similarity to the others; ties go to the
@@ -509,7 +731,7 @@ pub fn representative(
     }
     // screen every member against a sample, then rescore the best few exactly
     let refs = random_subset(members, sample_size, seed);
-    let screened = mean_scores(g, sim, members, &refs, cancel)?;
+    let screened = screen_scores(g, sim, members, &refs, cancel)?;
     let mut order: Vec<usize> = (0..members.len()).collect();
     order.sort_by(|&a, &b| {
         screened[b]
@@ -764,37 +986,45 @@ fn choose_split(ctx: &Ctx, rest: &[PhraseId], seed: u64) -> Result<Split, BuildE
         full.clone()
     };
     let distinct = distinct_rows(&elbow_x);
-    let k_top = p.k_max.min(distinct).min(elbow_x.nrows());
+    // at most k_max, at most the number of distinct points, and sub-clusters of two
+    // members on average (k ≤ m / 2; always k ≥ 2 when there are 3 or more members)
+    let k_top = p.k_max.min(distinct).min((elbow_x.nrows() / 2).max(2));
     if k_top < 2 {
         return Ok(flat(
             rest,
             "members have identical features: they become children",
         ));
     }
-    let cfg = |k: usize| KMeansConfig {
+    let cfg = |k: usize, n_init: usize| KMeansConfig {
         k,
-        n_init: p.n_init,
+        n_init,
         max_iter: p.max_iter,
         tolerance: p.tolerance,
         seed: mix(seed, SALT_KMEANS + ((k as u64) << 8)),
     };
+    // the elbow fits are independent: run them in parallel, collect in k order
+    let fits: Vec<Result<kmeans::KMeansFit, BuildError>> = (2..=k_top)
+        .into_par_iter()
+        .map(|k| {
+            ctx.check()?;
+            Ok(kmeans::kmeans(elbow_x.view(), &cfg(k, p.elbow_n_init))?)
+        })
+        .collect();
     let mut k_tried = vec![1usize];
     let mut inertia = vec![kmeans::total_sum_of_squares(elbow_x.view())];
-    let mut fits = BTreeMap::new();
-    for k in 2..=k_top {
-        ctx.check()?;
-        let fit = kmeans::kmeans(elbow_x.view(), &cfg(k))?;
+    let mut labels_by_k = BTreeMap::new();
+    for (k, fit) in (2..=k_top).zip(fits) {
+        let fit = fit?;
         k_tried.push(k);
         inertia.push(fit.inertia);
-        if !sampled {
-            fits.insert(k, fit.labels);
-        }
+        labels_by_k.insert(k, fit.labels);
     }
     let (chosen_k, reason) = pick_k(&k_tried, &inertia, p)?;
     ctx.check()?;
-    let labels = match fits.remove(&chosen_k) {
-        Some(l) => l,
-        None => kmeans::kmeans(full.view(), &cfg(chosen_k))?.labels,
+    let reuse = !sampled && p.elbow_n_init >= p.n_init;
+    let labels = match labels_by_k.remove(&chosen_k) {
+        Some(l) if reuse => l,
+        _ => kmeans::kmeans(full.view(), &cfg(chosen_k, p.n_init))?.labels,
     };
     let mut groups: Vec<Vec<PhraseId>> = vec![Vec::new(); chosen_k];
     for (&r, &l) in rest.iter().zip(&labels) {
@@ -1017,6 +1247,60 @@ mod tests {
     }
 
     #[test]
+    fn fast_ln_matches_the_library_logarithm() {
+        let mut rng = Xoshiro256Plus::seed_from_u64(4);
+        let mut worst: f64 = 0.0;
+        for i in 0..200_000 {
+            let x: f64 = match i % 3 {
+                0 => rng.gen_range(1e-6..1e6),
+                1 => rng.gen_range(0.5..2.0),
+                _ => (rng.gen_range(-700.0..700.0f64)).exp(),
+            };
+            worst = worst.max((fast_ln(x) - x.ln()).abs() / x.ln().abs().max(1.0));
+        }
+        for x in [1.0, 2.0, 0.5, std::f64::consts::SQRT_2, 1e-300, 1e300] {
+            worst = worst.max((fast_ln(x) - x.ln()).abs() / x.ln().abs().max(1.0));
+        }
+        assert!(worst < 1e-14, "worst relative error {worst:e}");
+    }
+
+    #[test]
+    fn exact_scores_use_each_pair_once_with_the_same_result() {
+        let g = random_gaussians(120, 7, 5);
+        let rows: Vec<PhraseId> = (0..120).rev().collect();
+        let cancel = AtomicBool::new(false);
+        for sim in [Similarity::Elk, Similarity::Bhattacharyya, Similarity::Kl] {
+            let a = exact_scores(&g, sim, &rows, &cancel).unwrap();
+            let b = mean_scores(&g, sim, &rows, &rows, &cancel).unwrap();
+            let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+            assert_eq!(bits(&a), bits(&b), "{sim:?}");
+        }
+    }
+
+    #[test]
+    fn screening_scores_agree_with_the_f64_scores() {
+        let g = random_gaussians(300, 13, 8);
+        let rows: Vec<PhraseId> = (0..300).collect();
+        let cancel = AtomicBool::new(false);
+        for sim in [Similarity::Elk, Similarity::Bhattacharyya, Similarity::Kl] {
+            let a = mean_scores(&g, sim, &rows, &rows[..100], &cancel).unwrap();
+            let b = screen_scores(&g, sim, &rows, &rows[..100], &cancel).unwrap();
+            for (x, y) in a.iter().zip(&b) {
+                assert!(
+                    (x - y).abs() <= 1e-4 * x.abs().max(1e-3),
+                    "{sim:?}: {x} vs {y}"
+                );
+            }
+        }
+        let mut worst: f32 = 0.0;
+        for i in 1..100_000 {
+            let x = i as f32 * 1e-3;
+            worst = worst.max((fast_ln_f32(x) - x.ln()).abs() / x.ln().abs().max(1.0));
+        }
+        assert!(worst < 1e-6, "worst {worst:e}");
+    }
+
+    #[test]
     fn block_similarities_match_the_reference_formulas() {
         let g = random_gaussians(6, 5, 3);
         let rows: Vec<PhraseId> = (0..6).collect();
@@ -1233,6 +1517,46 @@ mod tests {
     }
 
     #[test]
+    fn full_covariance_builds_with_the_reference_similarities() {
+        // 2-D full covariances: two groups of 12, correlated within each phrase
+        let mut means = Vec::new();
+        let mut covs = Vec::new();
+        for i in 0..24 {
+            let c = if i < 12 { -4.0 } else { 4.0 };
+            means.extend([c + 0.1 * (i % 12) as f64, 0.05 * i as f64]);
+            covs.extend([1.0, 0.3, 0.3, 0.5]);
+        }
+        let g = Gaussians::from_full(24, 2, means, covs, 1e-6).unwrap();
+        let phrases = table(24);
+        let params = BuildParams {
+            exact_limit: 10,
+            sample_size: 8,
+            ..BuildParams::default()
+        };
+        let b = build(
+            &g,
+            &phrases,
+            None,
+            &params,
+            &quiet(),
+            &AtomicBool::new(false),
+        )
+        .unwrap();
+        let all: Vec<PhraseId> = (0..24).collect();
+        assert_covers(&b.tree_file, &phrases, &all);
+        let root = b.report.node(&b.tree_file.root).unwrap();
+        assert_eq!(root.score_sample, 8);
+        // the reported score is the exact mean similarity (gaussian.rs formulas)
+        let r = phrases.get(&b.tree_file.root).unwrap() as usize;
+        let want: f64 = (0..24)
+            .filter(|&j| j != r)
+            .map(|j| log_expected_likelihood(&g.get(r), &g.get(j)))
+            .sum::<f64>()
+            / 23.0;
+        assert!((root.representative_score - want).abs() < 1e-9);
+    }
+
+    #[test]
     fn one_and_two_phrases() {
         let g = Gaussians::from_diagonal(1, 2, vec![1.0, 2.0], vec![1.0, 1.0], 1e-6).unwrap();
         let phrases = table(1);
@@ -1356,6 +1680,14 @@ mod tests {
         )
         .unwrap_err();
         assert_eq!(e.to_string(), "parameter k_max is 1: it must be ≥ 2");
+        let deep = BuildParams {
+            max_depth: 65,
+            ..BuildParams::default()
+        };
+        assert_eq!(
+            deep.validate().unwrap_err().to_string(),
+            "parameter max_depth is 65: it must be between 1 and 64"
+        );
         let params = BuildParams {
             fallback_share: 0.0,
             ..BuildParams::default()
@@ -1391,8 +1723,9 @@ mod tests {
 
     #[test]
     fn sampled_representative_is_close_to_the_exact_one() {
-        // mid-size data: 1 531 phrases of a planted hierarchy in 16 dimensions, scored
-        // against 256 of them
+        // mid-size data: 1 531 phrases of a planted hierarchy in 16 dimensions, with the
+        // default sample size and number of finalists
+        let d = BuildParams::default();
         let (g, _) = planted(16, 5, 5, 60, 77);
         let members: Vec<PhraseId> = (0..g.len() as PhraseId).collect();
         let cancel = AtomicBool::new(false);
@@ -1402,8 +1735,18 @@ mod tests {
             let mut worst_rank = 0;
             let mut worst_gap: f64 = 0.0;
             for seed in 0..5 {
-                let rep = representative(&g, sim, &members, 1000, 256, 32, seed, &cancel).unwrap();
-                assert_eq!(rep.sample, 256);
+                let rep = representative(
+                    &g,
+                    sim,
+                    &members,
+                    d.exact_limit,
+                    d.sample_size,
+                    d.refine,
+                    seed,
+                    &cancel,
+                )
+                .unwrap();
+                assert_eq!(rep.sample, d.sample_size);
                 let got = exact[rep.row as usize];
                 let rank = exact.iter().filter(|&&s| s > got).count();
                 worst_rank = worst_rank.max(rank);
