@@ -573,3 +573,16 @@ fn dragging_a_row_onto_another_reparents_it() {
     );
     assert_eq!(h.state().doc.layer.edits.len(), 1);
 }
+
+#[test]
+fn the_centre_switches_to_the_shopper_suggestions() {
+    let (_t, dir) = demo_dir();
+    let mut h = open(&dir);
+    h.get_by_label("Shopper suggestions").click();
+    h.run();
+    h.get_by_label("Suggestion preview");
+    assert!(h.query_by_label("Ellipse projection").is_none());
+    h.get_by_label("Ellipses").click();
+    h.run();
+    h.get_by_label("Ellipse projection");
+}

@@ -18,6 +18,7 @@ use super::doc::Doc;
 use super::ellipse_panel::EllipsePanel;
 use super::findings_panel::FindingsPanel;
 use super::stats_panel::StatsPanel;
+use super::suggest_panel::{SuggestPanel, SuggestView};
 use super::tree_panel::TreePanel;
 use super::{autosave, menu_bar, shortcuts, status_bar};
 
@@ -166,6 +167,19 @@ pub struct Settings {
     pub show_ellipses: bool,
     /// Name stored with every edit and offered as reviewer.
     pub author: String,
+    /// What the centre of the window shows.
+    pub central: Central,
+}
+
+/// The views of the centre area.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
+#[serde(rename_all = "kebab-case")]
+pub enum Central {
+    /// The ellipse projection.
+    #[default]
+    Ellipses,
+    /// What shoppers would be offered for a phrase.
+    Suggestions,
 }
 
 impl Default for Settings {
@@ -180,6 +194,7 @@ impl Default for Settings {
                 .ok()
                 .filter(|u| !u.is_empty())
                 .unwrap_or_else(|| "curator".into()),
+            central: Central::Ellipses,
         }
     }
 }
@@ -226,6 +241,7 @@ pub struct App {
     ellipse_panel: EllipsePanel,
     stats_panel: StatsPanel,
     findings_panel: FindingsPanel,
+    suggest_panel: SuggestPanel,
     /// The open dialog, if any.
     pub dialog: Option<Dialog>,
     /// Last message for the status bar, and whether it is an error.
@@ -253,6 +269,7 @@ impl App {
             ellipse_panel: EllipsePanel::default(),
             stats_panel: StatsPanel::default(),
             findings_panel: FindingsPanel::default(),
+            suggest_panel: SuggestPanel::default(),
             dialog: None,
             message: None,
             allow_close: false,
@@ -576,12 +593,40 @@ impl App {
                 });
         }
         egui::CentralPanel::default().show(ui, |ui| {
-            if self.settings.show_ellipses {
-                actions.extend(self.ellipse_panel.ui(ui, &view));
-            } else {
-                ui.label("The ellipse view is hidden (View > Ellipse projection).");
+            ui.horizontal(|ui| {
+                ui.selectable_value(&mut self.settings.central, Central::Ellipses, "Ellipses");
+                ui.selectable_value(
+                    &mut self.settings.central,
+                    Central::Suggestions,
+                    "Shopper suggestions",
+                );
+            });
+            ui.separator();
+            match (self.settings.central, view.eff) {
+                (Central::Suggestions, Some(eff)) => {
+                    let sv = SuggestView {
+                        project: view.project,
+                        eff,
+                        revision: view.generation,
+                        selected: view.selection.first().copied(),
+                    };
+                    let picked = self.suggest_panel.ui(ui, &sv);
+                    actions.extend(picked.into_iter().take(1).map(Action::Reveal));
+                }
+                (Central::Suggestions, None) => {
+                    ui.label("Suggestions need a tree.");
+                }
+                (Central::Ellipses, _) if self.settings.show_ellipses => {
+                    actions.extend(self.ellipse_panel.ui(ui, &view));
+                }
+                (Central::Ellipses, _) => {
+                    ui.label("The ellipse view is hidden (View > Ellipse projection).");
+                }
             }
         });
+        if self.suggest_panel.bulk_running() {
+            ctx.request_repaint_after(Duration::from_millis(100));
+        }
 
         if let Some(d) = &mut self.dialog {
             let out = d.ui(&ctx, &view);
