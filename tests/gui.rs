@@ -285,6 +285,16 @@ fn the_build_dialog_runs_to_completion_and_replaces_the_base_tree() {
         h.state().doc.project.phrases.len(),
         "the built tree places every phrase"
     );
+    // the statistics of the new root show the builder's elbow curve
+    if h.query_by_label("Edits that no longer apply").is_some() {
+        h.get_by_label("Close").click();
+        h.run();
+    }
+    let root = h.state().doc.eff.as_ref().unwrap().tree.root();
+    h.state_mut().apply(treewright::gui::Action::Select(root));
+    h.run();
+    h.get_by_label("Build: elbow curve");
+    h.get_by_label_contains("chosen k = ");
 }
 
 #[test]
@@ -585,4 +595,39 @@ fn the_centre_switches_to_the_shopper_suggestions() {
     h.get_by_label("Ellipses").click();
     h.run();
     h.get_by_label("Ellipse projection");
+}
+
+#[test]
+fn ctrl_click_selects_two_nodes_for_the_contrast_projection() {
+    let (_t, dir) = demo_dir();
+    let mut h = open(&dir);
+    let root = h.state().doc.eff.as_ref().unwrap().tree.root();
+    let kids = h
+        .state()
+        .doc
+        .eff
+        .as_ref()
+        .unwrap()
+        .tree
+        .children(root)
+        .to_vec();
+    let label = |h: &Harness<'_, App>, p: PhraseId| {
+        let eff = h.state().doc.eff.as_ref().unwrap();
+        format!("{}  ({})", eff.label(p), eff.tree.children(p).len())
+    };
+    let (a, b) = (label(&h, kids[0]), label(&h, kids[1]));
+    h.get_by_label(&a).click();
+    h.run();
+    h.get_by_label(&b).click_modifiers(Modifiers::COMMAND);
+    h.run();
+    assert_eq!(h.state().selection, vec![kids[0], kids[1]]);
+    h.get_by_label("contrast of two selected").click();
+    h.run();
+    h.get_by_label_contains("(contrast axis ");
+    h.get_by_label_contains("This view explains");
+    // Shift-click extends from the anchor over the rows between
+    let d = label(&h, kids[3]);
+    h.get_by_label(&d).click_modifiers(Modifiers::SHIFT);
+    h.run();
+    assert_eq!(h.state().selection, kids[..4].to_vec());
 }

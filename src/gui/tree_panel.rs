@@ -175,8 +175,6 @@ impl TreePanel {
             return;
         }
         let tree = &eff.tree;
-        let cur = ctx.selection.last().copied();
-        let pos = cur.and_then(|c| self.rows.iter().position(|r| r.0 == c));
         let (up, down, left, right, home, end, f2, del) = ui.ctx().input_mut(|i| {
             (
                 i.consume_key(Modifiers::NONE, Key::ArrowUp),
@@ -189,6 +187,11 @@ impl TreePanel {
                 i.consume_key(Modifiers::NONE, Key::Delete),
             )
         });
+        if !(up || down || left || right || home || end || f2 || del) {
+            return;
+        }
+        let cur = ctx.selection.last().copied();
+        let pos = cur.and_then(|c| self.rows.iter().position(|r| r.0 == c));
         let go = |row: usize, this: &mut Self, actions: &mut Vec<Action>| {
             if let Some(&(p, _)) = this.rows.get(row) {
                 actions.push(Action::Select(p));
