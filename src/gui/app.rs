@@ -95,6 +95,8 @@ pub enum Action {
     CollapseAll,
     /// Show a message in the status bar.
     Notify(String),
+    /// Put the keyboard focus into the tree's search box.
+    FocusSearch,
     /// Write an export of the effective tree.
     Export {
         /// File format.
@@ -421,6 +423,7 @@ impl App {
                 }
             }
             Action::Notify(m) => self.notify(m),
+            Action::FocusSearch => self.focus_search = true,
             Action::Quit => {
                 if self.is_dirty() && !self.allow_close {
                     self.dialog = Some(Dialog::ConfirmClose);

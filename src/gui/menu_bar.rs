@@ -66,9 +66,7 @@ pub fn ui(ui: &mut egui::Ui, view: &ViewCtx, settings: &Settings, dirty: bool) -
                 actions.push(Action::Dialog(DialogRequest::Rename(p)));
             }
             if item(ui, "Find in tree", Some(Command::Search), has_tree) {
-                actions.push(Action::Notify(
-                    "Type in the search box above the tree".into(),
-                ));
+                actions.push(Action::FocusSearch);
             }
         });
         ui.menu_button("Tree", |ui| {
