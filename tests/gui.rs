@@ -631,3 +631,22 @@ fn ctrl_click_selects_two_nodes_for_the_contrast_projection() {
     h.run();
     assert_eq!(h.state().selection, kids[..4].to_vec());
 }
+
+#[test]
+fn the_panels_keep_their_size_from_frame_to_frame() {
+    let (_t, dir) = demo_dir();
+    let mut h = open(&dir);
+    let p = id_of(&h, "bird-netting");
+    h.state_mut().apply(treewright::gui::Action::Reveal(p));
+    h.run();
+    let edges = |h: &Harness<'_, App>| {
+        (
+            h.get_by_label("Clear").rect().max.x,
+            h.get_by_label("Shopper suggestions").rect().min.x,
+            h.get_by_label("Findings").rect().min.x,
+        )
+    };
+    let first = edges(&h);
+    h.run_steps(20);
+    assert_eq!(edges(&h), first);
+}

@@ -236,8 +236,12 @@ impl FindingsPanel {
                                         egui::Button::new(RichText::new("Apply fix").small()),
                                     )
                                     .on_hover_text(format!(
-                                        "{} (one edit; Ctrl+Z undoes)",
-                                        s.action
+                                        "{}{} (one edit; Ctrl+Z undoes)",
+                                        s.action,
+                                        s.target
+                                            .as_ref()
+                                            .map(|t| format!(" to {t}"))
+                                            .unwrap_or_default()
                                     ));
                                 let b = match why {
                                     Some(w) => b.on_disabled_hover_text(badges::plain(&format!(

@@ -257,19 +257,23 @@ impl TreePanel {
         let search = ui
             .horizontal(|ui| {
                 ui.label("Search:");
-                let r = ui.add(
-                    egui::TextEdit::singleline(&mut self.query)
-                        .hint_text("label or id (Ctrl+F)")
-                        .desired_width(ui.available_width() - 50.0),
-                );
-                if ui
-                    .small_button("Clear")
-                    .on_hover_text("Clear the search")
-                    .clicked()
-                {
-                    self.query.clear();
-                }
-                r
+                // right to left: the button first, then the field takes exactly what is left
+                // (a fixed width here would make the resizable panel grow every frame)
+                ui.with_layout(egui::Layout::right_to_left(egui::Align::Center), |ui| {
+                    if ui
+                        .small_button("Clear")
+                        .on_hover_text("Clear the search")
+                        .clicked()
+                    {
+                        self.query.clear();
+                    }
+                    ui.add(
+                        egui::TextEdit::singleline(&mut self.query)
+                            .hint_text("label or id (Ctrl+F)")
+                            .desired_width(f32::INFINITY),
+                    )
+                })
+                .inner
             })
             .inner;
         if ctx.focus_search {
