@@ -44,8 +44,11 @@
 //! recomputes the parent figures of the nodes whose parent or membership changed, the child
 //! figures (coverage) of their old and new parents, and the candidate search of the changed
 //! nodes, their old and new ancestors (whose set of descendants changed) and of every node
-//! whose cached answer is no longer valid; depth, subtree sizes, histograms and the finding
-//! list are rebuilt in O(n).
+//! whose cached answer is no longer valid (its best candidate left the tree, became its
+//! parent or its descendant). A phrase that joins the tree (an include, a placed phrase) is
+//! offered to the searches of its new siblings; other nodes see it at the next full audit.
+//! Depth, subtree sizes, histograms and the finding list are rebuilt in O(n). A different
+//! phrase table triggers a full audit.
 
 use std::collections::BTreeMap;
 use std::fmt::Write as _;
@@ -526,10 +529,19 @@ impl Searcher<'_> {
                     }
                 }
             }
-            next.sort_unstable_by(|a, b| a.1.total_cmp(&b.1).then(a.0.cmp(&b.0)));
+            // keep the `search_beam` lowest (ties by row); a node reachable twice (repaired
+            // index links) is kept once
+            let by =
+                |a: &(PhraseId, f64), b: &(PhraseId, f64)| a.1.total_cmp(&b.1).then(a.0.cmp(&b.0));
+            let width = self.cfg.search_beam;
+            if next.len() > width {
+                next.select_nth_unstable_by(width - 1, by);
+                next.truncate(width);
+            }
+            next.sort_unstable_by(by);
             next.dedup_by_key(|e| e.0);
             beam.clear();
-            beam.extend(next.iter().take(self.cfg.search_beam).map(|&(x, _)| x));
+            beam.extend(next.iter().map(|&(x, _)| x));
         }
         for &x in &self.index.extra {
             let k = (x != c && broader(x)).then(|| self.kl_to(c, x));
@@ -652,6 +664,11 @@ impl Auditor {
         problems: &[ApplyProblem],
     ) -> &AuditReport {
         let n = g.len();
+        if n != self.placement.len() || eff.tree.table_len() != n {
+            // a different phrase table: nothing cached applies
+            *self = Auditor::new(g, phrases, eff, problems, self.cfg.clone());
+            return &self.report;
+        }
         let new = Snapshot::of(eff);
         let mut stat_dirty = vec![false; n];
         let mut search_dirty = vec![false; n];
