@@ -1,6 +1,6 @@
 //! Full audit and re-audit after one edit on a synthetic nested tree of 100 000 nodes in
 //! 64 dimensions (diagonal covariance, `sample::synthetic_gaussians`, 10 children per
-//! cluster, 4 cluster levels). Run with `cargo bench --bench audit -- --sample-size 10`.
+//! cluster, 4 cluster levels, 5 % of the leaves moved to other clusters). Run with `cargo bench --bench audit -- --sample-size 10`.
 
 use std::hint::black_box;
 
@@ -19,7 +19,23 @@ fn bench(c: &mut Criterion) {
         full_covariance: false,
         seed: 2026,
     };
-    let (phrases, g, tf) = synthetic_gaussians(&spec);
+    let (phrases, g, mut tf) = synthetic_gaussians(&spec);
+    // misplace 5 % of the leaves under clusters picked by a fixed stride, so the audit has
+    // findings to rank (moving leaves keeps the tree valid)
+    let clusters: Vec<String> = {
+        let set: std::collections::BTreeSet<&String> = tf.parent.values().collect();
+        set.into_iter().cloned().collect()
+    };
+    let leaves: Vec<String> = tf
+        .parent
+        .keys()
+        .filter(|c| clusters.binary_search(c).is_err())
+        .cloned()
+        .collect();
+    for (i, leaf) in leaves.iter().step_by(20).enumerate() {
+        let to = clusters[(i * 7919) % clusters.len()].clone();
+        tf.parent.insert(leaf.clone(), to);
+    }
     let tree = Tree::from_id_map(&phrases, &tf.root, &tf.parent).expect("valid tree");
     let eff_a = EffectiveTree::from_base(&tree, &phrases);
     // one edit: move the last leaf under another cluster

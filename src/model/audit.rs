@@ -558,18 +558,48 @@ impl Searcher<'_> {
 struct Snapshot {
     parent: Vec<PhraseId>,
     placed: Vec<bool>,
+    review: Vec<ReviewStatus>,
+    pinned: Vec<bool>,
+    labels: Vec<String>,
 }
 
 impl Snapshot {
     fn of(eff: &EffectiveTree) -> Self {
-        let n = eff.tree.table_len();
+        let (parent, placed) = tree_arrays(eff);
         Snapshot {
-            parent: (0..n as PhraseId)
-                .map(|p| eff.tree.parent(p).unwrap_or(NO_PARENT))
-                .collect(),
-            placed: (0..n as PhraseId).map(|p| eff.tree.is_placed(p)).collect(),
+            parent,
+            placed,
+            review: eff.review.clone(),
+            pinned: eff.pinned.clone(),
+            labels: eff.labels.clone(),
         }
     }
+}
+
+/// Parent (or `NO_PARENT`) and membership of every phrase.
+fn tree_arrays(eff: &EffectiveTree) -> (Vec<PhraseId>, Vec<bool>) {
+    let n = eff.tree.table_len();
+    (
+        (0..n as PhraseId)
+            .map(|p| eff.tree.parent(p).unwrap_or(NO_PARENT))
+            .collect(),
+        (0..n as PhraseId).map(|p| eff.tree.is_placed(p)).collect(),
+    )
+}
+
+/// Rules whose findings belong to one node and are rebuilt only for the nodes an edit
+/// touches; the others (pairs, tree-relative thresholds, tree-wide counts) are rebuilt on
+/// every update.
+fn node_local(rule: &str) -> bool {
+    matches!(
+        rule,
+        UNPLACED
+            | INVERTED_GENERALITY
+            | WEAK_INCLUSION
+            | BETTER_PARENT
+            | WIDE_FANOUT
+            | SINGLE_CHILD_CHAIN
+    )
 }
 
 /// Holds the statistics, the candidate index and the per-node search results, and updates
@@ -669,7 +699,7 @@ impl Auditor {
             *self = Auditor::new(g, phrases, eff, problems, self.cfg.clone());
             return &self.report;
         }
-        let new = Snapshot::of(eff);
+        let (new_parent, new_placed) = tree_arrays(eff);
         let mut stat_dirty = vec![false; n];
         let mut search_dirty = vec![false; n];
         let mark = |v: &mut Vec<bool>, p: PhraseId| {
@@ -678,18 +708,18 @@ impl Auditor {
             }
         };
         for i in 0..n {
-            if self.snapshot.parent[i] == new.parent[i] && self.snapshot.placed[i] == new.placed[i]
+            if self.snapshot.parent[i] == new_parent[i] && self.snapshot.placed[i] == new_placed[i]
             {
                 continue;
             }
             let p = i as PhraseId;
-            let (old_par, new_par) = (self.snapshot.parent[i], new.parent[i]);
+            let (old_par, new_par) = (self.snapshot.parent[i], new_parent[i]);
             for x in [p, old_par, new_par] {
                 mark(&mut stat_dirty, x);
                 mark(&mut search_dirty, x);
             }
             // old and new ancestors: their sets of descendants changed
-            for chain in [&self.snapshot.parent, &new.parent] {
+            for chain in [&self.snapshot.parent, &new_parent] {
                 let mut cur = chain[i];
                 let mut steps = 0;
                 while cur != NO_PARENT && steps < n {
@@ -699,7 +729,7 @@ impl Auditor {
                 }
             }
             // a phrase that joined the tree may be the better answer for its new siblings
-            if new.placed[i] && !self.snapshot.placed[i] && new_par != NO_PARENT {
+            if new_placed[i] && !self.snapshot.placed[i] && new_par != NO_PARENT {
                 for &s in eff.tree.children(new_par) {
                     mark(&mut search_dirty, s);
                 }
@@ -710,7 +740,7 @@ impl Auditor {
         for (i, pl) in self.placement.iter().enumerate() {
             if let Some((b, _)) = pl.best {
                 let c = i as PhraseId;
-                if !eff.tree.is_placed(b) || new.parent[i] == b || order.in_subtree(c, b) {
+                if !eff.tree.is_placed(b) || new_parent[i] == b || order.in_subtree(c, b) {
                     search_dirty[i] = true;
                 }
             }
@@ -745,8 +775,53 @@ impl Auditor {
         for (p, pl) in fresh {
             self.placement[p as usize] = pl;
         }
-        self.snapshot = new;
-        self.report = assemble(g, phrases, eff, problems, &self.cfg, stats, &self.placement);
+        // nodes whose findings must be rebuilt: changed figures or search, review, pin or
+        // label; the children of nodes whose fan-out may have changed (single-child chains)
+        // and of renamed nodes (their explanations name the parent)
+        let mut dirty: Vec<bool> = (0..n).map(|i| stat_dirty[i] || search_dirty[i]).collect();
+        let mut renamed = vec![false; n];
+        for i in 0..n {
+            if self.snapshot.review[i] != eff.review[i] || self.snapshot.pinned[i] != eff.pinned[i]
+            {
+                dirty[i] = true;
+                self.snapshot.review[i] = eff.review[i];
+                self.snapshot.pinned[i] = eff.pinned[i];
+            }
+            if self.snapshot.labels[i] != eff.labels[i] {
+                dirty[i] = true;
+                renamed[i] = true;
+                self.snapshot.labels[i].clone_from(&eff.labels[i]);
+            }
+        }
+        for i in 0..n {
+            if stat_dirty[i] || renamed[i] {
+                for &c in eff.tree.children(i as PhraseId) {
+                    dirty[c as usize] = true;
+                }
+            }
+        }
+        let old = std::mem::take(&mut self.report.findings);
+        for f in &old {
+            if f.other.is_some_and(|o| renamed[o as usize]) {
+                dirty[f.node as usize] = true;
+            }
+        }
+        let kept: Vec<Finding> = old
+            .into_iter()
+            .filter(|f| node_local(f.rule) && !dirty[f.node as usize])
+            .collect();
+        self.snapshot.parent = new_parent;
+        self.snapshot.placed = new_placed;
+        self.report = assemble_with(
+            g,
+            phrases,
+            eff,
+            problems,
+            &self.cfg,
+            stats,
+            &self.placement,
+            Some((&dirty, kept)),
+        );
         &self.report
     }
 }
@@ -803,13 +878,34 @@ fn assemble(
     stats: Stats,
     placement: &[Placement],
 ) -> AuditReport {
+    assemble_with(g, phrases, eff, problems, cfg, stats, placement, None)
+}
+
+/// [`assemble`], or with `Some((dirty, kept))` only the node-local findings of the dirty
+/// nodes are rebuilt and `kept` (the others' node-local findings) is reused.
+#[allow(clippy::too_many_arguments)]
+fn assemble_with(
+    g: &Gaussians,
+    phrases: &PhraseTable,
+    eff: &EffectiveTree,
+    problems: &[ApplyProblem],
+    cfg: &AuditConfig,
+    stats: Stats,
+    placement: &[Placement],
+    incremental: Option<(&[bool], Vec<Finding>)>,
+) -> AuditReport {
     let n = g.len();
+    let (dirty, kept) = match incremental {
+        Some((d, k)) => (Some(d), k),
+        None => (None, Vec::with_capacity(1024)),
+    };
+    let local = |p: PhraseId| dirty.is_none_or(|d| d[p as usize]);
     let tree = &eff.tree;
     let root = tree.root();
     let id = |p: PhraseId| phrases.id(p).to_string();
     let label = |p: PhraseId| eff.label(p);
     let approved = |p: PhraseId| eff.review[p as usize] == ReviewStatus::Approved;
-    let mut out: Vec<Finding> = Vec::with_capacity(1024);
+    let mut out: Vec<Finding> = kept;
     let reparent = |node: PhraseId, to: PhraseId| Suggestion {
         action: "reparent".into(),
         target: Some(id(to)),
@@ -857,7 +953,7 @@ fn assemble(
         let i = p as usize;
         let s = &stats.nodes[i];
         if !tree.is_placed(p) {
-            if eff.alias_of[i].is_none() && !eff.excluded[i] {
+            if local(p) && eff.alias_of[i].is_none() && !eff.excluded[i] {
                 let (sugg, other) = match placement[i].best {
                     Some((b, _)) => (reparent(p, b), Some(b)),
                     None => (review(), None),
@@ -883,7 +979,7 @@ fn assemble(
             unreviewed += 1;
         }
         let pinned = eff.pinned[i];
-        if let Some(par) = tree.parent(p) {
+        if let Some(par) = tree.parent(p).filter(|_| local(p)) {
             let excess_ld = s.log_det - stats.nodes[par as usize].log_det;
             if excess_ld > cfg.inversion_margin {
                 out.push(Finding {
@@ -982,7 +1078,7 @@ fn assemble(
                 accepted: approved(p),
             });
         }
-        if fan > cfg.max_fanout {
+        if local(p) && fan > cfg.max_fanout {
             out.push(Finding {
                 rule: WIDE_FANOUT,
                 severity: cfg.severity_of(WIDE_FANOUT),
@@ -995,7 +1091,8 @@ fn assemble(
                 accepted: approved(p),
             });
         }
-        let chain_top = fan == 1 && tree.parent(p).is_none_or(|q| tree.children(q).len() != 1);
+        let chain_top =
+            local(p) && fan == 1 && tree.parent(p).is_none_or(|q| tree.children(q).len() != 1);
         if chain_top {
             let mut len = 0usize;
             let mut cur = p;

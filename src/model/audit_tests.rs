@@ -587,6 +587,12 @@ fn update_equals_a_full_recompute() {
     p2[7] = 0;
     let mut eff2 = nest.eff(&p2);
     eff2.review[3] = ReviewStatus::Approved;
+    eff2.pinned[5] = true;
+    // renames reach the explanations of other nodes' findings
+    for f in r1.findings.iter().filter(|f| f.other.is_some()).take(3) {
+        eff2.labels[f.other.unwrap() as usize] = format!("renamed {}", f.node);
+    }
+    eff2.labels[1] = "renamed one".into();
     let r2 = auditor.update(&g, &nest.phrases, &eff2, &[]).clone();
     // a fresh auditor on the first tree, fully recomputed on the same index
     let fresh = Auditor::new(&g, &nest.phrases, &eff0, &[], cfg);
