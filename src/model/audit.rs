@@ -5,9 +5,9 @@
 //! |---|---|---|---|
 //! | `inverted-generality` | error | ln det Σ(child) − ln det Σ(parent) > `inversion_margin` | reparent to the best broader node |
 //! | `weak-inclusion` | warning | containment in the parent < `containment_min` | reparent to the best broader node, else review |
-//! | `better-parent` | error | a broader node that is not a descendant has KL(child ‖ it) lower than KL(child ‖ parent) by more than max(`better_parent_margin`, `better_parent_ratio` · KL(child ‖ parent)) | reparent to it |
+//! | `better-parent` | error | a node broader than the child by more than `better_parent_broader` nats, not its descendant, has KL(child ‖ it) lower than KL(child ‖ parent) by more than max(`better_parent_margin`, `better_parent_ratio` · KL(child ‖ parent)) and contains the child at least as well as the parent, up to `better_parent_containment_slack` | reparent to it |
 //! | `near-duplicate` | warning | BC ≥ `duplicate_bc_min` and abs(Δ ln det Σ) ≤ `duplicate_generality_margin` | merge the smaller subtree into the larger |
-//! | `coverage-gap` | warning | a node with ≥ 2 children whose children cover less than min(`coverage_min`, `coverage_relative` × the median coverage of such nodes) of it | review |
+//! | `coverage-gap` | warning | a node with ≥ 2 children whose children cover less than t = min(`coverage_min`, `coverage_relative` × the median coverage of such nodes) of it, by more than two standard errors at t (√(t (1 − t) / N)) | review |
 //! | `single-child-chain` | info | a chain of ≥ `single_child_chain_min` nodes with exactly one child (reported at its top) | review |
 //! | `wide-fanout` | info | more than `max_fanout` children | review |
 //! | `unplaced` | warning | a phrase neither in the tree, merged nor excluded | reparent (place) under the best broader node |
@@ -58,10 +58,11 @@ use serde::{Deserialize, Serialize};
 
 use super::edit::{Edit, ReviewStatus};
 use super::effective::{ApplyProblem, EffectiveTree};
+use super::gaussian::Sampled;
 use super::gaussian::{Gaussians, PhraseId, bhattacharyya_coefficient, kl};
 use super::kernels;
 use super::phrase::PhraseTable;
-use super::stats::{Prepared, Shape as Order, Stats, StatsEngine};
+use super::stats::{Shape as Order, Stats, StatsEngine};
 use super::tree::NO_PARENT;
 
 /// How serious a finding is. Ordered: `Info < Warning < Error`.
@@ -151,6 +152,9 @@ pub struct AuditConfig {
     pub better_parent_margin: f64,
     /// `better-parent`: least KL improvement as a share of KL(child ‖ parent) (0.1).
     pub better_parent_ratio: f64,
+    /// `better-parent`: the candidate must also contain the child about as well as the
+    /// parent does: containment in it ≥ containment in the parent − this (0.1).
+    pub better_parent_containment_slack: f64,
     /// `better-parent`: a candidate must be broader than the child by more than this many
     /// nats of ln det Σ (1.5), so that near-equal siblings are not proposed as parents.
     pub better_parent_broader: f64,
@@ -186,6 +190,7 @@ impl Default for AuditConfig {
             better_parent_margin: 1.5,
             better_parent_ratio: 0.1,
             better_parent_broader: 1.5,
+            better_parent_containment_slack: 0.1,
             duplicate_bc_min: 0.9,
             duplicate_generality_margin: 2.0,
             coverage_min: 0.6,
@@ -269,6 +274,10 @@ impl AuditConfig {
         nonneg("better_parent_margin", self.better_parent_margin)?;
         unit("better_parent_ratio", self.better_parent_ratio)?;
         nonneg("better_parent_broader", self.better_parent_broader)?;
+        unit(
+            "better_parent_containment_slack",
+            self.better_parent_containment_slack,
+        )?;
         if !(self.duplicate_bc_min > 0.0 && self.duplicate_bc_min <= 1.0) {
             return Err(format!(
                 "duplicate_bc_min must be in (0, 1], got {}",
@@ -405,6 +414,8 @@ struct Placement {
     best: Option<(PhraseId, f64)>,
     /// Near-duplicate partners with their Bhattacharyya coefficient.
     dups: Vec<(PhraseId, f64)>,
+    /// Containment of the node in `best`, when `best` fits better than the parent.
+    best_containment: Option<Sampled>,
 }
 
 /// The kept navigation hierarchy of the pruned search.
@@ -434,7 +445,7 @@ impl CandidateIndex {
 /// Everything the candidate search reads.
 struct Searcher<'a> {
     g: &'a Gaussians,
-    prep: Option<&'a Prepared>,
+    engine: &'a StatsEngine,
     eff: &'a EffectiveTree,
     order: &'a Order,
     index: &'a CandidateIndex,
@@ -444,7 +455,7 @@ struct Searcher<'a> {
 
 impl Searcher<'_> {
     fn kl_to(&self, c: PhraseId, x: PhraseId) -> f64 {
-        match self.prep {
+        match self.engine.prep.as_ref() {
             Some(prep) => {
                 let d = self.g.dim();
                 let (mc, mx) = (self.g.mean(c as usize), self.g.mean(x as usize));
@@ -461,7 +472,7 @@ impl Searcher<'_> {
     /// Exact BC when the pair passes the cheap bound, else None.
     fn dup_bc(&self, c: PhraseId, x: PhraseId) -> Option<f64> {
         let dmax = -self.cfg.duplicate_bc_min.ln();
-        if self.prep.is_some() {
+        if self.engine.prep.is_some() {
             let (mc, mx) = (self.g.mean(c as usize), self.g.mean(x as usize));
             let (vc, vx) = (self.g.variances(c as usize), self.g.variances(x as usize));
             let bound = 0.25 * kernels::mean_term(mc, vc, mx, vx) as f64;
@@ -474,6 +485,16 @@ impl Searcher<'_> {
     }
 
     fn place(&self, c: PhraseId) -> Placement {
+        let mut out = self.search(c);
+        if let (Some((b, kb)), Some(par)) = (out.best, self.eff.tree.parent(c))
+            && kb < self.kl_to(c, par)
+        {
+            out.best_containment = Some(self.engine.containment(self.g, c, b));
+        }
+        out
+    }
+
+    fn search(&self, c: PhraseId) -> Placement {
         let ldc = self.g.log_det(c as usize);
         let margin = self.cfg.duplicate_generality_margin;
         let parent = self.eff.tree.parent(c).unwrap_or(NO_PARENT);
@@ -637,7 +658,7 @@ impl Auditor {
         let search = |index: &CandidateIndex, nodes: &[PhraseId], placement: &mut [Placement]| {
             let searcher = Searcher {
                 g,
-                prep: engine.prep.as_ref(),
+                engine: &engine,
                 eff,
                 order: &order,
                 index,
@@ -752,7 +773,7 @@ impl Auditor {
         self.engine.refresh(&mut stats, g, eff, &stat_list, &order);
         let searcher = Searcher {
             g,
-            prep: self.engine.prep.as_ref(),
+            engine: &self.engine,
             eff,
             order: &order,
             index: &self.index,
@@ -1025,7 +1046,11 @@ fn assemble_with(
             if let (Some((b, kb)), Some(kp)) = (placement[i].best, s.kl_to_parent) {
                 let need = cfg.better_parent_margin.max(cfg.better_parent_ratio * kp);
                 let gain = kp - kb;
-                if gain > need {
+                let cont_par = s.containment.map_or(0.0, |c| c.value);
+                let cont_best = placement[i].best_containment;
+                let contains = cont_best
+                    .is_some_and(|c| c.value >= cont_par - cfg.better_parent_containment_slack);
+                if gain > need && contains {
                     out.push(Finding {
                         rule: BETTER_PARENT,
                         severity: cfg.severity_of(BETTER_PARENT),
@@ -1034,12 +1059,14 @@ fn assemble_with(
                         score: gain,
                         threshold: need,
                         explanation: format!(
-                            "\"{}\" fits \"{}\" better than its parent \"{}\": KL {:.2} vs {:.2} nats",
+                            "\"{}\" fits \"{}\" better than its parent \"{}\": KL {:.2} vs {:.2} nats, containment {:.1} % vs {:.1} %",
                             label(p),
                             label(b),
                             label(par),
                             kb,
-                            kp
+                            kp,
+                            100.0 * cont_best.map_or(0.0, |c| c.value),
+                            100.0 * cont_par
                         ),
                         suggestion: Some(if pinned {
                             Suggestion {
@@ -1058,7 +1085,8 @@ fn assemble_with(
         let fan = tree.children(p).len();
         if fan >= 2
             && let Some(c) = s.coverage
-            && c.value < cov_thr
+            && c.value
+                < cov_thr - 2.0 * (cov_thr * (1.0 - cov_thr) / c.samples.max(1) as f64).sqrt()
         {
             out.push(Finding {
                 rule: COVERAGE_GAP,

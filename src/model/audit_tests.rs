@@ -268,7 +268,7 @@ fn parent_figures_agree_with_the_gaussian_module() {
     let cfg = AuditConfig::default();
     let s = Searcher {
         g: &g,
-        prep: engine.prep.as_ref(),
+        engine: &engine,
         eff: &eff,
         order: &order,
         index: &index,
@@ -599,7 +599,7 @@ fn update_equals_a_full_recompute() {
     let order = Order::of(&eff2);
     let s = Searcher {
         g: &g,
-        prep: fresh.engine.prep.as_ref(),
+        engine: &fresh.engine,
         eff: &eff2,
         order: &order,
         index: &fresh.index,
@@ -799,7 +799,7 @@ fn update_after_a_merge_and_an_exclusion_equals_a_full_recompute() {
     let order = Order::of(&eff1);
     let s = Searcher {
         g: &g,
-        prep: auditor.engine.prep.as_ref(),
+        engine: &auditor.engine,
         eff: &eff1,
         order: &order,
         index: &auditor.index,
@@ -826,4 +826,62 @@ fn update_after_a_merge_and_an_exclusion_equals_a_full_recompute() {
         &placement,
     );
     assert_eq!(got, want);
+}
+
+#[test]
+fn misplaced_nodes_are_found_on_the_sample_generator() {
+    // the same acceptance figures on the sample module's synthetic generator (issue 5)
+    use crate::model::sample::{SyntheticSpec, synthetic_gaussians};
+    for spec in [
+        SyntheticSpec {
+            phrases: 2000,
+            dim: 16,
+            ..SyntheticSpec::default()
+        },
+        SyntheticSpec {
+            phrases: 3000,
+            dim: 32,
+            branching: 5,
+            depth: 3,
+            seed: 4,
+            ..SyntheticSpec::default()
+        },
+    ] {
+        let (phrases, g, tf) = synthetic_gaussians(&spec);
+        let tree = Tree::from_id_map(&phrases, &tf.root, &tf.parent).unwrap();
+        let truth: Vec<PhraseId> = (0..phrases.len() as PhraseId)
+            .map(|p| tree.parent(p).unwrap_or(NO_PARENT))
+            .collect();
+        let (wrong, moved) = misplace(&truth, 0.05, spec.seed + 17);
+        let root = tree.root();
+        let edges: Vec<(PhraseId, PhraseId)> = wrong
+            .iter()
+            .enumerate()
+            .filter(|(c, p)| **p != NO_PARENT && *c as PhraseId != root)
+            .map(|(c, &p)| (c as PhraseId, p))
+            .collect();
+        let t2 = Tree::from_edges(&phrases, root, &edges).unwrap();
+        let eff = EffectiveTree::from_base(&t2, &phrases);
+        let r = audit(&g, &phrases, &eff, &[], &AuditConfig::default());
+        let flags = placement_flags(&r);
+        let hit = moved.iter().filter(|m| flags.contains(m)).count();
+        let recall = hit as f64 / moved.len() as f64;
+        let precision = hit as f64 / flags.len().max(1) as f64;
+        let named = moved
+            .iter()
+            .filter(|&&m| {
+                r.findings.iter().any(|f| {
+                    f.rule == BETTER_PARENT && f.node == m && f.other == Some(truth[m as usize])
+                })
+            })
+            .count() as f64
+            / moved.len() as f64;
+        eprintln!(
+            "sample generator d={}: moved {} flagged {} recall {recall:.3} precision {precision:.3} true parent {named:.3}",
+            spec.dim,
+            moved.len(),
+            flags.len()
+        );
+        assert!(recall >= 0.9 && precision >= 0.8 && named >= 0.7);
+    }
 }
