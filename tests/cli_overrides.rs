@@ -317,6 +317,18 @@ fn edit_apply_signoff_verify_export() {
         "{t}"
     );
     assert!(t.contains("stale edits (2)"), "{t}");
+    // the same re-trained tree as a CSV edge list gives the same report
+    let csv_tree = tmp.path().join("retrained.csv");
+    std::fs::write(
+        &csv_tree,
+        "child,parent\ngarden-supplies,\ndrought-tolerant,garden-supplies\n\
+         succulent,drought-tolerant\nshade-loving,garden-supplies\nfern,shade-loving\n\
+         hosta,shade-loving\nslug-resistant,hosta\nmulch,garden-supplies\n",
+    )
+    .unwrap();
+    let o = tw(&["diff", p, "--against", csv_tree.to_str().unwrap()]);
+    assert_eq!(code(&o), 0, "{}", text(&o));
+    assert_eq!(text(&o), t);
 }
 
 #[test]
@@ -341,4 +353,143 @@ fn corrupt_or_changed_override_file_is_an_error() {
         std::fs::read_to_string(dir.join("overrides.json")).unwrap(),
         "not json"
     );
+}
+
+#[test]
+fn scripted_sequence_on_the_demo_project() {
+    let tmp = tempfile::tempdir().unwrap();
+    let src = Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-projects/fernhollow");
+    let dir = tmp.path().join("fernhollow");
+    std::fs::create_dir_all(&dir).unwrap();
+    for e in std::fs::read_dir(&src).unwrap() {
+        let e = e.unwrap();
+        if e.file_name() != "overrides.json" {
+            std::fs::copy(e.path(), dir.join(e.file_name())).unwrap();
+        }
+    }
+    let p = dir.to_str().unwrap();
+    for args in [
+        vec![
+            "edit",
+            p,
+            "reparent",
+            "bee friendly",
+            "houseplants",
+            "--author",
+            "ines",
+        ],
+        vec!["edit", p, "pin", "aloe", "--author", "ines"],
+        vec![
+            "edit",
+            p,
+            "merge",
+            "bark mulch",
+            "--into",
+            "mulches",
+            "--author",
+            "ines",
+        ],
+        vec![
+            "edit",
+            p,
+            "rename",
+            "autumn",
+            "autumn range",
+            "--author",
+            "ines",
+        ],
+        vec!["edit", p, "exclude", "autumn-planters", "--author", "ines"],
+        vec![
+            "edit",
+            p,
+            "reparent",
+            "grow-lights",
+            "houseplants",
+            "--author",
+            "ines",
+        ],
+        vec!["edit", p, "review", "aloe", "approved", "--author", "rowan"],
+    ] {
+        let o = tw(&args);
+        assert_eq!(code(&o), 0, "{args:?}: {}", text(&o));
+    }
+    let out = tmp.path().join("eff.json");
+    assert_eq!(code(&tw(&["apply", p, "--out", out.to_str().unwrap()])), 0);
+    assert_eq!(code(&tw(&["signoff", p, "--reviewer", "rowan"])), 0);
+    assert_eq!(code(&tw(&["verify", p])), 0);
+    let o = tw(&["edit", p, "rename", "aloe", "aloe vera", "--author", "ines"]);
+    assert_eq!(code(&o), 0, "{}", text(&o));
+    let o = tw(&["verify", p]);
+    assert_eq!(code(&o), 1);
+    assert!(
+        text(&o).contains("renamed   aloe: \"aloe\" → \"aloe vera\""),
+        "{}",
+        text(&o)
+    );
+    let ttl = tmp.path().join("demo.ttl");
+    let export = || {
+        tw(&[
+            "export",
+            p,
+            "--format",
+            "skos",
+            "--out",
+            ttl.to_str().unwrap(),
+            "--require-signoff",
+        ])
+    };
+    assert_eq!(code(&export()), 1);
+    assert!(!ttl.exists());
+    assert_eq!(code(&tw(&["signoff", p, "--reviewer", "rowan"])), 0);
+    assert_eq!(code(&export()), 0);
+    let text = std::fs::read_to_string(&ttl).unwrap();
+    assert!(text.contains("\"aloe vera\"@en") && text.contains("skos:altLabel \"bark mulch\"@en"));
+    assert!(!text.contains("/autumn-planters>"));
+}
+
+#[test]
+fn json_outputs_and_empty_undo() {
+    let tmp = tempfile::tempdir().unwrap();
+    let dir = tmp.path().join("proj");
+    write_project(&dir);
+    let p = dir.to_str().unwrap();
+    let o = tw(&["undo", p]);
+    assert_eq!(code(&o), 2);
+    assert!(text(&o).contains("no edit to undo"), "{}", text(&o));
+    assert!(!dir.join("overrides.json").exists());
+    let o = tw(&["verify", p, "--json"]);
+    assert_eq!(code(&o), 1);
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["state"], "no-signoff");
+    assert_eq!(
+        code(&tw(&[
+            "edit",
+            p,
+            "merge",
+            "fern",
+            "hosta",
+            "--into",
+            "shade loving",
+            "--author",
+            "ines"
+        ])),
+        0
+    );
+    let o = tw(&["diff", p, "--json"]);
+    assert_eq!(code(&o), 0);
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let kinds: Vec<&str> = v
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| c["kind"].as_str().unwrap())
+        .collect();
+    // fern and hosta merged; slug-resistant (child of hosta) moved to shade-loving
+    assert_eq!(kinds, vec!["merged", "merged", "moved"], "{v}");
+    assert_eq!(code(&tw(&["signoff", p, "--reviewer", "rowan"])), 0);
+    let o = tw(&["verify", p, "--json"]);
+    assert_eq!(code(&o), 0);
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["state"], "valid");
+    assert_eq!(v["hash"].as_str().unwrap().len(), 64);
 }

@@ -46,15 +46,16 @@ pub fn run(args: &DiffArgs) -> Result<(), CliError> {
         return Ok(());
     };
     let file = other.display().to_string();
-    if other
+    let tf: TreeFile = if other
         .extension()
         .is_some_and(|e| e.eq_ignore_ascii_case("csv"))
     {
-        return Err(CliError::bad_input(format!(
-            "{file}: --against reads a JSON tree file ({{\"root\", \"parent\"}})"
-        )));
-    }
-    let tf: TreeFile = read_json(other)?;
+        let bytes = std::fs::read(other)
+            .map_err(|e| CliError::bad_input(format!("{file}: cannot read: {e}")))?;
+        crate::model::project::parse_tree_csv(&bytes, &file)?
+    } else {
+        read_json(other)?
+    };
     let d = diff_retrained(&s.base, phrases, &s.layer.edits, &tf, &file)
         .map_err(CliError::bad_input)?;
     if args.json {

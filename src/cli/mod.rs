@@ -17,6 +17,7 @@ pub mod info;
 pub mod progress;
 pub mod sample;
 pub mod signoff;
+pub mod suggest;
 pub mod undo;
 pub mod verify;
 
@@ -50,8 +51,6 @@ pub enum Command {
     Info(info::InfoArgs),
     /// Audit the effective tree: ranked findings with numbers and suggested fixes.
     Audit(audit::AuditArgs),
-    /// Write the Fernhollow demo project or a synthetic project.
-    Sample(sample::SampleArgs),
     /// Record an edit in the override layer (refused edits exit 2 and write nothing).
     Edit(edit::EditArgs),
     /// Drop the last edit of the override layer.
@@ -66,6 +65,10 @@ pub enum Command {
     Export(export::ExportArgs),
     /// Base vs effective tree, or what a re-trained tree changes.
     Diff(diff::DiffArgs),
+    /// Preview the broader / narrower / sibling offers for a phrase, or check them all.
+    Suggest(suggest::SuggestArgs),
+    /// Write the Fernhollow demo project or a synthetic project.
+    Sample(sample::SampleArgs),
 }
 
 /// A failed subcommand: the message to print and the exit code.
@@ -101,12 +104,37 @@ impl From<crate::model::LoadError> for CliError {
     }
 }
 
+/// The effective tree of a project: its base tree with the override layer applied, plus
+/// the edits that could not be applied.
+pub fn effective_tree(
+    project: &crate::model::Project,
+) -> Result<
+    (
+        crate::model::effective::EffectiveTree,
+        Vec<crate::model::effective::ApplyProblem>,
+    ),
+    CliError,
+> {
+    let base = project.tree.as_ref().ok_or_else(|| {
+        CliError::bad_input(format!(
+            "{}: the project has no tree yet (run `treewright build`)",
+            project.dir.display()
+        ))
+    })?;
+    let layer = crate::model::overrides::OverrideLayer::load(&project.overrides_path())
+        .map_err(CliError::bad_input)?;
+    Ok(crate::model::overrides::apply(
+        base,
+        &project.phrases,
+        &layer.edits,
+    ))
+}
+
 /// Run a subcommand, printing errors to standard error.
 pub fn run(command: Command) -> ExitCode {
     let result = match command {
         Command::Info(a) => info::run(&a),
         Command::Audit(a) => audit::run(&a),
-        Command::Sample(a) => sample::run(&a),
         Command::Edit(a) => edit::run(a),
         Command::Undo(a) => undo::run(&a),
         Command::Apply(a) => apply::run(&a),
@@ -114,6 +142,8 @@ pub fn run(command: Command) -> ExitCode {
         Command::Verify(a) => verify::run(&a),
         Command::Export(a) => export::run(&a),
         Command::Diff(a) => diff::run(&a),
+        Command::Suggest(a) => suggest::run(&a),
+        Command::Sample(a) => sample::run(&a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

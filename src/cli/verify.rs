@@ -27,17 +27,21 @@ pub fn render(v: &Verification) -> String {
         Verification::NoSignoff => {
             let _ = writeln!(s, "not signed off: the override layer has no sign-off");
         }
-        Verification::Valid { index, hash } => {
-            let _ = writeln!(s, "signed off (edit #{index}): tree {hash} unchanged");
+        Verification::Valid { index, by, hash } => {
+            let _ = writeln!(
+                s,
+                "signed off by {by} (edit #{index}): tree {hash} unchanged"
+            );
         }
         Verification::Changed {
             index,
+            by,
             signed,
             current,
             edits_since,
             changes,
         } => {
-            let _ = writeln!(s, "changed since the sign-off (edit #{index})");
+            let _ = writeln!(s, "changed since the sign-off by {by} (edit #{index})");
             let _ = writeln!(s, "  signed  {signed}");
             let _ = writeln!(s, "  current {current}");
             if edits_since.is_empty() {

@@ -6,6 +6,7 @@ use std::process::ExitCode;
 
 pub mod app;
 pub mod status_bar;
+pub mod suggest_panel;
 pub mod tree_panel;
 
 pub use app::{Action, App};

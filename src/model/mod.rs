@@ -17,6 +17,7 @@ pub mod projection;
 pub mod sample;
 pub mod signoff;
 pub mod stats;
+pub mod suggest;
 pub mod tree;
 
 pub use gaussian::{CovarianceKind, GaussianView, Gaussians, PhraseId, Similarity};

@@ -345,21 +345,6 @@ impl State {
         }
     }
 
-    fn is_node(&self, p: PhraseId) -> bool {
-        self.placed[p as usize]
-    }
-
-    fn is_ancestor(&self, a: PhraseId, b: PhraseId) -> bool {
-        let mut cur = self.parent[b as usize];
-        while let Some(x) = cur {
-            if x == a {
-                return true;
-            }
-            cur = self.parent[x as usize];
-        }
-        false
-    }
-
     fn detach(&mut self, c: PhraseId) {
         if let Some(p) = self.parent[c as usize].take() {
             let ch = &mut self.children[p as usize];
@@ -411,6 +396,77 @@ impl State {
     }
 }
 
+/// Read access to the layered state, shared by [`apply`]'s working state and by a finished
+/// [`EffectiveTree`] so that [`check_edit`] validates without copying the tree.
+trait View {
+    fn root(&self) -> PhraseId;
+    fn parent(&self, p: PhraseId) -> Option<PhraseId>;
+    fn is_node(&self, p: PhraseId) -> bool;
+    fn alias_of(&self, p: PhraseId) -> Option<PhraseId>;
+    fn excluded(&self, p: PhraseId) -> bool;
+    fn pinned(&self, p: PhraseId) -> bool;
+    fn label(&self, p: PhraseId) -> &str;
+    /// True when `a` is a proper ancestor of `b`.
+    fn is_ancestor(&self, a: PhraseId, b: PhraseId) -> bool {
+        let mut cur = self.parent(b);
+        while let Some(x) = cur {
+            if x == a {
+                return true;
+            }
+            cur = self.parent(x);
+        }
+        false
+    }
+}
+
+impl View for State {
+    fn root(&self) -> PhraseId {
+        self.root
+    }
+    fn parent(&self, p: PhraseId) -> Option<PhraseId> {
+        self.parent[p as usize]
+    }
+    fn is_node(&self, p: PhraseId) -> bool {
+        self.placed[p as usize]
+    }
+    fn alias_of(&self, p: PhraseId) -> Option<PhraseId> {
+        self.alias_of[p as usize]
+    }
+    fn excluded(&self, p: PhraseId) -> bool {
+        self.excluded[p as usize]
+    }
+    fn pinned(&self, p: PhraseId) -> bool {
+        self.pinned[p as usize]
+    }
+    fn label(&self, p: PhraseId) -> &str {
+        &self.labels[p as usize]
+    }
+}
+
+impl View for EffectiveTree {
+    fn root(&self) -> PhraseId {
+        self.tree.root()
+    }
+    fn parent(&self, p: PhraseId) -> Option<PhraseId> {
+        self.tree.parent(p)
+    }
+    fn is_node(&self, p: PhraseId) -> bool {
+        self.tree.is_placed(p)
+    }
+    fn alias_of(&self, p: PhraseId) -> Option<PhraseId> {
+        self.alias_of[p as usize]
+    }
+    fn excluded(&self, p: PhraseId) -> bool {
+        self.excluded[p as usize]
+    }
+    fn pinned(&self, p: PhraseId) -> bool {
+        self.pinned[p as usize]
+    }
+    fn label(&self, p: PhraseId) -> &str {
+        &self.labels[p as usize]
+    }
+}
+
 /// What a validated edit will do, with ids resolved to rows.
 enum Plan {
     Move(PhraseId, PhraseId),
@@ -431,15 +487,15 @@ fn lookup(phrases: &PhraseTable, id: &str) -> Result<PhraseId, String> {
 }
 
 /// Why `p` cannot take part as a tree node, if it cannot.
-fn node_problem(s: &State, phrases: &PhraseTable, p: PhraseId, role: &str) -> Option<String> {
+fn node_problem(s: &impl View, phrases: &PhraseTable, p: PhraseId, role: &str) -> Option<String> {
     let id = phrases.id(p);
-    if let Some(t) = s.alias_of[p as usize] {
+    if let Some(t) = s.alias_of(p) {
         return Some(format!(
             "{role} \"{id}\" is merged into \"{}\"",
             phrases.id(t)
         ));
     }
-    if s.excluded[p as usize] {
+    if s.excluded(p) {
         return Some(format!("{role} \"{id}\" is excluded"));
     }
     if !s.is_node(p) {
@@ -448,23 +504,23 @@ fn node_problem(s: &State, phrases: &PhraseTable, p: PhraseId, role: &str) -> Op
     None
 }
 
-fn validate(s: &State, phrases: &PhraseTable, edit: &Edit) -> Result<Plan, String> {
+fn validate(s: &impl View, phrases: &PhraseTable, edit: &Edit) -> Result<Plan, String> {
     let id = |p: PhraseId| phrases.id(p).to_string();
     match edit {
         Edit::Reparent { node, parent } | Edit::Pin { node, parent } => {
             let is_pin = matches!(edit, Edit::Pin { .. });
             let x = lookup(phrases, node)?;
             let p = lookup(phrases, parent)?;
-            if x == s.root {
+            if x == s.root() {
                 return Err(format!("\"{node}\" is the root and has no parent"));
             }
             if x == p {
                 return Err(format!("\"{node}\" cannot be its own parent"));
             }
-            if let Some(t) = s.alias_of[x as usize] {
+            if let Some(t) = s.alias_of(x) {
                 return Err(format!("\"{node}\" is merged into \"{}\"", id(t)));
             }
-            if s.excluded[x as usize] {
+            if s.excluded(x) {
                 return Err(format!("\"{node}\" is excluded; include it first"));
             }
             if is_pin && !s.is_node(x) {
@@ -478,10 +534,10 @@ fn validate(s: &State, phrases: &PhraseTable, edit: &Edit) -> Result<Plan, Strin
                     "\"{parent}\" is below \"{node}\": that would make a cycle"
                 ));
             }
-            if !is_pin && s.pinned[x as usize] && s.parent[x as usize] != Some(p) {
+            if !is_pin && s.pinned(x) && s.parent(x) != Some(p) {
                 return Err(format!(
                     "\"{node}\" is pinned under \"{}\"; unpin it first",
-                    s.parent[x as usize].map(id).unwrap_or_default()
+                    s.parent(x).map(id).unwrap_or_default()
                 ));
             }
             Ok(if is_pin {
@@ -492,7 +548,7 @@ fn validate(s: &State, phrases: &PhraseTable, edit: &Edit) -> Result<Plan, Strin
         }
         Edit::Unpin { node } => {
             let x = lookup(phrases, node)?;
-            if !s.pinned[x as usize] {
+            if !s.pinned(x) {
                 return Err(format!("\"{node}\" is not pinned"));
             }
             Ok(Plan::Unpin(x))
@@ -514,7 +570,7 @@ fn validate(s: &State, phrases: &PhraseTable, edit: &Edit) -> Result<Plan, Strin
                 if rows.contains(&x) {
                     return Err(format!("\"{src}\" is listed twice"));
                 }
-                if x == s.root {
+                if x == s.root() {
                     return Err(format!(
                         "\"{src}\" is the root; merge the other node into it instead"
                     ));
@@ -532,27 +588,27 @@ fn validate(s: &State, phrases: &PhraseTable, edit: &Edit) -> Result<Plan, Strin
             if label.is_empty() {
                 return Err("the new label is empty".into());
             }
-            if s.labels[x as usize] == label {
+            if s.label(x) == label {
                 return Err(format!("\"{node}\" is already labelled \"{label}\""));
             }
             Ok(Plan::Rename(x, label.to_string()))
         }
         Edit::Exclude { node } => {
             let x = lookup(phrases, node)?;
-            if x == s.root {
+            if x == s.root() {
                 return Err(format!("\"{node}\" is the root and cannot be excluded"));
             }
-            if let Some(t) = s.alias_of[x as usize] {
+            if let Some(t) = s.alias_of(x) {
                 return Err(format!("\"{node}\" is merged into \"{}\"", id(t)));
             }
-            if s.excluded[x as usize] {
+            if s.excluded(x) {
                 return Err(format!("\"{node}\" is already excluded"));
             }
             Ok(Plan::Exclude(x))
         }
         Edit::Include { node } => {
             let x = lookup(phrases, node)?;
-            if !s.excluded[x as usize] {
+            if !s.excluded(x) {
                 return Err(format!("\"{node}\" is not excluded"));
             }
             Ok(Plan::Include(x))
@@ -563,7 +619,7 @@ fn validate(s: &State, phrases: &PhraseTable, edit: &Edit) -> Result<Plan, Strin
             comment,
         } => {
             let x = lookup(phrases, node)?;
-            if let Some(t) = s.alias_of[x as usize] {
+            if let Some(t) = s.alias_of(x) {
                 return Err(format!("\"{node}\" is merged into \"{}\"", id(t)));
             }
             Ok(Plan::Review(x, *status, comment.clone()))
@@ -696,8 +752,7 @@ pub fn check_edit(eff: &EffectiveTree, phrases: &PhraseTable, edit: &Edit) -> Re
     if eff.labels.len() != phrases.len() {
         return Err("the effective tree does not belong to this phrase table".into());
     }
-    let s = State::from_effective(eff);
-    validate(&s, phrases, edit).map(|_| ())
+    validate(eff, phrases, edit).map(|_| ())
 }
 
 /// Nodes of the effective tree whose review state is `unreviewed`.
@@ -974,6 +1029,102 @@ mod tests {
         // deleting the file under us is a change as well
         std::fs::remove_file(&p).unwrap();
         assert!(c.save(&p).is_err());
+    }
+
+    #[test]
+    fn crash_between_write_and_rename_leaves_the_old_file() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("overrides.json");
+        let mut layer = OverrideLayer::load(&p).unwrap();
+        layer.push(rec(Edit::Exclude {
+            node: "fern".into(),
+        }));
+        layer.save(&p).unwrap();
+        let old = std::fs::read(&p).unwrap();
+        // the crash: the new version was (partly) written to the temporary file that
+        // fsutil::atomic_write renames over the target, and the rename never happened
+        let mut next = layer.edits.clone();
+        next.push(rec(Edit::Exclude {
+            node: "hosta".into(),
+        }));
+        let new_bytes = serialize_overrides(&next);
+        let tmp = dir
+            .path()
+            .join(format!(".overrides.json.{}.tmp", std::process::id()));
+        std::fs::write(&tmp, &new_bytes[..new_bytes.len() / 2]).unwrap();
+        std::fs::copy(&p, dir.path().join("overrides.json.bak")).unwrap();
+        // the next load sees the old file, whole
+        let reloaded = OverrideLayer::load(&p).unwrap();
+        assert_eq!(std::fs::read(&p).unwrap(), old);
+        assert_eq!(reloaded.edits, layer.edits);
+        // and saving afterwards replaces the stale temporary file and leaves none behind
+        let mut again = reloaded;
+        again.push(next[1].clone());
+        again.save(&p).unwrap();
+        assert_eq!(std::fs::read(&p).unwrap(), new_bytes);
+        assert_eq!(
+            std::fs::read(dir.path().join("overrides.json.bak")).unwrap(),
+            old
+        );
+        assert!(!tmp.exists());
+        // a torn main file (not produced by save) is an error, never an empty layer
+        std::fs::write(&p, &new_bytes[..new_bytes.len() - 5]).unwrap();
+        assert!(matches!(
+            OverrideLayer::load(&p).unwrap_err(),
+            OverrideError::Corrupt { .. }
+        ));
+    }
+
+    #[test]
+    fn retrained_base_pins_hold_and_vanished_phrases_go_stale() {
+        let (_, base) = garden();
+        let (t_old, _) = garden();
+        let edits = [
+            rec(Edit::Pin {
+                node: "hosta".into(),
+                parent: "shade-loving".into(),
+            }),
+            rec(Edit::Rename {
+                node: "cactus".into(),
+                label: "cacti".into(),
+            }),
+            rec(Edit::Merge {
+                sources: vec!["fern".into()],
+                into: "shade-loving".into(),
+            }),
+        ];
+        let (before, p0) = apply(&base, &t_old, &edits);
+        assert!(p0.is_empty());
+        assert_eq!(parent_id(&before, &t_old, "hosta"), Some("shade-loving"));
+        // re-trained: "cactus" and "fern" vanished, rows reordered, hosta moved
+        let t_new = table(&[
+            "compost",
+            "hosta",
+            "plants",
+            "shade-loving",
+            "succulent",
+            "drought-tolerant",
+        ]);
+        let new_base = tree(
+            &t_new,
+            "plants",
+            &[
+                ("drought-tolerant", "plants"),
+                ("succulent", "drought-tolerant"),
+                ("hosta", "succulent"),
+                ("shade-loving", "plants"),
+            ],
+        );
+        let (after, probs) = apply(&new_base, &t_new, &edits);
+        assert_eq!(parent_id(&after, &t_new, "hosta"), Some("shade-loving"));
+        assert!(after.pinned[t_new.get("hosta").unwrap() as usize]);
+        let stale: Vec<usize> = probs
+            .iter()
+            .filter(|p| p.is_stale())
+            .map(|p| p.index)
+            .collect();
+        assert_eq!(stale, vec![1, 2], "{probs:?}");
+        assert!(probs[0].reason.contains("\"cactus\""));
     }
 
     #[test]

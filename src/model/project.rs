@@ -272,38 +272,115 @@ pub fn parse_json<T: serde::de::DeserializeOwned>(
     bytes: &[u8],
     file: &str,
 ) -> Result<T, LoadError> {
-    serde_json::from_slice(bytes).map_err(|e| LoadError::Json {
-        file: file.to_string(),
-        line: e.line(),
-        column: e.column(),
-        message: e.to_string(),
+    serde_json::from_slice(bytes).map_err(|e| {
+        let full = e.to_string();
+        let suffix = format!(" at line {} column {}", e.line(), e.column());
+        LoadError::Json {
+            file: file.to_string(),
+            line: e.line(),
+            column: e.column(),
+            message: full.strip_suffix(&suffix).unwrap_or(&full).to_string(),
+        }
     })
 }
 
 /// A 2-D array read from `.npy` (float32 or float64), as f64, with its shape.
 fn read_npy2(path: &Path) -> Result<(usize, usize, Vec<f64>), LoadError> {
     let bytes = read_bytes(path)?;
-    let file = path.display().to_string();
-    let arr: Array2<f64> = match Array2::<f64>::read_npy(&bytes[..]) {
+    parse_npy2(&bytes, &path.display().to_string())
+}
+
+fn read_npy3(path: &Path) -> Result<(usize, usize, usize, Vec<f64>), LoadError> {
+    let bytes = read_bytes(path)?;
+    parse_npy3(&bytes, &path.display().to_string())
+}
+
+/// Check a `.npy` header before any allocation: the element count it claims must fit in
+/// the bytes that follow, so a header claiming 10¹² values is refused at once.
+fn precheck_npy(bytes: &[u8], file: &str) -> Result<(), LoadError> {
+    let err = |m: String| LoadError::Npy {
+        file: file.to_string(),
+        message: m,
+    };
+    if bytes.len() < 10 || &bytes[..6] != b"\x93NUMPY" {
+        return Err(err(
+            "missing the NumPy magic string; is this a NumPy .npy file?".into(),
+        ));
+    }
+    let (hlen, start) = match bytes[6] {
+        1 => (u16::from_le_bytes([bytes[8], bytes[9]]) as usize, 10usize),
+        2 | 3 if bytes.len() >= 12 => (
+            u32::from_le_bytes([bytes[8], bytes[9], bytes[10], bytes[11]]) as usize,
+            12,
+        ),
+        v => return Err(err(format!("unsupported .npy format version {v}"))),
+    };
+    let end = start
+        .checked_add(hlen)
+        .filter(|&e| e <= bytes.len())
+        .ok_or_else(|| err("file is truncated inside the header".into()))?;
+    let header = String::from_utf8_lossy(&bytes[start..end]);
+    let item = if header.contains("f8") {
+        8
+    } else if header.contains("f4") {
+        4
+    } else {
+        // let ndarray-npy report the element type precisely
+        return Ok(());
+    };
+    let Some(open) = header
+        .find("'shape'")
+        .and_then(|i| header[i..].find('(').map(|j| i + j))
+    else {
+        return Ok(());
+    };
+    let Some(close) = header[open..].find(')').map(|j| open + j) else {
+        return Ok(());
+    };
+    let mut count: u128 = 1;
+    for part in header[open + 1..close].split(',') {
+        let t = part.trim();
+        if t.is_empty() {
+            continue;
+        }
+        let v: u128 = t
+            .parse()
+            .map_err(|_| err(format!("bad shape entry \"{t}\" in the header")))?;
+        count = count.saturating_mul(v);
+    }
+    let have = (bytes.len() - end) as u128;
+    if count.saturating_mul(item) > have {
+        return Err(err(format!(
+            "file is truncated: the header declares {count} values ({} bytes) but only {have} bytes follow",
+            count.saturating_mul(item)
+        )));
+    }
+    Ok(())
+}
+
+/// Parse a 2-D float32/float64 `.npy` from bytes (naming `file` in errors).
+pub fn parse_npy2(bytes: &[u8], file: &str) -> Result<(usize, usize, Vec<f64>), LoadError> {
+    precheck_npy(bytes, file)?;
+    let arr: Array2<f64> = match Array2::<f64>::read_npy(bytes) {
         Ok(a) => a,
-        Err(ReadNpyError::WrongDescriptor(_)) => Array2::<f32>::read_npy(&bytes[..])
-            .map_err(|e| npy_err(&file, e, 2))?
+        Err(ReadNpyError::WrongDescriptor(_)) => Array2::<f32>::read_npy(bytes)
+            .map_err(|e| npy_err(file, e, 2))?
             .mapv(|x| x as f64),
-        Err(e) => return Err(npy_err(&file, e, 2)),
+        Err(e) => return Err(npy_err(file, e, 2)),
     };
     let (n, d) = arr.dim();
     Ok((n, d, arr.as_standard_layout().iter().copied().collect()))
 }
 
-fn read_npy3(path: &Path) -> Result<(usize, usize, usize, Vec<f64>), LoadError> {
-    let bytes = read_bytes(path)?;
-    let file = path.display().to_string();
-    let arr: Array3<f64> = match Array3::<f64>::read_npy(&bytes[..]) {
+/// Parse a 3-D float32/float64 `.npy` from bytes (naming `file` in errors).
+pub fn parse_npy3(bytes: &[u8], file: &str) -> Result<(usize, usize, usize, Vec<f64>), LoadError> {
+    precheck_npy(bytes, file)?;
+    let arr: Array3<f64> = match Array3::<f64>::read_npy(bytes) {
         Ok(a) => a,
-        Err(ReadNpyError::WrongDescriptor(_)) => Array3::<f32>::read_npy(&bytes[..])
-            .map_err(|e| npy_err(&file, e, 3))?
+        Err(ReadNpyError::WrongDescriptor(_)) => Array3::<f32>::read_npy(bytes)
+            .map_err(|e| npy_err(file, e, 3))?
             .mapv(|x| x as f64),
-        Err(e) => return Err(npy_err(&file, e, 3)),
+        Err(e) => return Err(npy_err(file, e, 3)),
     };
     let (n, a, b) = arr.dim();
     Ok((n, a, b, arr.as_standard_layout().iter().copied().collect()))
@@ -340,7 +417,14 @@ fn gauss_err(file: &str, phrases: &PhraseTable, e: GaussError) -> LoadError {
     let (row, msg) = match &e {
         GaussError::NonFinite { row, .. }
         | GaussError::NonPositiveVariance { row, .. }
-        | GaussError::NotPositiveDefinite { row, .. } => (Some(*row), e.to_string()),
+        | GaussError::NotPositiveDefinite { row, .. } => {
+            let full = e.to_string();
+            let prefix = format!("row {row}: ");
+            (
+                Some(*row),
+                full.strip_prefix(&prefix).unwrap_or(&full).to_string(),
+            )
+        }
         GaussError::Shape(_) => (None, e.to_string()),
     };
     match row {
@@ -687,7 +771,8 @@ pub fn load_tree(path: &Path, phrases: &PhraseTable) -> Result<Tree, LoadError> 
         .map_err(|e| LoadError::invalid(&file, "tree", e.to_string()))
 }
 
-fn parse_tree_csv(bytes: &[u8], file: &str) -> Result<TreeFile, LoadError> {
+/// Parse a CSV edge list (`child,parent` header) into the tree file form.
+pub fn parse_tree_csv(bytes: &[u8], file: &str) -> Result<TreeFile, LoadError> {
     let mut rdr = csv::ReaderBuilder::new()
         .has_headers(true)
         .from_reader(bytes);

@@ -128,6 +128,8 @@ pub enum Verification {
     Valid {
         /// Index of the sign-off edit.
         index: usize,
+        /// Who signed off, and when (RFC 3339).
+        by: String,
         /// The hash.
         hash: String,
     },
@@ -135,6 +137,8 @@ pub enum Verification {
     Changed {
         /// Index of the sign-off edit.
         index: usize,
+        /// Who signed off, and when (RFC 3339).
+        by: String,
         /// Hash recorded by the sign-off.
         signed: String,
         /// Hash of the current effective tree.
@@ -159,15 +163,20 @@ pub fn verify(base: &Tree, phrases: &PhraseTable, edits: &[EditRecord]) -> Verif
     let Some((index, r)) = latest_signoff(edits) else {
         return Verification::NoSignoff;
     };
-    let signed = match &r.edit {
-        Edit::Signoff { tree_hash, .. } => tree_hash.clone(),
-        _ => String::new(),
+    let (signed, by) = match &r.edit {
+        Edit::Signoff {
+            tree_hash,
+            reviewer,
+            ..
+        } => (tree_hash.clone(), format!("{reviewer} at {}", r.time)),
+        _ => (String::new(), String::new()),
     };
     let (now, _) = apply(base, phrases, edits);
     let current = tree_hash(&now, phrases);
     if current == signed {
         return Verification::Valid {
             index,
+            by,
             hash: current,
         };
     }
@@ -179,6 +188,7 @@ pub fn verify(base: &Tree, phrases: &PhraseTable, edits: &[EditRecord]) -> Verif
         .collect();
     Verification::Changed {
         index,
+        by,
         signed,
         current,
         edits_since,
