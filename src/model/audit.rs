@@ -475,8 +475,9 @@ impl Searcher<'_> {
         if self.engine.prep.is_some() {
             let (mc, mx) = (self.g.mean(c as usize), self.g.mean(x as usize));
             let (vc, vx) = (self.g.variances(c as usize), self.g.variances(x as usize));
-            let bound = 0.25 * kernels::mean_term(mc, vc, mx, vx) as f64;
-            if bound > dmax * (1.0 + 1e-4) {
+            // D_B ≥ ¼ Σ Δ² / (σ²c + σ²x); skip the exact coefficient when the bound is over
+            let limit = (4.0 * dmax * (1.0 + 1e-4)) as f32;
+            if kernels::mean_term_exceeds(mc, vc, mx, vx, limit) {
                 return None;
             }
         }
