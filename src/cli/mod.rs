@@ -10,6 +10,7 @@ use clap::{Parser, Subcommand};
 
 pub mod apply;
 pub mod audit;
+pub mod build;
 pub mod diff;
 pub mod edit;
 pub mod export;
@@ -69,6 +70,8 @@ pub enum Command {
     Suggest(suggest::SuggestArgs),
     /// Write the Fernhollow demo project or a synthetic project.
     Sample(sample::SampleArgs),
+    /// Regenerate the machine-built tree from the embeddings (divisive clustering).
+    Build(build::BuildArgs),
 }
 
 /// A failed subcommand: the message to print and the exit code.
@@ -144,6 +147,7 @@ pub fn run(command: Command) -> ExitCode {
         Command::Diff(a) => diff::run(&a),
         Command::Suggest(a) => suggest::run(&a),
         Command::Sample(a) => sample::run(&a),
+        Command::Build(a) => build::run(&a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

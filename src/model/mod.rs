@@ -2,6 +2,7 @@
 //! them. Nothing in here knows about egui.
 
 pub mod audit;
+pub mod builder;
 pub mod diff;
 pub mod edit;
 pub mod effective;
@@ -10,6 +11,8 @@ pub mod fsutil;
 pub mod gaussian;
 pub mod info;
 mod kernels;
+pub mod kmeans;
+pub mod kneedle;
 pub mod overrides;
 pub mod phrase;
 pub mod project;

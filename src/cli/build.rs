@@ -1,0 +1,159 @@
+//! `treewright build PROJECT [--out FILE] [--report FILE] [--seed N] [--max-depth N]
+//! [--k-max N] [--min-cluster N] [--similarity elk|bhattacharyya|kl] [--with-variance W]`:
+//! regenerate the machine-built tree from the embeddings.
+//!
+//! The tree goes to the project's tree file unless `--out` says otherwise; the file it
+//! replaces is kept as `<name>.bak`. The report goes to `build-report.json` beside the tree
+//! unless `--report` says otherwise. Both are written atomically, and only after the build
+//! finished: a failed or cancelled build leaves every file untouched.
+
+use std::io::Write;
+use std::path::{Path, PathBuf};
+use std::sync::atomic::AtomicBool;
+
+use clap::Args;
+
+use super::CliError;
+use super::progress;
+use crate::model::builder::{BuildParams, BuildProgress, BuiltTree, build};
+use crate::model::fsutil;
+use crate::model::project::{MANIFEST_NAME, Project};
+use crate::model::tree::TreeFile;
+use crate::model::{PhraseTable, Similarity};
+
+/// Arguments of `build`.
+#[derive(Debug, Args)]
+pub struct BuildArgs {
+    /// Project folder or its project.json.
+    pub project: PathBuf,
+    /// Where to write the tree (default: the project's tree file). `.csv` writes a
+    /// `child,parent` edge list, anything else JSON.
+    #[arg(long, value_name = "FILE")]
+    pub out: Option<PathBuf>,
+    /// Where to write the build report (default: build-report.json beside the tree).
+    #[arg(long, value_name = "FILE")]
+    pub report: Option<PathBuf>,
+    /// Seed of every random choice (default 0).
+    #[arg(long, value_name = "N")]
+    pub seed: Option<u64>,
+    /// Maximum depth of the tree, root = 0 (default 6).
+    #[arg(long, value_name = "N")]
+    pub max_depth: Option<usize>,
+    /// Largest number of sub-clusters tried per node (default 8).
+    #[arg(long, value_name = "N")]
+    pub k_max: Option<usize>,
+    /// Clusters with fewer non-representative members are not split (default 4).
+    #[arg(long, value_name = "N")]
+    pub min_cluster: Option<usize>,
+    /// Similarity for picking representatives (default elk).
+    #[arg(long, value_name = "NAME", value_parser = parse_similarity)]
+    pub similarity: Option<Similarity>,
+    /// Weight of ln σ² in the k-means features (default 0: means only).
+    #[arg(long, value_name = "W")]
+    pub with_variance: Option<f64>,
+}
+
+fn parse_similarity(s: &str) -> Result<Similarity, String> {
+    match s {
+        "elk" => Ok(Similarity::Elk),
+        "bhattacharyya" => Ok(Similarity::Bhattacharyya),
+        "kl" => Ok(Similarity::Kl),
+        other => Err(format!(
+            "unknown similarity \"{other}\" (expected elk, bhattacharyya or kl)"
+        )),
+    }
+}
+
+impl BuildArgs {
+    /// The build parameters: the defaults with every given option applied.
+    pub fn params(&self) -> BuildParams {
+        let d = BuildParams::default();
+        BuildParams {
+            seed: self.seed.unwrap_or(d.seed),
+            max_depth: self.max_depth.unwrap_or(d.max_depth),
+            k_max: self.k_max.unwrap_or(d.k_max),
+            min_cluster: self.min_cluster.unwrap_or(d.min_cluster),
+            similarity: self.similarity.unwrap_or(d.similarity),
+            with_variance: self.with_variance.unwrap_or(d.with_variance),
+            ..d
+        }
+    }
+}
+
+/// The tree as a `child,parent` CSV edge list (the root with an empty parent first).
+pub fn tree_csv(t: &TreeFile) -> Result<Vec<u8>, csv::Error> {
+    let mut w = csv::Writer::from_writer(Vec::new());
+    w.write_record(["child", "parent"])?;
+    w.write_record([t.root.as_str(), ""])?;
+    for (c, p) in &t.parent {
+        w.write_record([c.as_str(), p.as_str()])?;
+    }
+    w.into_inner().map_err(|e| csv::Error::from(e.into_error()))
+}
+
+fn write(path: &Path, bytes: &[u8], backup: bool) -> Result<(), CliError> {
+    fsutil::atomic_write(path, bytes, backup)
+        .map_err(|e| CliError::bad_input(format!("{}: cannot write: {e}", path.display())))
+}
+
+/// Build and write the tree and the report.
+pub fn run(args: &BuildArgs) -> Result<(), CliError> {
+    let params = args.params();
+    params.validate().map_err(CliError::bad_input)?;
+    let project = Project::load(&args.project)?;
+    let out = args.out.clone().unwrap_or_else(|| project.tree_path());
+    let report_path = args.report.clone().unwrap_or_else(|| {
+        out.parent()
+            .map(|d| d.join("build-report.json"))
+            .unwrap_or_else(|| PathBuf::from("build-report.json"))
+    });
+    let built = run_build(&project.gaussians, &project.phrases, &params)?;
+
+    let is_csv = out
+        .extension()
+        .is_some_and(|e| e.eq_ignore_ascii_case("csv"));
+    let tree_bytes = if is_csv {
+        tree_csv(&built.tree_file)
+            .map_err(|e| CliError::bad_input(format!("{}: {e}", out.display())))?
+    } else {
+        fsutil::to_json_pretty(&built.tree_file)
+    };
+    write(&out, &tree_bytes, true)?;
+    write(&report_path, &fsutil::to_json_pretty(&built.report), false)?;
+    // a project without a tree file learns where its new tree is
+    if args.out.is_none() && project.manifest.tree.is_none() {
+        let mut manifest = project.manifest.clone();
+        manifest.tree = Some("tree.json".to_string());
+        write(
+            &project.dir.join(MANIFEST_NAME),
+            &fsutil::to_json_pretty(&manifest),
+            true,
+        )?;
+    }
+    // a closed pipe (`| head`) is not an error worth a panic: the files are written
+    let mut o = std::io::stdout().lock();
+    let _ = writeln!(
+        o,
+        "built a tree of {} phrases (depth {}, {} internal nodes, root \"{}\")",
+        built.report.phrases,
+        built.report.depth,
+        built.report.nodes.len(),
+        built.report.root
+    );
+    let _ = writeln!(o, "tree    {}", out.display());
+    let _ = writeln!(o, "report  {}", report_path.display());
+    Ok(())
+}
+
+fn run_build(
+    g: &crate::model::Gaussians,
+    phrases: &PhraseTable,
+    params: &BuildParams,
+) -> Result<BuiltTree, CliError> {
+    let bar = progress::bar(phrases.len() as u64, "building");
+    let cancel = AtomicBool::new(false);
+    let on_progress = |p: BuildProgress| bar.set_position(p.placed as u64);
+    let result = build(g, phrases, None, params, &on_progress, &cancel);
+    bar.finish_and_clear();
+    result.map_err(CliError::bad_input)
+}
