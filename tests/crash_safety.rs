@@ -61,6 +61,9 @@ fn sigkill_during_saves_leaves_old_or_new_file() {
         expected = n;
     }
     eprintln!("100 rounds: {killed_mid_run} killed mid-run, {expected} saves completed");
-    assert!(killed_mid_run > 10, "only {killed_mid_run} runs were killed mid-way");
+    assert!(
+        killed_mid_run > 10,
+        "only {killed_mid_run} runs were killed mid-way"
+    );
     assert!(expected > 0, "no save ever completed");
 }
