@@ -178,3 +178,32 @@ fn an_unknown_audit_key_is_bad_input() {
         "{err}"
     );
 }
+
+#[test]
+fn the_markdown_report_carries_the_signoff_state() {
+    let (dir, _p) = demo();
+    let d = dir.path().to_str().unwrap();
+    let so = run(&["signoff", d, "--reviewer", "ana"]);
+    assert_eq!(
+        so.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&so.stderr)
+    );
+    let md = String::from_utf8(run(&["audit", d, "--format", "md"]).stdout).unwrap();
+    assert!(md.contains("- Sign-off: signed off by ana at "), "{md}");
+    assert!(md.contains("| better-parent | error | 2 | 0 |"), "{md}");
+    let e = run(&[
+        "edit",
+        d,
+        "reparent",
+        "grow-lights",
+        "houseplants",
+        "--author",
+        "t",
+    ]);
+    assert_eq!(e.status.code(), Some(0));
+    let v = audit_json(dir.path());
+    assert_eq!(v["summary"]["signoff"]["state"], "changed-since-signoff");
+    assert_eq!(v["summary"]["signoff"]["reviewer"], "ana");
+}

@@ -415,7 +415,19 @@ fn scripted_sequence_on_the_demo_project() {
     }
     let out = tmp.path().join("eff.json");
     assert_eq!(code(&tw(&["apply", p, "--out", out.to_str().unwrap()])), 0);
-    assert_eq!(code(&tw(&["signoff", p, "--reviewer", "rowan"])), 0);
+    let audit = tw(&["audit", p, "--format", "json"]);
+    let summary: serde_json::Value = serde_json::from_slice(&audit.stdout).unwrap();
+    let open = summary["summary"]["open_errors"].as_u64().unwrap()
+        + summary["summary"]["open_warnings"].as_u64().unwrap();
+    assert!(open > 0, "the demo's planted flaws are open findings");
+    let o = tw(&["signoff", p, "--reviewer", "rowan"]);
+    assert_eq!(code(&o), 0, "{}", text(&o));
+    // the sign-off records the audit's open warnings and errors
+    assert!(
+        text(&o).contains(&format!(", {open} open findings,")),
+        "{}",
+        text(&o)
+    );
     assert_eq!(code(&tw(&["verify", p])), 0);
     let o = tw(&["edit", p, "rename", "aloe", "aloe vera", "--author", "ines"]);
     assert_eq!(code(&o), 0, "{}", text(&o));

@@ -387,3 +387,41 @@ fn json_embeddings_load_and_are_checked() {
         &["embeddings.json", "shade-loving", "positive definite"],
     );
 }
+
+#[test]
+fn size_limits_are_configurable_and_reported() {
+    let d = project();
+    let m = fs::read_to_string(d.path().join("project.json")).unwrap();
+    let with =
+        |limits: &str| m.replace("\"users\"", &format!("\"limits\": {limits},\n  \"users\""));
+    fs::write(d.path().join("project.json"), with(r#"{"max_phrases": 2}"#)).unwrap();
+    assert_mentions(
+        &error_of(d.path()),
+        &[
+            "phrases.json",
+            "3 phrases exceed the limit of 2",
+            "limits.max_phrases",
+        ],
+    );
+    fs::write(d.path().join("project.json"), with(r#"{"max_dim": 1}"#)).unwrap();
+    assert_mentions(
+        &error_of(d.path()),
+        &["means.npy", "dimension 2 exceeds the limit of 1"],
+    );
+    fs::write(d.path().join("project.json"), with(r#"{"max_file_mb": 0}"#)).unwrap();
+    assert_mentions(
+        &error_of(d.path()),
+        &["phrases.json", "exceeds the limit of 0 MiB"],
+    );
+    fs::write(
+        d.path().join("project.json"),
+        with(r#"{"max_phrases": 3, "max_dim": 2}"#),
+    )
+    .unwrap();
+    assert!(Project::load(d.path()).is_ok());
+    fs::write(d.path().join("project.json"), with(r#"{"max_rows": 3}"#)).unwrap();
+    assert_mentions(
+        &error_of(d.path()),
+        &["project.json", "unknown field `max_rows`"],
+    );
+}

@@ -8,6 +8,7 @@ use clap::Args;
 use super::CliError;
 use super::edit::Session;
 use crate::model::Project;
+use crate::model::audit::{AuditConfig, Severity, audit};
 use crate::model::edit::Edit;
 use crate::model::effective::{ApplyProblem, EffectiveTree};
 use crate::model::overrides::record;
@@ -26,19 +27,18 @@ pub struct SignoffArgs {
     pub note: Option<String>,
 }
 
-/// Open findings recorded by a sign-off.
-///
-/// For now this counts the apply problems: skipped edits, among them the stale edits, which
-/// are findings of the audit's `stale-edit` rule. The integrator routes this one function to
-/// the full audit (`audit(...).open_count(..)`) once the audit module has landed; callers do
-/// not change.
+/// Open findings recorded by a sign-off: the audit's findings of severity warning or error
+/// that are not accepted (a finding on a node reviewed as approved is accepted). Stale and
+/// skipped edits are findings of the audit's `stale-edit` rule and count too. A project whose
+/// `audit` section is invalid is refused rather than signed off with an unknown count.
 pub fn count_open_findings(
     project: &Project,
     eff: &EffectiveTree,
     problems: &[ApplyProblem],
-) -> usize {
-    let _ = (project, eff);
-    problems.len()
+) -> Result<usize, CliError> {
+    let cfg = AuditConfig::of_project(project).map_err(CliError::bad_input)?;
+    let report = audit(&project.gaussians, &project.phrases, eff, problems, &cfg);
+    Ok(report.open_count(Severity::Warning))
 }
 
 /// Record a sign-off of the effective tree as it stands.
@@ -49,7 +49,7 @@ pub fn run(args: &SignoffArgs) -> Result<(), CliError> {
     }
     let mut s = Session::open(&args.project)?;
     let (eff, problems) = s.effective();
-    let open = count_open_findings(&s.project, &eff, &problems);
+    let open = count_open_findings(&s.project, &eff, &problems)?;
     let edit = signoff_edit(&eff, &s.project.phrases, reviewer, open);
     let summary = match &edit {
         Edit::Signoff {

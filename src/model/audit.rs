@@ -5,9 +5,9 @@
 //! |---|---|---|---|
 //! | `inverted-generality` | error | ln det Σ(child) − ln det Σ(parent) > `inversion_margin` | reparent to the best broader node |
 //! | `weak-inclusion` | warning | containment in the parent < `containment_min` | reparent to the best broader node, else review |
-//! | `better-parent` | error | a broader node that is not a descendant has KL(child ‖ it) lower than KL(child ‖ parent) by more than max(`better_parent_margin`, `better_parent_ratio` · KL(child ‖ parent)) | reparent to it |
+//! | `better-parent` | error | a node broader than the child by more than `better_parent_broader` nats, not its descendant, has KL(child ‖ it) lower than KL(child ‖ parent) by more than max(`better_parent_margin`, `better_parent_ratio` · KL(child ‖ parent)) and contains the child at least as well as the parent, up to `better_parent_containment_slack` | reparent to it |
 //! | `near-duplicate` | warning | BC ≥ `duplicate_bc_min` and abs(Δ ln det Σ) ≤ `duplicate_generality_margin` | merge the smaller subtree into the larger |
-//! | `coverage-gap` | warning | a node with ≥ 2 children whose children cover less than min(`coverage_min`, `coverage_relative` × the median coverage of such nodes) of it | review |
+//! | `coverage-gap` | warning | a node with ≥ 2 children whose children cover less than t = min(`coverage_min`, `coverage_relative` × the median coverage of such nodes) of it, by more than two standard errors at t (√(t (1 − t) / N)) | review |
 //! | `single-child-chain` | info | a chain of ≥ `single_child_chain_min` nodes with exactly one child (reported at its top) | review |
 //! | `wide-fanout` | info | more than `max_fanout` children | review |
 //! | `unplaced` | warning | a phrase neither in the tree, merged nor excluded | reparent (place) under the best broader node |
@@ -36,7 +36,9 @@
 //! is a duplicate candidate: first the cheap lower bound D_B ≥ ⅛ Σₖ Δₖ² / σ̄ₖ² (the
 //! covariance term of D_B is ≥ 0), then the exact coefficient. The best-parent answer is the
 //! scored broader node with the lowest KL that is placed, not c's descendant and not its
-//! current parent. A test checks on a mid-size tree that this finds the same top suggestion
+//! current parent. For full covariance the beam is steered by the KL of the diagonal parts
+//! of Σ (O(d) instead of O(d³)) and the 8 lowest candidates are rescored exactly. A test
+//! checks on a mid-size tree that this finds the same top suggestion
 //! as the exhaustive search for ≥ 99 % of the nodes where either search makes one.
 //!
 //! # Incremental re-audit
@@ -44,8 +46,11 @@
 //! recomputes the parent figures of the nodes whose parent or membership changed, the child
 //! figures (coverage) of their old and new parents, and the candidate search of the changed
 //! nodes, their old and new ancestors (whose set of descendants changed) and of every node
-//! whose cached answer is no longer valid; depth, subtree sizes, histograms and the finding
-//! list are rebuilt in O(n).
+//! whose cached answer is no longer valid (its best candidate left the tree, became its
+//! parent or its descendant). A phrase that joins the tree (an include, a placed phrase) is
+//! offered to the searches of its new siblings; other nodes see it at the next full audit.
+//! Depth, subtree sizes, histograms and the finding list are rebuilt in O(n). A different
+//! phrase table triggers a full audit.
 
 use std::collections::BTreeMap;
 use std::fmt::Write as _;
@@ -55,10 +60,11 @@ use serde::{Deserialize, Serialize};
 
 use super::edit::{Edit, ReviewStatus};
 use super::effective::{ApplyProblem, EffectiveTree};
+use super::gaussian::Sampled;
 use super::gaussian::{Gaussians, PhraseId, bhattacharyya_coefficient, kl};
 use super::kernels;
 use super::phrase::PhraseTable;
-use super::stats::{Prepared, Shape as Order, Stats, StatsEngine};
+use super::stats::{Shape as Order, Stats, StatsEngine, quad_form};
 use super::tree::NO_PARENT;
 
 /// How serious a finding is. Ordered: `Info < Warning < Error`.
@@ -148,6 +154,9 @@ pub struct AuditConfig {
     pub better_parent_margin: f64,
     /// `better-parent`: least KL improvement as a share of KL(child ‖ parent) (0.1).
     pub better_parent_ratio: f64,
+    /// `better-parent`: the candidate must also contain the child about as well as the
+    /// parent does: containment in it ≥ containment in the parent − this (0.1).
+    pub better_parent_containment_slack: f64,
     /// `better-parent`: a candidate must be broader than the child by more than this many
     /// nats of ln det Σ (1.5), so that near-equal siblings are not proposed as parents.
     pub better_parent_broader: f64,
@@ -183,6 +192,7 @@ impl Default for AuditConfig {
             better_parent_margin: 1.5,
             better_parent_ratio: 0.1,
             better_parent_broader: 1.5,
+            better_parent_containment_slack: 0.1,
             duplicate_bc_min: 0.9,
             duplicate_generality_margin: 2.0,
             coverage_min: 0.6,
@@ -266,6 +276,10 @@ impl AuditConfig {
         nonneg("better_parent_margin", self.better_parent_margin)?;
         unit("better_parent_ratio", self.better_parent_ratio)?;
         nonneg("better_parent_broader", self.better_parent_broader)?;
+        unit(
+            "better_parent_containment_slack",
+            self.better_parent_containment_slack,
+        )?;
         if !(self.duplicate_bc_min > 0.0 && self.duplicate_bc_min <= 1.0) {
             return Err(format!(
                 "duplicate_bc_min must be in (0, 1], got {}",
@@ -402,6 +416,8 @@ struct Placement {
     best: Option<(PhraseId, f64)>,
     /// Near-duplicate partners with their Bhattacharyya coefficient.
     dups: Vec<(PhraseId, f64)>,
+    /// Containment of the node in `best`, when `best` fits better than the parent.
+    best_containment: Option<Sampled>,
 }
 
 /// The kept navigation hierarchy of the pruned search.
@@ -431,7 +447,7 @@ impl CandidateIndex {
 /// Everything the candidate search reads.
 struct Searcher<'a> {
     g: &'a Gaussians,
-    prep: Option<&'a Prepared>,
+    engine: &'a StatsEngine,
     eff: &'a EffectiveTree,
     order: &'a Order,
     index: &'a CandidateIndex,
@@ -440,29 +456,49 @@ struct Searcher<'a> {
 }
 
 impl Searcher<'_> {
+    /// KL(c ‖ x) of the diagonal parts (exact for diagonal covariance).
+    fn kl_diag(&self, c: PhraseId, x: PhraseId) -> f64 {
+        let d = self.g.dim();
+        let (mc, mx) = (self.g.mean(c as usize), self.g.mean(x as usize));
+        let vc = self.g.variances(c as usize);
+        let wx = &self.engine.prep.ivar[x as usize * d..(x as usize + 1) * d];
+        let s = kernels::kl_sum(mc, vc, mx, wx);
+        let ld = &self.engine.diag_log_det;
+        0.5 * (s as f64 - d as f64 + ld[x as usize] - ld[c as usize])
+    }
+
+    /// Exact KL(c ‖ x).
     fn kl_to(&self, c: PhraseId, x: PhraseId) -> f64 {
-        match self.prep {
-            Some(prep) => {
-                let d = self.g.dim();
-                let (mc, mx) = (self.g.mean(c as usize), self.g.mean(x as usize));
-                let vc = self.g.variances(c as usize);
-                let wx = &prep.ivar[x as usize * d..(x as usize + 1) * d];
-                let s = kernels::kl_sum(mc, vc, mx, wx);
-                0.5 * (s as f64 - d as f64 + self.g.log_det(x as usize)
-                    - self.g.log_det(c as usize))
-            }
-            None => kl(&self.g.get(c as usize), &self.g.get(x as usize)),
+        if self.engine.diagonal {
+            self.kl_diag(c, x)
+        } else {
+            kl(&self.g.get(c as usize), &self.g.get(x as usize))
         }
     }
 
     /// Exact BC when the pair passes the cheap bound, else None.
     fn dup_bc(&self, c: PhraseId, x: PhraseId) -> Option<f64> {
         let dmax = -self.cfg.duplicate_bc_min.ln();
-        if self.prep.is_some() {
+        if self.engine.diagonal {
             let (mc, mx) = (self.g.mean(c as usize), self.g.mean(x as usize));
             let (vc, vx) = (self.g.variances(c as usize), self.g.variances(x as usize));
-            let bound = 0.25 * kernels::mean_term(mc, vc, mx, vx) as f64;
-            if bound > dmax * (1.0 + 1e-4) {
+            // D_B ≥ ¼ Σ Δ² / (σ²c + σ²x); skip the exact coefficient when the bound is over
+            let limit = (4.0 * dmax * (1.0 + 1e-4)) as f32;
+            if kernels::mean_term_exceeds(mc, vc, mx, vx, limit) {
+                return None;
+            }
+        } else {
+            // full covariance: for u = Δ, Cauchy–Schwarz gives ΔᵀΣ̄⁻¹Δ ≥ ‖Δ‖⁴ / ΔᵀΣ̄Δ
+            let (gc, gx) = (self.g.get(c as usize), self.g.get(x as usize));
+            let delta: Vec<f64> = gc
+                .mean
+                .iter()
+                .zip(gx.mean)
+                .map(|(&a, &b)| a as f64 - b as f64)
+                .collect();
+            let n2: f64 = delta.iter().map(|v| v * v).sum();
+            let quad = 0.5 * (quad_form(&gc, &delta) + quad_form(&gx, &delta));
+            if quad > 0.0 && n2 * n2 / quad / 8.0 > dmax * (1.0 + 1e-9) {
                 return None;
             }
         }
@@ -471,12 +507,26 @@ impl Searcher<'_> {
     }
 
     fn place(&self, c: PhraseId) -> Placement {
+        let mut out = self.search(c);
+        if let (Some((b, kb)), Some(par)) = (out.best, self.eff.tree.parent(c))
+            && kb < self.kl_to(c, par)
+        {
+            out.best_containment = Some(self.engine.containment(self.g, c, b));
+        }
+        out
+    }
+
+    fn search(&self, c: PhraseId) -> Placement {
         let ldc = self.g.log_det(c as usize);
         let margin = self.cfg.duplicate_generality_margin;
         let parent = self.eff.tree.parent(c).unwrap_or(NO_PARENT);
         let min_ld = ldc + self.cfg.better_parent_broader;
         let mut out = Placement::default();
-        let consider = |x: PhraseId, klx: Option<f64>, out: &mut Placement| {
+        let mut cands: Vec<(PhraseId, f64)> = Vec::new();
+        let consider = |x: PhraseId,
+                        klx: Option<f64>,
+                        out: &mut Placement,
+                        cands: &mut Vec<(PhraseId, f64)>| {
             if x == c || !self.eff.tree.is_placed(x) {
                 return;
             }
@@ -490,23 +540,23 @@ impl Searcher<'_> {
                 && x != parent
                 && ldx > min_ld
                 && !self.order.in_subtree(c, x)
-                && out.best.is_none_or(|(b, bk)| k < bk || (k == bk && x < b))
             {
-                out.best = Some((x, k));
+                cands.push((x, k));
             }
         };
         let broader = |x: PhraseId| self.g.log_det(x as usize) > ldc;
         if self.exhaustive {
             for x in 0..self.g.len() as PhraseId {
                 let k = (x != c && broader(x)).then(|| self.kl_to(c, x));
-                consider(x, k, &mut out);
+                consider(x, k, &mut out, &mut cands);
             }
+            out.best = lowest(&cands);
             return out;
         }
         let root = self.index.root;
         if root != c {
-            let k = broader(root).then(|| self.kl_to(c, root));
-            consider(root, k, &mut out);
+            let k = broader(root).then(|| self.kl_diag(c, root));
+            consider(root, k, &mut out, &mut cands);
         }
         let mut beam = vec![root];
         let mut next: Vec<(PhraseId, f64)> = Vec::new();
@@ -518,27 +568,60 @@ impl Searcher<'_> {
                         continue;
                     }
                     if broader(x) {
-                        let k = self.kl_to(c, x);
-                        consider(x, Some(k), &mut out);
+                        let k = self.kl_diag(c, x);
+                        consider(x, Some(k), &mut out, &mut cands);
                         next.push((x, k));
                     } else {
-                        consider(x, None, &mut out);
+                        consider(x, None, &mut out, &mut cands);
                     }
                 }
             }
-            next.sort_unstable_by(|a, b| a.1.total_cmp(&b.1).then(a.0.cmp(&b.0)));
+            // keep the `search_beam` lowest (ties by row); a node reachable twice (repaired
+            // index links) is kept once
+            let by =
+                |a: &(PhraseId, f64), b: &(PhraseId, f64)| a.1.total_cmp(&b.1).then(a.0.cmp(&b.0));
+            let width = self.cfg.search_beam;
+            if next.len() > width {
+                next.select_nth_unstable_by(width - 1, by);
+                next.truncate(width);
+            }
+            next.sort_unstable_by(by);
             next.dedup_by_key(|e| e.0);
             beam.clear();
-            beam.extend(next.iter().take(self.cfg.search_beam).map(|&(x, _)| x));
+            beam.extend(next.iter().map(|&(x, _)| x));
         }
         for &x in &self.index.extra {
-            let k = (x != c && broader(x)).then(|| self.kl_to(c, x));
-            consider(x, k, &mut out);
+            let k = (x != c && broader(x)).then(|| self.kl_diag(c, x));
+            consider(x, k, &mut out, &mut cands);
         }
+        if !self.engine.diagonal {
+            // the beam was steered by the KL of the diagonal parts: rescore the lowest
+            // few exactly
+            let by =
+                |a: &(PhraseId, f64), b: &(PhraseId, f64)| a.1.total_cmp(&b.1).then(a.0.cmp(&b.0));
+            cands.sort_unstable_by(by);
+            cands.dedup_by_key(|e| e.0);
+            cands.truncate(FULL_RESCORE);
+            for e in cands.iter_mut() {
+                e.1 = self.kl_to(c, e.0);
+            }
+        }
+        out.best = lowest(&cands);
         out.dups.sort_by_key(|e| e.0);
         out.dups.dedup_by_key(|e| e.0);
         out
     }
+}
+
+/// Full covariance: candidates rescored with the exact KL after the pruned search.
+const FULL_RESCORE: usize = 8;
+
+/// The candidate with the lowest score (ties: the lower row).
+fn lowest(cands: &[(PhraseId, f64)]) -> Option<(PhraseId, f64)> {
+    cands
+        .iter()
+        .copied()
+        .min_by(|a, b| a.1.total_cmp(&b.1).then(a.0.cmp(&b.0)))
 }
 
 /// What the auditor remembers of the effective tree it saw last.
@@ -546,18 +629,48 @@ impl Searcher<'_> {
 struct Snapshot {
     parent: Vec<PhraseId>,
     placed: Vec<bool>,
+    review: Vec<ReviewStatus>,
+    pinned: Vec<bool>,
+    labels: Vec<String>,
 }
 
 impl Snapshot {
     fn of(eff: &EffectiveTree) -> Self {
-        let n = eff.tree.table_len();
+        let (parent, placed) = tree_arrays(eff);
         Snapshot {
-            parent: (0..n as PhraseId)
-                .map(|p| eff.tree.parent(p).unwrap_or(NO_PARENT))
-                .collect(),
-            placed: (0..n as PhraseId).map(|p| eff.tree.is_placed(p)).collect(),
+            parent,
+            placed,
+            review: eff.review.clone(),
+            pinned: eff.pinned.clone(),
+            labels: eff.labels.clone(),
         }
     }
+}
+
+/// Parent (or `NO_PARENT`) and membership of every phrase.
+fn tree_arrays(eff: &EffectiveTree) -> (Vec<PhraseId>, Vec<bool>) {
+    let n = eff.tree.table_len();
+    (
+        (0..n as PhraseId)
+            .map(|p| eff.tree.parent(p).unwrap_or(NO_PARENT))
+            .collect(),
+        (0..n as PhraseId).map(|p| eff.tree.is_placed(p)).collect(),
+    )
+}
+
+/// Rules whose findings belong to one node and are rebuilt only for the nodes an edit
+/// touches; the others (pairs, tree-relative thresholds, tree-wide counts) are rebuilt on
+/// every update.
+fn node_local(rule: &str) -> bool {
+    matches!(
+        rule,
+        UNPLACED
+            | INVERTED_GENERALITY
+            | WEAK_INCLUSION
+            | BETTER_PARENT
+            | WIDE_FANOUT
+            | SINGLE_CHILD_CHAIN
+    )
 }
 
 /// Holds the statistics, the candidate index and the per-node search results, and updates
@@ -595,7 +708,7 @@ impl Auditor {
         let search = |index: &CandidateIndex, nodes: &[PhraseId], placement: &mut [Placement]| {
             let searcher = Searcher {
                 g,
-                prep: engine.prep.as_ref(),
+                engine: &engine,
                 eff,
                 order: &order,
                 index,
@@ -652,7 +765,12 @@ impl Auditor {
         problems: &[ApplyProblem],
     ) -> &AuditReport {
         let n = g.len();
-        let new = Snapshot::of(eff);
+        if n != self.placement.len() || eff.tree.table_len() != n {
+            // a different phrase table: nothing cached applies
+            *self = Auditor::new(g, phrases, eff, problems, self.cfg.clone());
+            return &self.report;
+        }
+        let (new_parent, new_placed) = tree_arrays(eff);
         let mut stat_dirty = vec![false; n];
         let mut search_dirty = vec![false; n];
         let mark = |v: &mut Vec<bool>, p: PhraseId| {
@@ -661,18 +779,18 @@ impl Auditor {
             }
         };
         for i in 0..n {
-            if self.snapshot.parent[i] == new.parent[i] && self.snapshot.placed[i] == new.placed[i]
+            if self.snapshot.parent[i] == new_parent[i] && self.snapshot.placed[i] == new_placed[i]
             {
                 continue;
             }
             let p = i as PhraseId;
-            let (old_par, new_par) = (self.snapshot.parent[i], new.parent[i]);
+            let (old_par, new_par) = (self.snapshot.parent[i], new_parent[i]);
             for x in [p, old_par, new_par] {
                 mark(&mut stat_dirty, x);
                 mark(&mut search_dirty, x);
             }
             // old and new ancestors: their sets of descendants changed
-            for chain in [&self.snapshot.parent, &new.parent] {
+            for chain in [&self.snapshot.parent, &new_parent] {
                 let mut cur = chain[i];
                 let mut steps = 0;
                 while cur != NO_PARENT && steps < n {
@@ -682,7 +800,7 @@ impl Auditor {
                 }
             }
             // a phrase that joined the tree may be the better answer for its new siblings
-            if new.placed[i] && !self.snapshot.placed[i] && new_par != NO_PARENT {
+            if new_placed[i] && !self.snapshot.placed[i] && new_par != NO_PARENT {
                 for &s in eff.tree.children(new_par) {
                     mark(&mut search_dirty, s);
                 }
@@ -693,7 +811,7 @@ impl Auditor {
         for (i, pl) in self.placement.iter().enumerate() {
             if let Some((b, _)) = pl.best {
                 let c = i as PhraseId;
-                if !eff.tree.is_placed(b) || new.parent[i] == b || order.in_subtree(c, b) {
+                if !eff.tree.is_placed(b) || new_parent[i] == b || order.in_subtree(c, b) {
                     search_dirty[i] = true;
                 }
             }
@@ -705,7 +823,7 @@ impl Auditor {
         self.engine.refresh(&mut stats, g, eff, &stat_list, &order);
         let searcher = Searcher {
             g,
-            prep: self.engine.prep.as_ref(),
+            engine: &self.engine,
             eff,
             order: &order,
             index: &self.index,
@@ -728,8 +846,53 @@ impl Auditor {
         for (p, pl) in fresh {
             self.placement[p as usize] = pl;
         }
-        self.snapshot = new;
-        self.report = assemble(g, phrases, eff, problems, &self.cfg, stats, &self.placement);
+        // nodes whose findings must be rebuilt: changed figures or search, review, pin or
+        // label; the children of nodes whose fan-out may have changed (single-child chains)
+        // and of renamed nodes (their explanations name the parent)
+        let mut dirty: Vec<bool> = (0..n).map(|i| stat_dirty[i] || search_dirty[i]).collect();
+        let mut renamed = vec![false; n];
+        for i in 0..n {
+            if self.snapshot.review[i] != eff.review[i] || self.snapshot.pinned[i] != eff.pinned[i]
+            {
+                dirty[i] = true;
+                self.snapshot.review[i] = eff.review[i];
+                self.snapshot.pinned[i] = eff.pinned[i];
+            }
+            if self.snapshot.labels[i] != eff.labels[i] {
+                dirty[i] = true;
+                renamed[i] = true;
+                self.snapshot.labels[i].clone_from(&eff.labels[i]);
+            }
+        }
+        for i in 0..n {
+            if stat_dirty[i] || renamed[i] {
+                for &c in eff.tree.children(i as PhraseId) {
+                    dirty[c as usize] = true;
+                }
+            }
+        }
+        let old = std::mem::take(&mut self.report.findings);
+        for f in &old {
+            if f.other.is_some_and(|o| renamed[o as usize]) {
+                dirty[f.node as usize] = true;
+            }
+        }
+        let kept: Vec<Finding> = old
+            .into_iter()
+            .filter(|f| node_local(f.rule) && !dirty[f.node as usize])
+            .collect();
+        self.snapshot.parent = new_parent;
+        self.snapshot.placed = new_placed;
+        self.report = assemble_with(
+            g,
+            phrases,
+            eff,
+            problems,
+            &self.cfg,
+            stats,
+            &self.placement,
+            Some((&dirty, kept)),
+        );
         &self.report
     }
 }
@@ -786,13 +949,34 @@ fn assemble(
     stats: Stats,
     placement: &[Placement],
 ) -> AuditReport {
+    assemble_with(g, phrases, eff, problems, cfg, stats, placement, None)
+}
+
+/// [`assemble`], or with `Some((dirty, kept))` only the node-local findings of the dirty
+/// nodes are rebuilt and `kept` (the others' node-local findings) is reused.
+#[allow(clippy::too_many_arguments)]
+fn assemble_with(
+    g: &Gaussians,
+    phrases: &PhraseTable,
+    eff: &EffectiveTree,
+    problems: &[ApplyProblem],
+    cfg: &AuditConfig,
+    stats: Stats,
+    placement: &[Placement],
+    incremental: Option<(&[bool], Vec<Finding>)>,
+) -> AuditReport {
     let n = g.len();
+    let (dirty, kept) = match incremental {
+        Some((d, k)) => (Some(d), k),
+        None => (None, Vec::with_capacity(1024)),
+    };
+    let local = |p: PhraseId| dirty.is_none_or(|d| d[p as usize]);
     let tree = &eff.tree;
     let root = tree.root();
     let id = |p: PhraseId| phrases.id(p).to_string();
     let label = |p: PhraseId| eff.label(p);
     let approved = |p: PhraseId| eff.review[p as usize] == ReviewStatus::Approved;
-    let mut out: Vec<Finding> = Vec::with_capacity(1024);
+    let mut out: Vec<Finding> = kept;
     let reparent = |node: PhraseId, to: PhraseId| Suggestion {
         action: "reparent".into(),
         target: Some(id(to)),
@@ -840,7 +1024,7 @@ fn assemble(
         let i = p as usize;
         let s = &stats.nodes[i];
         if !tree.is_placed(p) {
-            if eff.alias_of[i].is_none() && !eff.excluded[i] {
+            if local(p) && eff.alias_of[i].is_none() && !eff.excluded[i] {
                 let (sugg, other) = match placement[i].best {
                     Some((b, _)) => (reparent(p, b), Some(b)),
                     None => (review(), None),
@@ -866,7 +1050,7 @@ fn assemble(
             unreviewed += 1;
         }
         let pinned = eff.pinned[i];
-        if let Some(par) = tree.parent(p) {
+        if let Some(par) = tree.parent(p).filter(|_| local(p)) {
             let excess_ld = s.log_det - stats.nodes[par as usize].log_det;
             if excess_ld > cfg.inversion_margin {
                 out.push(Finding {
@@ -912,7 +1096,11 @@ fn assemble(
             if let (Some((b, kb)), Some(kp)) = (placement[i].best, s.kl_to_parent) {
                 let need = cfg.better_parent_margin.max(cfg.better_parent_ratio * kp);
                 let gain = kp - kb;
-                if gain > need {
+                let cont_par = s.containment.map_or(0.0, |c| c.value);
+                let cont_best = placement[i].best_containment;
+                let contains = cont_best
+                    .is_some_and(|c| c.value >= cont_par - cfg.better_parent_containment_slack);
+                if gain > need && contains {
                     out.push(Finding {
                         rule: BETTER_PARENT,
                         severity: cfg.severity_of(BETTER_PARENT),
@@ -921,12 +1109,14 @@ fn assemble(
                         score: gain,
                         threshold: need,
                         explanation: format!(
-                            "\"{}\" fits \"{}\" better than its parent \"{}\": KL {:.2} vs {:.2} nats",
+                            "\"{}\" fits \"{}\" better than its parent \"{}\": KL {:.2} vs {:.2} nats, containment {:.1} % vs {:.1} %",
                             label(p),
                             label(b),
                             label(par),
                             kb,
-                            kp
+                            kp,
+                            100.0 * cont_best.map_or(0.0, |c| c.value),
+                            100.0 * cont_par
                         ),
                         suggestion: Some(if pinned {
                             Suggestion {
@@ -945,7 +1135,8 @@ fn assemble(
         let fan = tree.children(p).len();
         if fan >= 2
             && let Some(c) = s.coverage
-            && c.value < cov_thr
+            && c.value
+                < cov_thr - 2.0 * (cov_thr * (1.0 - cov_thr) / c.samples.max(1) as f64).sqrt()
         {
             out.push(Finding {
                 rule: COVERAGE_GAP,
@@ -965,7 +1156,7 @@ fn assemble(
                 accepted: approved(p),
             });
         }
-        if fan > cfg.max_fanout {
+        if local(p) && fan > cfg.max_fanout {
             out.push(Finding {
                 rule: WIDE_FANOUT,
                 severity: cfg.severity_of(WIDE_FANOUT),
@@ -978,7 +1169,8 @@ fn assemble(
                 accepted: approved(p),
             });
         }
-        let chain_top = fan == 1 && tree.parent(p).is_none_or(|q| tree.children(q).len() != 1);
+        let chain_top =
+            local(p) && fan == 1 && tree.parent(p).is_none_or(|q| tree.children(q).len() != 1);
         if chain_top {
             let mut len = 0usize;
             let mut cur = p;

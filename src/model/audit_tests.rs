@@ -268,7 +268,7 @@ fn parent_figures_agree_with_the_gaussian_module() {
     let cfg = AuditConfig::default();
     let s = Searcher {
         g: &g,
-        prep: engine.prep.as_ref(),
+        engine: &engine,
         eff: &eff,
         order: &order,
         index: &index,
@@ -501,9 +501,24 @@ fn pruned_search_agrees_with_the_exhaustive_one() {
     // mid-size tree (1 555 nodes, 16 d) with 5 % misplaced: the pruned search's top
     // better-parent suggestion and its duplicate pairs equal the exhaustive ones for ≥ 99 %
     // of the nodes where either search makes one
-    let nest = Nested::new(6, 4, 16, 41);
+    let mut same = 0usize;
+    let mut total = 0usize;
+    for seed in [41u64, 42, 43] {
+        let (s, t) = agreement(seed);
+        same += s;
+        total += t;
+    }
+    let rate = same as f64 / total.max(1) as f64;
+    eprintln!("suggestions {total} agreement {rate:.4}");
+    assert!(total > 150);
+    assert!(rate >= 0.99, "agreement {rate}");
+}
+
+/// (agreeing, total) suggestions of the pruned and the exhaustive search on one tree.
+fn agreement(seed: u64) -> (usize, usize) {
+    let nest = Nested::new(6, 4, 16, seed);
     let g = nest.gaussians();
-    let (wrong, _) = misplace(&nest.parent, 0.05, 9);
+    let (wrong, _) = misplace(&nest.parent, 0.05, seed + 100);
     let eff = nest.eff(&wrong);
     let pruned_cfg = AuditConfig {
         exhaustive_limit: 0,
@@ -537,10 +552,7 @@ fn pruned_search_agrees_with_the_exhaustive_one() {
             fa == fb
         })
         .count();
-    let rate = same as f64 / union.len().max(1) as f64;
-    eprintln!("suggestions {} agreement {rate:.4}", union.len());
-    assert!(union.len() > 50);
-    assert!(rate >= 0.99, "agreement {rate}");
+    (same, union.len())
 }
 
 #[test]
@@ -575,13 +587,19 @@ fn update_equals_a_full_recompute() {
     p2[7] = 0;
     let mut eff2 = nest.eff(&p2);
     eff2.review[3] = ReviewStatus::Approved;
+    eff2.pinned[5] = true;
+    // renames reach the explanations of other nodes' findings
+    for f in r1.findings.iter().filter(|f| f.other.is_some()).take(3) {
+        eff2.labels[f.other.unwrap() as usize] = format!("renamed {}", f.node);
+    }
+    eff2.labels[1] = "renamed one".into();
     let r2 = auditor.update(&g, &nest.phrases, &eff2, &[]).clone();
     // a fresh auditor on the first tree, fully recomputed on the same index
     let fresh = Auditor::new(&g, &nest.phrases, &eff0, &[], cfg);
     let order = Order::of(&eff2);
     let s = Searcher {
         g: &g,
-        prep: fresh.engine.prep.as_ref(),
+        engine: &fresh.engine,
         eff: &eff2,
         order: &order,
         index: &fresh.index,
@@ -731,4 +749,207 @@ fn same_input_gives_the_same_report() {
         serde_json::to_string(&a).unwrap(),
         serde_json::to_string(&b).unwrap()
     );
+}
+
+#[test]
+fn full_covariance_containment_of_itself_is_alpha() {
+    // as above, through the full-covariance path (definition of the χ² quantile)
+    let cov = [2.0, 0.6, 0.1, 0.6, 1.0, 0.3, 0.1, 0.3, 0.5];
+    let g = Gaussians::from_full(1, 3, vec![0.5, -1.0, 2.0], cov.to_vec(), 0.0).unwrap();
+    let engine = StatsEngine::new(&g, &cfg_samples(2048));
+    let c = engine.containment(&g, 0, 0);
+    assert!((c.value - 0.95).abs() <= 3.0 * c.std_error, "{c:?}");
+}
+
+#[test]
+fn update_after_a_merge_and_an_exclusion_equals_a_full_recompute() {
+    use crate::model::edit::EditRecord;
+    use crate::model::overrides::apply;
+    let nest = Nested::new(4, 3, 8, 71);
+    let g = nest.gaussians();
+    let base = nest.eff(&nest.parent).tree;
+    let cfg = AuditConfig {
+        exhaustive_limit: 0,
+        ..AuditConfig::default()
+    };
+    let rec = |edit: Edit| EditRecord {
+        edit,
+        author: "test".into(),
+        time: "2026-12-02T07:00:00Z".into(),
+        note: None,
+    };
+    let (eff0, _) = apply(&base, &nest.phrases, &[]);
+    let mut auditor = Auditor::new(&g, &nest.phrases, &eff0, &[], cfg.clone());
+    let edits = vec![
+        rec(Edit::Merge {
+            sources: vec!["n2".into()],
+            into: "n1".into(),
+        }),
+        rec(Edit::Exclude { node: "n3".into() }),
+        rec(Edit::Reparent {
+            node: "n30".into(),
+            parent: "n4".into(),
+        }),
+    ];
+    let (eff1, problems) = apply(&base, &nest.phrases, &edits);
+    assert!(problems.is_empty(), "{problems:?}");
+    let got = auditor.update(&g, &nest.phrases, &eff1, &problems).clone();
+    assert!(!eff1.tree.is_placed(2) && !eff1.tree.is_placed(3));
+    assert!(got.findings.iter().all(|f| f.node != 2 && f.node != 3));
+    let order = Order::of(&eff1);
+    let s = Searcher {
+        g: &g,
+        engine: &auditor.engine,
+        eff: &eff1,
+        order: &order,
+        index: &auditor.index,
+        cfg: &auditor.cfg,
+        exhaustive: false,
+    };
+    let placement: Vec<Placement> = (0..g.len() as PhraseId)
+        .map(|p| {
+            if needs_search(&eff1, p) {
+                s.place(p)
+            } else {
+                Placement::default()
+            }
+        })
+        .collect();
+    let stats = auditor.engine.compute(&g, &eff1);
+    let want = assemble(
+        &g,
+        &nest.phrases,
+        &eff1,
+        &problems,
+        &auditor.cfg,
+        stats,
+        &placement,
+    );
+    assert_eq!(got, want);
+}
+
+#[test]
+fn misplaced_nodes_are_found_on_the_sample_generator() {
+    // the same acceptance figures on the sample module's synthetic generator (issue 5)
+    use crate::model::sample::{SyntheticSpec, synthetic_gaussians};
+    for spec in [
+        SyntheticSpec {
+            phrases: 2000,
+            dim: 16,
+            ..SyntheticSpec::default()
+        },
+        SyntheticSpec {
+            phrases: 3000,
+            dim: 32,
+            branching: 5,
+            depth: 3,
+            seed: 4,
+            ..SyntheticSpec::default()
+        },
+    ] {
+        let (phrases, g, tf) = synthetic_gaussians(&spec);
+        let tree = Tree::from_id_map(&phrases, &tf.root, &tf.parent).unwrap();
+        let truth: Vec<PhraseId> = (0..phrases.len() as PhraseId)
+            .map(|p| tree.parent(p).unwrap_or(NO_PARENT))
+            .collect();
+        let (wrong, moved) = misplace(&truth, 0.05, spec.seed + 17);
+        let root = tree.root();
+        let edges: Vec<(PhraseId, PhraseId)> = wrong
+            .iter()
+            .enumerate()
+            .filter(|(c, p)| **p != NO_PARENT && *c as PhraseId != root)
+            .map(|(c, &p)| (c as PhraseId, p))
+            .collect();
+        let t2 = Tree::from_edges(&phrases, root, &edges).unwrap();
+        let eff = EffectiveTree::from_base(&t2, &phrases);
+        let r = audit(&g, &phrases, &eff, &[], &AuditConfig::default());
+        let flags = placement_flags(&r);
+        let hit = moved.iter().filter(|m| flags.contains(m)).count();
+        let recall = hit as f64 / moved.len() as f64;
+        let precision = hit as f64 / flags.len().max(1) as f64;
+        let named = moved
+            .iter()
+            .filter(|&&m| {
+                r.findings.iter().any(|f| {
+                    f.rule == BETTER_PARENT && f.node == m && f.other == Some(truth[m as usize])
+                })
+            })
+            .count() as f64
+            / moved.len() as f64;
+        eprintln!(
+            "sample generator d={}: moved {} flagged {} recall {recall:.3} precision {precision:.3} true parent {named:.3}",
+            spec.dim,
+            moved.len(),
+            flags.len()
+        );
+        assert!(recall >= 0.9 && precision >= 0.8 && named >= 0.7);
+    }
+}
+
+#[test]
+fn full_covariance_search_finds_misplaced_nodes_like_the_exhaustive_one() {
+    // full covariances (sample generator, random rotations): the beam steered by the
+    // diagonal parts, rescored exactly, still meets the issue's figures and agrees with the
+    // exhaustive search
+    use crate::model::sample::{SyntheticSpec, synthetic_gaussians};
+    let spec = SyntheticSpec {
+        phrases: 800,
+        dim: 8,
+        full_covariance: true,
+        seed: 9,
+        ..SyntheticSpec::default()
+    };
+    let (phrases, g, tf) = synthetic_gaussians(&spec);
+    let tree = Tree::from_id_map(&phrases, &tf.root, &tf.parent).unwrap();
+    let truth: Vec<PhraseId> = (0..phrases.len() as PhraseId)
+        .map(|p| tree.parent(p).unwrap_or(NO_PARENT))
+        .collect();
+    let (wrong, moved) = misplace(&truth, 0.05, 5);
+    let edges: Vec<(PhraseId, PhraseId)> = wrong
+        .iter()
+        .enumerate()
+        .filter(|(_, p)| **p != NO_PARENT)
+        .map(|(c, &p)| (c as PhraseId, p))
+        .collect();
+    let eff = EffectiveTree::from_base(
+        &Tree::from_edges(&phrases, tree.root(), &edges).unwrap(),
+        &phrases,
+    );
+    let pruned = audit(&g, &phrases, &eff, &[], &AuditConfig::default());
+    let full = audit(
+        &g,
+        &phrases,
+        &eff,
+        &[],
+        &AuditConfig {
+            exhaustive_limit: usize::MAX,
+            ..AuditConfig::default()
+        },
+    );
+    let flags = placement_flags(&pruned);
+    let hit = moved.iter().filter(|m| flags.contains(m)).count();
+    let (recall, precision) = (
+        hit as f64 / moved.len() as f64,
+        hit as f64 / flags.len().max(1) as f64,
+    );
+    let bp = |r: &AuditReport| -> Vec<(PhraseId, Option<PhraseId>)> {
+        r.findings
+            .iter()
+            .filter(|f| f.rule == BETTER_PARENT)
+            .map(|f| (f.node, f.other))
+            .collect()
+    };
+    let (a, b) = (bp(&pruned), bp(&full));
+    let same = a.iter().filter(|x| b.contains(x)).count();
+    let agreement = same as f64 / a.len().max(b.len()).max(1) as f64;
+    eprintln!(
+        "full covariance: recall {recall:.3} precision {precision:.3} agreement {agreement:.3} ({} vs {})",
+        a.len(),
+        b.len()
+    );
+    assert!(
+        recall >= 0.9 && precision >= 0.8,
+        "recall {recall} precision {precision}"
+    );
+    assert!(agreement >= 0.95, "agreement {agreement}");
 }

@@ -29,28 +29,35 @@ fn kl_sum_impl(mc: &[f32], vc: &[f32], mx: &[f32], wx: &[f32]) -> f32 {
     s
 }
 
-/// Σₖ (mx[k] − mc[k])² / (vc[k] + vx[k]).
+/// Whether Σₖ (mx[k] − mc[k])² / (vc[k] + vx[k]) exceeds `limit`. Every term is ≥ 0, so
+/// the sum is checked after each block of 16 dimensions and the loop stops as soon as it is
+/// over: most pairs are far apart in the first few dimensions already.
 #[inline(always)]
-fn mean_term_impl(mc: &[f32], vc: &[f32], mx: &[f32], vx: &[f32]) -> f32 {
-    let mut acc = [0.0f32; 8];
-    let n = mc.len() / 8 * 8;
+fn mean_term_exceeds_impl(mc: &[f32], vc: &[f32], mx: &[f32], vx: &[f32], limit: f32) -> bool {
+    const BLOCK: usize = 16;
+    let n = mc.len() / BLOCK * BLOCK;
+    let mut total = 0.0f32;
     for (((a, b), c), d) in mc[..n]
-        .chunks_exact(8)
-        .zip(vc[..n].chunks_exact(8))
-        .zip(mx[..n].chunks_exact(8))
-        .zip(vx[..n].chunks_exact(8))
+        .chunks_exact(BLOCK)
+        .zip(vc[..n].chunks_exact(BLOCK))
+        .zip(mx[..n].chunks_exact(BLOCK))
+        .zip(vx[..n].chunks_exact(BLOCK))
     {
-        for j in 0..8 {
+        let mut acc = [0.0f32; BLOCK];
+        for j in 0..BLOCK {
             let dl = c[j] - a[j];
-            acc[j] += dl * dl / (b[j] + d[j]);
+            acc[j] = dl * dl / (b[j] + d[j]);
+        }
+        total += acc.iter().sum::<f32>();
+        if total > limit {
+            return true;
         }
     }
-    let mut s: f32 = acc.iter().sum();
     for k in n..mc.len() {
         let dl = mx[k] - mc[k];
-        s += dl * dl / (vc[k] + vx[k]);
+        total += dl * dl / (vc[k] + vx[k]);
     }
-    s
+    total > limit
 }
 
 /// acc[s] = Σₖ (mp[k] − mq[k] + sp[k] · z[k][s])² · wq[k] for every bank point s, where
@@ -85,8 +92,14 @@ mod avx2 {
     }
 
     #[target_feature(enable = "avx2")]
-    pub(super) fn mean_term(mc: &[f32], vc: &[f32], mx: &[f32], vx: &[f32]) -> f32 {
-        super::mean_term_impl(mc, vc, mx, vx)
+    pub(super) fn mean_term_exceeds(
+        mc: &[f32],
+        vc: &[f32],
+        mx: &[f32],
+        vx: &[f32],
+        limit: f32,
+    ) -> bool {
+        super::mean_term_exceeds_impl(mc, vc, mx, vx, limit)
     }
 
     #[target_feature(enable = "avx2")]
@@ -117,14 +130,20 @@ pub(crate) fn kl_sum(mc: &[f32], vc: &[f32], mx: &[f32], wx: &[f32]) -> f32 {
     kl_sum_impl(mc, vc, mx, wx)
 }
 
-/// See [`mean_term_impl`].
-pub(crate) fn mean_term(mc: &[f32], vc: &[f32], mx: &[f32], vx: &[f32]) -> f32 {
+/// See [`mean_term_exceeds_impl`].
+pub(crate) fn mean_term_exceeds(
+    mc: &[f32],
+    vc: &[f32],
+    mx: &[f32],
+    vx: &[f32],
+    limit: f32,
+) -> bool {
     #[cfg(target_arch = "x86_64")]
     if has_avx2() {
         // SAFETY: the processor supports AVX2 (checked at run time).
-        return unsafe { avx2::mean_term(mc, vc, mx, vx) };
+        return unsafe { avx2::mean_term_exceeds(mc, vc, mx, vx, limit) };
     }
-    mean_term_impl(mc, vc, mx, vx)
+    mean_term_exceeds_impl(mc, vc, mx, vx, limit)
 }
 
 /// See [`mahalanobis_rows_impl`].
@@ -162,10 +181,21 @@ mod tests {
             kl_sum(&a, &b, &c, &e).to_bits(),
             kl_sum_impl(&a, &b, &c, &e).to_bits()
         );
-        assert_eq!(
-            mean_term(&a, &b, &c, &e).to_bits(),
-            mean_term_impl(&a, &b, &c, &e).to_bits()
-        );
+        let full: f64 = (0..d)
+            .map(|k| {
+                let dl = (c[k] - a[k]) as f64;
+                dl * dl / (b[k] as f64 + e[k] as f64)
+            })
+            .sum();
+        for limit in [0.0, 0.5 * full, 0.999 * full, 1.001 * full, 2.0 * full] {
+            let want = full > limit;
+            assert_eq!(
+                mean_term_exceeds(&a, &b, &c, &e, limit as f32),
+                want,
+                "{limit}"
+            );
+            assert_eq!(mean_term_exceeds_impl(&a, &b, &c, &e, limit as f32), want);
+        }
         let n = 40;
         let bank: Vec<f32> = (0..d * n).map(|i| (i as f32 * 0.37).cos()).collect();
         let mut x = vec![0.0; n];

@@ -92,6 +92,29 @@ pub enum Scale {
     LogVariance,
 }
 
+/// Size guards applied while loading, so a huge or hostile input fails with a clear error
+/// instead of exhausting memory. Set in the manifest's optional `limits` object.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct Limits {
+    /// Largest file the loader reads, in MiB (default 8192).
+    pub max_file_mb: u64,
+    /// Most phrases (default 10 000 000).
+    pub max_phrases: usize,
+    /// Largest embedding dimension (default 4096).
+    pub max_dim: usize,
+}
+
+impl Default for Limits {
+    fn default() -> Self {
+        Limits {
+            max_file_mb: 8192,
+            max_phrases: 10_000_000,
+            max_dim: 4096,
+        }
+    }
+}
+
 /// Where the embeddings are.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(untagged)]
@@ -143,6 +166,9 @@ pub struct Manifest {
     /// Audit thresholds (read by the audit).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub audit: Option<serde_json::Value>,
+    /// Size guards for loading (defaults when absent).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub limits: Option<Limits>,
 }
 
 fn is_default_scale(s: &Scale) -> bool {
@@ -255,10 +281,37 @@ pub fn resolve_inside(dir: &Path, rel: &str, field: &str) -> Result<PathBuf, Loa
 }
 
 fn read_bytes(path: &Path) -> Result<Vec<u8>, LoadError> {
-    fs::read(path).map_err(|source| LoadError::Io {
-        file: path.display().to_string(),
+    read_bytes_limited(path, &Limits::default())
+}
+
+fn read_bytes_limited(path: &Path, limits: &Limits) -> Result<Vec<u8>, LoadError> {
+    let file = path.display().to_string();
+    let io = |source| LoadError::Io {
+        file: file.clone(),
         source,
-    })
+    };
+    let len = fs::metadata(path).map_err(io)?.len();
+    let max = limits.max_file_mb.saturating_mul(1 << 20);
+    if len > max {
+        return Err(LoadError::invalid(
+            &file,
+            "size",
+            format!(
+                "{:.1} MiB exceeds the limit of {} MiB (raise limits.max_file_mb in project.json)",
+                len as f64 / (1 << 20) as f64,
+                limits.max_file_mb
+            ),
+        ));
+    }
+    fs::read(path).map_err(io)
+}
+
+fn read_json_limited<T: serde::de::DeserializeOwned>(
+    path: &Path,
+    limits: &Limits,
+) -> Result<T, LoadError> {
+    let bytes = read_bytes_limited(path, limits)?;
+    parse_json(&bytes, &path.display().to_string())
 }
 
 /// Parse JSON from a file, with line and column on error.
@@ -285,13 +338,13 @@ pub fn parse_json<T: serde::de::DeserializeOwned>(
 }
 
 /// A 2-D array read from `.npy` (float32 or float64), as f64, with its shape.
-fn read_npy2(path: &Path) -> Result<(usize, usize, Vec<f64>), LoadError> {
-    let bytes = read_bytes(path)?;
+fn read_npy2(path: &Path, limits: &Limits) -> Result<(usize, usize, Vec<f64>), LoadError> {
+    let bytes = read_bytes_limited(path, limits)?;
     parse_npy2(&bytes, &path.display().to_string())
 }
 
-fn read_npy3(path: &Path) -> Result<(usize, usize, usize, Vec<f64>), LoadError> {
-    let bytes = read_bytes(path)?;
+fn read_npy3(path: &Path, limits: &Limits) -> Result<(usize, usize, usize, Vec<f64>), LoadError> {
+    let bytes = read_bytes_limited(path, limits)?;
     parse_npy3(&bytes, &path.display().to_string())
 }
 
@@ -478,10 +531,23 @@ impl Project {
             ));
         }
 
+        let limits = manifest.limits.unwrap_or_default();
+
         // phrases
         let ppath = resolve_inside(&dir, &manifest.phrases, "phrases")?;
         let pfile = ppath.display().to_string();
-        let records: Vec<PhraseRecord> = read_json(&ppath)?;
+        let records: Vec<PhraseRecord> = read_json_limited(&ppath, &limits)?;
+        if records.len() > limits.max_phrases {
+            return Err(LoadError::invalid(
+                &pfile,
+                "phrases",
+                format!(
+                    "{} phrases exceed the limit of {} (raise limits.max_phrases in project.json)",
+                    records.len(),
+                    limits.max_phrases
+                ),
+            ));
+        }
         let phrases = PhraseTable::from_records(&records).map_err(|e| match &e {
             super::phrase::PhraseError::DuplicateId { id, second, .. } => {
                 LoadError::invalid(&pfile, format!("row {second} id \"{id}\""), e.to_string())
@@ -494,16 +560,16 @@ impl Project {
             return Err(LoadError::invalid(&pfile, "phrases", "the list is empty"));
         }
 
-        let gaussians = load_embeddings(&dir, &manifest, &phrases, floor)?;
+        let gaussians = load_embeddings(&dir, &manifest, &phrases, floor, &limits)?;
         let users = match &manifest.users {
-            Some(u) => load_users(&resolve_inside(&dir, u, "users")?, gaussians.dim())?,
+            Some(u) => load_users(&resolve_inside(&dir, u, "users")?, gaussians.dim(), &limits)?,
             None => Vec::new(),
         };
         let tree = match &manifest.tree {
             Some(t) => {
                 let tpath = resolve_inside(&dir, t, "tree")?;
                 if tpath.exists() {
-                    Some(load_tree(&tpath, &phrases)?)
+                    Some(load_tree_limited(&tpath, &phrases, &limits)?)
                 } else {
                     None
                 }
@@ -545,6 +611,7 @@ fn load_embeddings(
     manifest: &Manifest,
     phrases: &PhraseTable,
     floor: f64,
+    limits: &Limits,
 ) -> Result<Gaussians, LoadError> {
     let mfile = dir.join(MANIFEST_NAME).display().to_string();
     let n = phrases.len();
@@ -578,16 +645,17 @@ fn load_embeddings(
         } => {
             let mpath = resolve_inside(dir, means, "embeddings.means")?;
             let mf = mpath.display().to_string();
-            let (rows, d, mvals) = read_npy2(&mpath)?;
+            let (rows, d, mvals) = read_npy2(&mpath, limits)?;
             check_rows(&mf, rows)?;
             if d == 0 {
                 return Err(LoadError::invalid(&mf, "shape", "dimension is 0"));
             }
+            check_dim(&mf, d, limits)?;
             match (variances, covariances) {
                 (Some(v), None) => {
                     let vpath = resolve_inside(dir, v, "embeddings.variances")?;
                     let vf = vpath.display().to_string();
-                    let (vr, vd, mut vvals) = read_npy2(&vpath)?;
+                    let (vr, vd, mut vvals) = read_npy2(&vpath, limits)?;
                     check_rows(&vf, vr)?;
                     if vd != d {
                         return Err(LoadError::invalid(
@@ -606,7 +674,7 @@ fn load_embeddings(
                     full_scale_check(&mfile)?;
                     let cpath = resolve_inside(dir, c, "embeddings.covariances")?;
                     let cf = cpath.display().to_string();
-                    let (cr, a, b, cvals) = read_npy3(&cpath)?;
+                    let (cr, a, b, cvals) = read_npy3(&cpath, limits)?;
                     check_rows(&cf, cr)?;
                     if a != d || b != d {
                         return Err(LoadError::invalid(
@@ -629,12 +697,13 @@ fn load_embeddings(
         EmbeddingsRef::Json(f) => {
             let path = resolve_inside(dir, f, "embeddings")?;
             let file = path.display().to_string();
-            let e: EmbeddingsJson = read_json(&path)?;
+            let e: EmbeddingsJson = read_json_limited(&path, limits)?;
             check_rows(&file, e.means.len())?;
             let d = e.means.first().map_or(0, Vec::len);
             if d == 0 {
                 return Err(LoadError::invalid(&file, "means", "dimension is 0"));
             }
+            check_dim(&file, d, limits)?;
             let flat = |rows: &[Vec<f64>], field: &str| -> Result<Vec<f64>, LoadError> {
                 let mut out = Vec::with_capacity(rows.len() * d);
                 for (i, r) in rows.iter().enumerate() {
@@ -695,6 +764,20 @@ fn load_embeddings(
     }
 }
 
+fn check_dim(file: &str, d: usize, limits: &Limits) -> Result<(), LoadError> {
+    if d > limits.max_dim {
+        return Err(LoadError::invalid(
+            file,
+            "shape",
+            format!(
+                "dimension {d} exceeds the limit of {} (raise limits.max_dim in project.json)",
+                limits.max_dim
+            ),
+        ));
+    }
+    Ok(())
+}
+
 fn check_finite_named(
     file: &str,
     phrases: &PhraseTable,
@@ -713,9 +796,9 @@ fn check_finite_named(
     Ok(())
 }
 
-fn load_users(path: &Path, d: usize) -> Result<Vec<UserProfile>, LoadError> {
+fn load_users(path: &Path, d: usize, limits: &Limits) -> Result<Vec<UserProfile>, LoadError> {
     let file = path.display().to_string();
-    let recs: Vec<UserRecord> = read_json(path)?;
+    let recs: Vec<UserRecord> = read_json_limited(path, limits)?;
     let mut seen = BTreeMap::new();
     let mut out = Vec::with_capacity(recs.len());
     for (i, r) in recs.into_iter().enumerate() {
@@ -758,14 +841,22 @@ fn load_users(path: &Path, d: usize) -> Result<Vec<UserProfile>, LoadError> {
 /// header (the root is the row with an empty parent, or else the one parent that is never a
 /// child).
 pub fn load_tree(path: &Path, phrases: &PhraseTable) -> Result<Tree, LoadError> {
+    load_tree_limited(path, phrases, &Limits::default())
+}
+
+fn load_tree_limited(
+    path: &Path,
+    phrases: &PhraseTable,
+    limits: &Limits,
+) -> Result<Tree, LoadError> {
     let file = path.display().to_string();
     let is_csv = path
         .extension()
         .is_some_and(|e| e.eq_ignore_ascii_case("csv"));
     let tf: TreeFile = if is_csv {
-        parse_tree_csv(&read_bytes(path)?, &file)?
+        parse_tree_csv(&read_bytes_limited(path, limits)?, &file)?
     } else {
-        read_json(path)?
+        read_json_limited(path, limits)?
     };
     Tree::from_id_map(phrases, &tf.root, &tf.parent)
         .map_err(|e| LoadError::invalid(&file, "tree", e.to_string()))
@@ -885,6 +976,7 @@ impl ProjectWriter<'_> {
             tree: self.tree.map(|_| "tree.json".into()),
             overrides: Some("overrides.json".into()),
             audit: None,
+            limits: None,
         };
         fsutil::atomic_write(
             &dir.join(MANIFEST_NAME),

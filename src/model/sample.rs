@@ -1191,6 +1191,7 @@ pub fn write_synthetic(dir: &Path, spec: &SyntheticSpec) -> std::io::Result<()> 
         tree: Some("tree.json".into()),
         overrides: Some("overrides.json".into()),
         audit: None,
+        limits: None,
     };
     fsutil::atomic_write(
         &dir.join(MANIFEST_NAME),

@@ -178,29 +178,37 @@ pub(crate) struct StatsEngine {
     r2: f64,
     dim: usize,
     bank: SampleBank,
-    pub(crate) prep: Option<Prepared>,
+    /// Factors of the diagonal parts (the whole covariance when `diagonal`).
+    pub(crate) prep: Prepared,
+    /// Whether the covariances are diagonal.
+    pub(crate) diagonal: bool,
+    /// Σₖ ln σ²ₖ of the diagonal parts (equals ln det Σ when `diagonal`).
+    pub(crate) diag_log_det: Vec<f64>,
 }
 
 impl StatsEngine {
     pub(crate) fn new(g: &Gaussians, cfg: &AuditConfig) -> Self {
         let d = g.dim().max(1);
-        let prep = (g.kind() == CovarianceKind::Diagonal).then(|| {
-            let mut std = Vec::with_capacity(g.len() * d);
-            let mut ivar = Vec::with_capacity(g.len() * d);
-            for i in 0..g.len() {
-                for &v in g.variances(i) {
-                    std.push(v.sqrt());
-                    ivar.push(1.0 / v);
-                }
+        let mut std = Vec::with_capacity(g.len() * d);
+        let mut ivar = Vec::with_capacity(g.len() * d);
+        let mut diag_log_det = Vec::with_capacity(g.len());
+        for i in 0..g.len() {
+            let mut ld = 0.0;
+            for &v in g.variances(i) {
+                std.push(v.sqrt());
+                ivar.push(1.0 / v);
+                ld += (v as f64).ln();
             }
-            Prepared { std, ivar }
-        });
+            diag_log_det.push(ld);
+        }
         StatsEngine {
             alpha: cfg.alpha,
             r2: chi2_quantile(d, cfg.alpha),
             dim: g.dim(),
             bank: SampleBank::new(g.dim(), cfg.samples, cfg.seed),
-            prep,
+            prep: Prepared { std, ivar },
+            diagonal: g.kind() == CovarianceKind::Diagonal,
+            diag_log_det,
         }
     }
 
@@ -209,7 +217,7 @@ impl StatsEngine {
         let n = self.bank.samples;
         let d = self.dim;
         let mut inside = vec![false; n];
-        match &self.prep {
+        match self.diagonal.then_some(&self.prep) {
             Some(prep) => {
                 let r2 = self.r2 as f32;
                 let mp = g.mean(p as usize);
@@ -227,9 +235,10 @@ impl StatsEngine {
             None => {
                 let gp = g.get(p as usize);
                 let views: Vec<GaussianView> = qs.iter().map(|&q| g.get(q as usize)).collect();
+                let mut y = vec![0.0f64; d];
                 for (s, hit) in inside.iter_mut().enumerate() {
                     let x = point_of(&gp, &self.bank.point(s, d));
-                    *hit = views.iter().any(|q| mahalanobis2(&x, q) <= self.r2);
+                    *hit = views.iter().any(|q| maha2_into(&x, q, &mut y) <= self.r2);
                 }
             }
         }
@@ -327,6 +336,42 @@ impl StatsEngine {
             stats.nodes[p as usize] = s;
         }
         refresh_shape(stats, eff, shape);
+    }
+}
+
+/// Mahalanobis² of `x` under `q` without allocating: forward substitution on the stored
+/// Cholesky factor (`y` is scratch of length d).
+pub(crate) fn maha2_into(x: &[f64], q: &GaussianView, y: &mut [f64]) -> f64 {
+    match q.cov {
+        CovView::Diag(_) => mahalanobis2(x, q),
+        CovView::Full(l) => {
+            let d = x.len();
+            let mut m = 0.0;
+            for i in 0..d {
+                let row = &l[i * d..i * d + i];
+                let mut r = x[i] - q.mean[i] as f64;
+                for (lij, yj) in row.iter().zip(&y[..i]) {
+                    r -= lij * yj;
+                }
+                y[i] = r / l[i * d + i];
+                m += y[i] * y[i];
+            }
+            m
+        }
+    }
+}
+
+/// ΔᵀΣΔ = ‖LᵀΔ‖² for a full-covariance view (diagonal: Σ Δₖ² σ²ₖ).
+pub(crate) fn quad_form(q: &GaussianView, delta: &[f64]) -> f64 {
+    let d = delta.len();
+    match q.cov {
+        CovView::Diag(v) => delta.iter().zip(v).map(|(a, &s)| a * a * s as f64).sum(),
+        CovView::Full(l) => (0..d)
+            .map(|j| {
+                let t: f64 = (j..d).map(|i| l[i * d + j] * delta[i]).sum();
+                t * t
+            })
+            .sum(),
     }
 }
 
