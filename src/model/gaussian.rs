@@ -216,6 +216,65 @@ impl Gaussians {
         })
     }
 
+    /// Diagonal Gaussians from `f32` rows, stored without a copy (the common case of float32
+    /// `.npy` files). Same checks and floor as [`Gaussians::from_diagonal`].
+    pub fn from_diagonal_f32(
+        n: usize,
+        d: usize,
+        means: Vec<f32>,
+        mut variances: Vec<f32>,
+        floor: f64,
+    ) -> Result<Self, GaussError> {
+        for (what, v) in [("means", &means), ("variances", &variances)] {
+            if v.len() != n * d {
+                return Err(GaussError::Shape(format!(
+                    "{what} has {} values, expected {}",
+                    v.len(),
+                    n * d
+                )));
+            }
+        }
+        for (what, v) in [("mean", &means), ("variance", &variances)] {
+            if let Some((idx, &value)) = v.iter().enumerate().find(|(_, x)| !x.is_finite()) {
+                return Err(GaussError::NonFinite {
+                    row: idx / d.max(1),
+                    col: idx % d.max(1),
+                    what,
+                    value: value as f64,
+                });
+            }
+        }
+        let floor32 = floor as f32;
+        let mut log_det = Vec::with_capacity(n);
+        for row in 0..n {
+            let mut ld = 0.0;
+            for col in 0..d {
+                let v = &mut variances[row * d + col];
+                if *v <= 0.0 {
+                    return Err(GaussError::NonPositiveVariance {
+                        row,
+                        col,
+                        value: *v as f64,
+                    });
+                }
+                if (*v as f64) < floor {
+                    *v = floor32;
+                }
+                ld += (*v as f64).ln();
+            }
+            log_det.push(ld);
+        }
+        Ok(Gaussians {
+            n,
+            d,
+            kind: CovarianceKind::Diagonal,
+            means,
+            variances,
+            chol: Vec::new(),
+            log_det,
+        })
+    }
+
     /// Full-covariance Gaussians from row-major means (`n × d`) and covariances (`n × d × d`).
     ///
     /// Each matrix must be symmetric (to a relative 1e-6) and positive definite. Diagonal
@@ -979,6 +1038,30 @@ mod tests {
         assert!(matches!(
             Gaussians::from_full(1, 2, vec![0.0, 0.0], vec![1.0, 0.5, 0.1, 1.0], 1e-6),
             Err(GaussError::NotPositiveDefinite { .. })
+        ));
+    }
+
+    #[test]
+    fn f32_constructor_matches_the_f64_one() {
+        let m = vec![0.5, -1.0, 2.0, 0.25];
+        let v = vec![0.3, 1e-9, 2.0, 4.0];
+        let a = Gaussians::from_diagonal(2, 2, m.clone(), v.clone(), 1e-4).unwrap();
+        let b = Gaussians::from_diagonal_f32(
+            2,
+            2,
+            m.iter().map(|&x| x as f32).collect(),
+            v.iter().map(|&x| x as f32).collect(),
+            1e-4,
+        )
+        .unwrap();
+        assert_eq!(a, b);
+        assert!(matches!(
+            Gaussians::from_diagonal_f32(1, 2, vec![0.0, 0.0], vec![1.0, -2.0], 1e-6),
+            Err(GaussError::NonPositiveVariance { row: 0, col: 1, .. })
+        ));
+        assert!(matches!(
+            Gaussians::from_diagonal_f32(1, 1, vec![f32::INFINITY], vec![1.0], 1e-6),
+            Err(GaussError::NonFinite { row: 0, .. })
         ));
     }
 

@@ -337,10 +337,29 @@ pub fn parse_json<T: serde::de::DeserializeOwned>(
     })
 }
 
-/// A 2-D array read from `.npy` (float32 or float64), as f64, with its shape.
-fn read_npy2(path: &Path, limits: &Limits) -> Result<(usize, usize, Vec<f64>), LoadError> {
+/// The values of a float `.npy` array in the file's own precision.
+#[derive(Debug, Clone, PartialEq)]
+pub enum NpyValues {
+    /// float32 values, row-major.
+    F32(Vec<f32>),
+    /// float64 values, row-major.
+    F64(Vec<f64>),
+}
+
+impl NpyValues {
+    /// The values widened to f64.
+    pub fn into_f64(self) -> Vec<f64> {
+        match self {
+            NpyValues::F32(v) => v.into_iter().map(f64::from).collect(),
+            NpyValues::F64(v) => v,
+        }
+    }
+}
+
+/// A 2-D array read from `.npy` (float32 or float64) in its own precision, with its shape.
+fn read_npy2(path: &Path, limits: &Limits) -> Result<(usize, usize, NpyValues), LoadError> {
     let bytes = read_bytes_limited(path, limits)?;
-    parse_npy2(&bytes, &path.display().to_string())
+    parse_npy2_raw(&bytes, &path.display().to_string())
 }
 
 fn read_npy3(path: &Path, limits: &Limits) -> Result<(usize, usize, usize, Vec<f64>), LoadError> {
@@ -411,18 +430,37 @@ fn precheck_npy(bytes: &[u8], file: &str) -> Result<(), LoadError> {
     Ok(())
 }
 
-/// Parse a 2-D float32/float64 `.npy` from bytes (naming `file` in errors).
+/// Parse a 2-D float32/float64 `.npy` from bytes (naming `file` in errors), as f64.
 pub fn parse_npy2(bytes: &[u8], file: &str) -> Result<(usize, usize, Vec<f64>), LoadError> {
+    let (n, d, v) = parse_npy2_raw(bytes, file)?;
+    Ok((n, d, v.into_f64()))
+}
+
+fn row_major<T: Clone>(arr: Array2<T>) -> Vec<T> {
+    if arr.is_standard_layout() {
+        let (v, _) = arr.into_raw_vec_and_offset();
+        v
+    } else {
+        arr.as_standard_layout().iter().cloned().collect()
+    }
+}
+
+/// Parse a 2-D float32/float64 `.npy` from bytes, keeping the file's precision (float32
+/// files are not widened, which halves the memory a large project needs while loading).
+pub fn parse_npy2_raw(bytes: &[u8], file: &str) -> Result<(usize, usize, NpyValues), LoadError> {
     precheck_npy(bytes, file)?;
-    let arr: Array2<f64> = match Array2::<f64>::read_npy(bytes) {
-        Ok(a) => a,
-        Err(ReadNpyError::WrongDescriptor(_)) => Array2::<f32>::read_npy(bytes)
-            .map_err(|e| npy_err(file, e, 2))?
-            .mapv(|x| x as f64),
-        Err(e) => return Err(npy_err(file, e, 2)),
-    };
-    let (n, d) = arr.dim();
-    Ok((n, d, arr.as_standard_layout().iter().copied().collect()))
+    match Array2::<f64>::read_npy(bytes) {
+        Ok(a) => {
+            let (n, d) = a.dim();
+            Ok((n, d, NpyValues::F64(row_major(a))))
+        }
+        Err(ReadNpyError::WrongDescriptor(_)) => {
+            let a = Array2::<f32>::read_npy(bytes).map_err(|e| npy_err(file, e, 2))?;
+            let (n, d) = a.dim();
+            Ok((n, d, NpyValues::F32(row_major(a))))
+        }
+        Err(e) => Err(npy_err(file, e, 2)),
+    }
 }
 
 /// Parse a 3-D float32/float64 `.npy` from bytes (naming `file` in errors).
@@ -454,6 +492,14 @@ fn npy_err(file: &str, e: ReadNpyError, ndim: usize) -> LoadError {
     LoadError::Npy {
         file: file.to_string(),
         message,
+    }
+}
+
+fn apply_scale_f32(values: &mut [f32], scale: Scale) {
+    match scale {
+        Scale::Variance => {}
+        Scale::Std => values.iter_mut().for_each(|v| *v *= *v),
+        Scale::LogVariance => values.iter_mut().for_each(|v| *v = v.exp()),
     }
 }
 
@@ -645,7 +691,7 @@ fn load_embeddings(
         } => {
             let mpath = resolve_inside(dir, means, "embeddings.means")?;
             let mf = mpath.display().to_string();
-            let (rows, d, mvals) = read_npy2(&mpath, limits)?;
+            let (rows, d, mraw) = read_npy2(&mpath, limits)?;
             check_rows(&mf, rows)?;
             if d == 0 {
                 return Err(LoadError::invalid(&mf, "shape", "dimension is 0"));
@@ -655,7 +701,7 @@ fn load_embeddings(
                 (Some(v), None) => {
                     let vpath = resolve_inside(dir, v, "embeddings.variances")?;
                     let vf = vpath.display().to_string();
-                    let (vr, vd, mut vvals) = read_npy2(&vpath, limits)?;
+                    let (vr, vd, vraw) = read_npy2(&vpath, limits)?;
                     check_rows(&vf, vr)?;
                     if vd != d {
                         return Err(LoadError::invalid(
@@ -664,11 +710,23 @@ fn load_embeddings(
                             format!("has dimension {vd} but {} has dimension {d}", mf),
                         ));
                     }
-                    check_finite_named(&mf, phrases, &mvals, d, "mean")?;
-                    check_finite_named(&vf, phrases, &vvals, d, "variance")?;
-                    apply_scale(&mut vvals, manifest.scale);
-                    Gaussians::from_diagonal(n, d, mvals, vvals, floor)
-                        .map_err(|e| gauss_err(&vf, phrases, e))
+                    match (mraw, vraw) {
+                        (NpyValues::F32(mvals), NpyValues::F32(mut vvals)) => {
+                            check_finite_named(&mf, phrases, &mvals, d, "mean")?;
+                            check_finite_named(&vf, phrases, &vvals, d, "variance")?;
+                            apply_scale_f32(&mut vvals, manifest.scale);
+                            Gaussians::from_diagonal_f32(n, d, mvals, vvals, floor)
+                                .map_err(|e| gauss_err(&vf, phrases, e))
+                        }
+                        (mraw, vraw) => {
+                            let (mvals, mut vvals) = (mraw.into_f64(), vraw.into_f64());
+                            check_finite_named(&mf, phrases, &mvals, d, "mean")?;
+                            check_finite_named(&vf, phrases, &vvals, d, "variance")?;
+                            apply_scale(&mut vvals, manifest.scale);
+                            Gaussians::from_diagonal(n, d, mvals, vvals, floor)
+                                .map_err(|e| gauss_err(&vf, phrases, e))
+                        }
+                    }
                 }
                 (None, Some(c)) => {
                     full_scale_check(&mfile)?;
@@ -683,6 +741,7 @@ fn load_embeddings(
                             format!("matrices are {a}×{b} but {mf} has dimension {d}"),
                         ));
                     }
+                    let mvals = mraw.into_f64();
                     check_finite_named(&mf, phrases, &mvals, d, "mean")?;
                     Gaussians::from_full(n, d, mvals, cvals, floor)
                         .map_err(|e| gauss_err(&cf, phrases, e))
@@ -778,14 +837,19 @@ fn check_dim(file: &str, d: usize, limits: &Limits) -> Result<(), LoadError> {
     Ok(())
 }
 
-fn check_finite_named(
+fn check_finite_named<T: Copy + Into<f64>>(
     file: &str,
     phrases: &PhraseTable,
-    vals: &[f64],
+    vals: &[T],
     d: usize,
     what: &str,
 ) -> Result<(), LoadError> {
-    if let Some((i, v)) = vals.iter().enumerate().find(|(_, v)| !v.is_finite()) {
+    if let Some((i, v)) = vals
+        .iter()
+        .map(|&x| x.into())
+        .enumerate()
+        .find(|(_, v): &(usize, f64)| !v.is_finite())
+    {
         let row = i / d;
         return Err(LoadError::invalid(
             file,

@@ -924,12 +924,12 @@ pub fn write_demo(dir: &Path) -> std::io::Result<()> {
     .write(dir)
 }
 
-/// The demo project folder: the repository's `sample-projects/fernhollow` when it exists,
-/// otherwise a copy written once into `$XDG_DATA_HOME/treewright/demo` (or
-/// `~/.local/share/treewright/demo`).
+/// The demo project folder the workbench opens: a working copy written once into
+/// `$XDG_DATA_HOME/treewright/demo` (or `~/.local/share/treewright/demo`), so that a user's
+/// saved edits never change the committed `sample-projects/fernhollow`. An existing copy is
+/// left alone (it holds the user's override layer).
 ///
-/// When no data folder can be found or written, the returned path is the repository one,
-/// so that opening it reports the missing file.
+/// When no data folder can be found or written, the repository's folder is returned.
 pub fn demo_dir() -> PathBuf {
     let bundled = Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-projects/fernhollow");
     let base = std::env::var_os("XDG_DATA_HOME")
@@ -941,9 +941,6 @@ pub fn demo_dir() -> PathBuf {
 
 /// [`demo_dir`] with the repository folder and the data folder given.
 fn demo_dir_from(bundled: PathBuf, data_home: Option<PathBuf>) -> PathBuf {
-    if bundled.join(MANIFEST_NAME).is_file() {
-        return bundled;
-    }
     let Some(base) = data_home else {
         return bundled;
     };
@@ -1278,16 +1275,12 @@ mod tests {
     }
 
     #[test]
-    fn demo_dir_prefers_the_repository_then_writes_once() {
+    fn demo_dir_writes_a_working_copy_once() {
         let repo = tempfile::tempdir().unwrap();
         let data = tempfile::tempdir().unwrap();
-        // the repository folder exists: it is used, nothing is written
+        // the demo is written into the data folder (even when the repository has one) and loads
         fs::write(repo.path().join(MANIFEST_NAME), b"{}").unwrap();
-        let got = demo_dir_from(repo.path().to_path_buf(), Some(data.path().to_path_buf()));
-        assert_eq!(got, repo.path());
-        assert!(!data.path().join("treewright").exists());
-        // no repository folder: the demo is written into the data folder and loads
-        let missing = repo.path().join("nowhere");
+        let missing = repo.path().to_path_buf();
         let got = demo_dir_from(missing.clone(), Some(data.path().to_path_buf()));
         assert_eq!(got, data.path().join("treewright/demo"));
         Project::load(&got).unwrap();
@@ -1303,6 +1296,10 @@ mod tests {
             .modified()
             .unwrap();
         assert_eq!(stamp, stamp2);
+        // the working copy keeps the user's edits: an override file there is not touched
+        fs::write(got.join("overrides.json"), b"kept").unwrap();
+        demo_dir_from(missing.clone(), Some(data.path().to_path_buf()));
+        assert_eq!(fs::read(got.join("overrides.json")).unwrap(), b"kept");
         // no data folder at all: falls back to the repository path
         assert_eq!(demo_dir_from(missing.clone(), None), missing);
     }

@@ -1,0 +1,53 @@
+#!/usr/bin/env bash
+# End-to-end scale figures for the README's Performance table: synthetic projects of
+# 10k / 100k phrases × 64 d (diagonal) and 5k × 32 (full covariance), each command timed
+# RUNS times (median wall time) with peak memory from /usr/bin/time -v.
+# Usage: bash benches/scale.sh [RUNS]   (after cargo build --release)
+set -euo pipefail
+cd "$(dirname "$0")/.."
+RUNS=${1:-3}
+BIN=target/release/treewright
+WORK=$(mktemp -d)
+trap 'rm -rf "$WORK"' EXIT
+
+median() { sort -n | awk '{a[NR]=$1} END {print a[int((NR+1)/2)]}'; }
+
+measure() { # name, command...
+  local name=$1; shift
+  local walls=() mem=0
+  for _ in $(seq "$RUNS"); do
+    /usr/bin/time -v "$@" >/dev/null 2>"$WORK/time.txt" || { cat "$WORK/time.txt" >&2; return 1; }
+    local w m
+    w=$(awk -F': ' '/Elapsed \(wall clock\)/ {split($2,t,":"); s=0; for(i=1;i<=length(t);i++) s=s*60+t[i]; print s}' "$WORK/time.txt")
+    m=$(awk -F': ' '/Maximum resident set size/ {print $2}' "$WORK/time.txt")
+    walls+=("$w"); [ "$m" -gt "$mem" ] && mem=$m
+  done
+  printf '| %s | %s s | %s MiB |\n' "$name" "$(printf '%s\n' "${walls[@]}" | median)" "$((mem / 1024))"
+}
+
+echo "| step | median wall | peak RSS |"
+echo "|---|---|---|"
+for spec in "10000 64 diag" "100000 64 diag" "5000 32 full"; do
+  set -- $spec
+  n=$1 d=$2 kind=$3
+  dir="$WORK/p-$n-$d-$kind"
+  extra=(); [ "$kind" = full ] && extra=(--full)
+  $BIN sample --synthetic "$n" --dim "$d" --branching 10 --depth 3 "${extra[@]}" --out "$dir" >/dev/null
+  raw=$(( n * d * 4 * 2 )); [ "$kind" = full ] && raw=$(( n * d * 4 + n * d * d * 8 ))
+  echo "| **$n × $d $kind** (raw embedding bytes $((raw / 1048576)) MiB) | | |"
+  measure "load (info)" $BIN info "$dir"
+  # 200 reparent edits (leaves between clusters) through the CLI, then apply
+  ids=$(python3 -c "import json;p=json.load(open('$dir/tree.json'))['parent'];l=[c for c in p if c.startswith('leaf')];print(' '.join(l[:200]))")
+  parents=$(python3 -c "import json;p=json.load(open('$dir/tree.json'))['parent'];c=sorted(set(v for k,v in p.items() if k.startswith('leaf')));print(' '.join(c[:200]))")
+  set -- $parents; np=$#
+  i=0
+  for id in $ids; do
+    i=$((i + 1)); idx=$(( (i * 7) % np + 1 )); par=${!idx}
+    $BIN edit "$dir" reparent "$id" "$par" --author scale >/dev/null 2>&1 || true
+  done
+  measure "apply ($(python3 -c "import json;print(len(json.load(open('$dir/overrides.json'))['edits']))") edits)" $BIN apply "$dir" --out "$WORK/eff.json"
+  measure "full audit" $BIN audit "$dir" --format json --out "$WORK/audit.json"
+  if [ "$n" -le 10000 ]; then
+    measure "build" $BIN build "$dir" --out "$WORK/tree.json" --report "$WORK/report.json"
+  fi
+done
