@@ -299,14 +299,7 @@ mod tests {
     use crate::model::edit::ReviewStatus;
 
     fn table(ids: &[&str]) -> PhraseTable {
-        let recs: Vec<PhraseRecord> = ids
-            .iter()
-            .map(|i| PhraseRecord {
-                id: Some(i.to_string()),
-                label: i.replace('-', " "),
-            })
-            .collect();
-        PhraseTable::from_records(&recs).unwrap()
+        PhraseTable::from_ids(ids).unwrap()
     }
 
     fn tf(root: &str, pairs: &[(&str, &str)]) -> TreeFile {

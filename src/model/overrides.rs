@@ -765,18 +765,10 @@ pub fn unreviewed_count(eff: &EffectiveTree) -> usize {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::model::phrase::PhraseRecord;
     use std::collections::BTreeMap;
 
     pub(crate) fn table(ids: &[&str]) -> PhraseTable {
-        let recs: Vec<PhraseRecord> = ids
-            .iter()
-            .map(|i| PhraseRecord {
-                id: Some(i.to_string()),
-                label: i.replace('-', " "),
-            })
-            .collect();
-        PhraseTable::from_records(&recs).unwrap()
+        PhraseTable::from_ids(ids).unwrap()
     }
 
     fn tree(t: &PhraseTable, root: &str, pairs: &[(&str, &str)]) -> Tree {

@@ -88,6 +88,19 @@ impl PhraseTable {
         Ok(t)
     }
 
+    /// A table from ids alone, each labelled with its id with `-` read as a space (handy for
+    /// tests and small tools).
+    pub fn from_ids(ids: &[&str]) -> Result<Self, PhraseError> {
+        let recs: Vec<PhraseRecord> = ids
+            .iter()
+            .map(|i| PhraseRecord {
+                id: Some(i.to_string()),
+                label: i.replace('-', " "),
+            })
+            .collect();
+        PhraseTable::from_records(&recs)
+    }
+
     /// Number of phrases.
     pub fn len(&self) -> usize {
         self.ids.len()

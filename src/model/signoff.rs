@@ -215,17 +215,9 @@ pub fn describe_edit(e: &Edit) -> String {
 mod tests {
     use super::*;
     use crate::model::edit::ReviewStatus;
-    use crate::model::phrase::PhraseRecord;
 
     fn table(ids: &[&str]) -> PhraseTable {
-        let recs: Vec<PhraseRecord> = ids
-            .iter()
-            .map(|i| PhraseRecord {
-                id: Some(i.to_string()),
-                label: i.replace('-', " "),
-            })
-            .collect();
-        PhraseTable::from_records(&recs).unwrap()
+        PhraseTable::from_ids(ids).unwrap()
     }
 
     fn rec(e: Edit) -> EditRecord {

@@ -323,17 +323,9 @@ pub struct TreeFile {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::model::phrase::PhraseRecord;
 
     fn table(ids: &[&str]) -> PhraseTable {
-        let recs: Vec<PhraseRecord> = ids
-            .iter()
-            .map(|i| PhraseRecord {
-                id: Some(i.to_string()),
-                label: i.to_string(),
-            })
-            .collect();
-        PhraseTable::from_records(&recs).unwrap()
+        PhraseTable::from_ids(ids).unwrap()
     }
 
     fn map(pairs: &[(&str, &str)]) -> BTreeMap<String, String> {
