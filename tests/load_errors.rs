@@ -425,3 +425,21 @@ fn size_limits_are_configurable_and_reported() {
         &["project.json", "unknown field `max_rows`"],
     );
 }
+
+#[test]
+fn a_project_without_a_tree_entry_records_one() {
+    let d = project();
+    let m = fs::read_to_string(d.path().join("project.json")).unwrap();
+    fs::write(
+        d.path().join("project.json"),
+        m.replace("\"tree\": \"tree.json\",", ""),
+    )
+    .unwrap();
+    let mut p = Project::load(d.path()).unwrap();
+    assert!(p.tree.is_none());
+    assert!(p.record_tree_in_manifest().unwrap());
+    assert!(!p.record_tree_in_manifest().unwrap()); // only once
+    assert!(d.path().join("project.json.bak").exists());
+    // tree.json is still on disk from the fixture: the manifest now finds it
+    assert!(Project::load(d.path()).unwrap().tree.is_some());
+}

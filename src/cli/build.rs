@@ -100,7 +100,7 @@ fn write(path: &Path, bytes: &[u8], backup: bool) -> Result<(), CliError> {
 pub fn run(args: &BuildArgs) -> Result<(), CliError> {
     let params = args.params();
     params.validate().map_err(CliError::bad_input)?;
-    let project = Project::load(&args.project)?;
+    let mut project = Project::load(&args.project)?;
     let out = args.out.clone().unwrap_or_else(|| project.tree_path());
     let report_path = args.report.clone().unwrap_or_else(|| {
         out.parent()
@@ -121,14 +121,13 @@ pub fn run(args: &BuildArgs) -> Result<(), CliError> {
     write(&out, &tree_bytes, true)?;
     write(&report_path, &fsutil::to_json_pretty(&built.report), false)?;
     // a project without a tree file learns where its new tree is
-    if args.out.is_none() && project.manifest.tree.is_none() {
-        let mut manifest = project.manifest.clone();
-        manifest.tree = Some("tree.json".to_string());
-        write(
-            &project.dir.join(MANIFEST_NAME),
-            &fsutil::to_json_pretty(&manifest),
-            true,
-        )?;
+    if args.out.is_none() {
+        project.record_tree_in_manifest().map_err(|e| {
+            CliError::bad_input(format!(
+                "{}: cannot write: {e}",
+                project.dir.join(MANIFEST_NAME).display()
+            ))
+        })?;
     }
     // a closed pipe (`| head`) is not an error worth a panic: the files are written
     let mut o = std::io::stdout().lock();

@@ -304,6 +304,10 @@ impl Doc {
         let path = self.project.tree_path();
         atomic_write(&path, &to_json_pretty(file), true)
             .map_err(|e| format!("{}: {e}", path.display()))?;
+        // a project without a tree entry learns where its tree is, so it loads next time
+        self.project
+            .record_tree_in_manifest()
+            .map_err(|e| format!("{}: {e}", self.project.dir.join("project.json").display()))?;
         if let Some(r) = report {
             let rpath = self.project.dir.join("build-report.json");
             atomic_write(&rpath, &to_json_pretty(r), false)

@@ -641,6 +641,25 @@ impl Project {
             .join(self.manifest.tree.as_deref().unwrap_or("tree.json"))
     }
 
+    /// Make sure the manifest names a tree file: a project without one gets
+    /// `"tree": "tree.json"` written into `project.json` (atomically, the previous manifest
+    /// kept as `project.json.bak`), so a tree written to [`Project::tree_path`] loads next time.
+    /// Returns whether the manifest was changed.
+    pub fn record_tree_in_manifest(&mut self) -> std::io::Result<bool> {
+        if self.manifest.tree.is_some() {
+            return Ok(false);
+        }
+        let mut manifest = self.manifest.clone();
+        manifest.tree = Some("tree.json".to_string());
+        fsutil::atomic_write(
+            &self.dir.join(MANIFEST_NAME),
+            &fsutil::to_json_pretty(&manifest),
+            true,
+        )?;
+        self.manifest = manifest;
+        Ok(true)
+    }
+
     /// The override layer file.
     pub fn overrides_path(&self) -> PathBuf {
         self.dir.join(
