@@ -163,10 +163,11 @@ impl SampleBank {
     }
 }
 
-/// Standard deviations and inverse variances of diagonal Gaussians, row-major n × d.
+/// Inverse variances of diagonal Gaussians, row-major n × d (the hot KL and Mahalanobis
+/// loops multiply by them). Standard deviations are taken per call, where they are needed
+/// once per sampled node, which keeps one n × d table instead of two.
 #[derive(Debug, Clone)]
 pub(crate) struct Prepared {
-    pub(crate) std: Vec<f32>,
     pub(crate) ivar: Vec<f32>,
 }
 
@@ -189,13 +190,11 @@ pub(crate) struct StatsEngine {
 impl StatsEngine {
     pub(crate) fn new(g: &Gaussians, cfg: &AuditConfig) -> Self {
         let d = g.dim().max(1);
-        let mut std = Vec::with_capacity(g.len() * d);
         let mut ivar = Vec::with_capacity(g.len() * d);
         let mut diag_log_det = Vec::with_capacity(g.len());
         for i in 0..g.len() {
             let mut ld = 0.0;
             for &v in g.variances(i) {
-                std.push(v.sqrt());
                 ivar.push(1.0 / v);
                 ld += (v as f64).ln();
             }
@@ -206,7 +205,7 @@ impl StatsEngine {
             r2: chi2_quantile(d, cfg.alpha),
             dim: g.dim(),
             bank: SampleBank::new(g.dim(), cfg.samples, cfg.seed),
-            prep: Prepared { std, ivar },
+            prep: Prepared { ivar },
             diagonal: g.kind() == CovarianceKind::Diagonal,
             diag_log_det,
         }
@@ -221,12 +220,12 @@ impl StatsEngine {
             Some(prep) => {
                 let r2 = self.r2 as f32;
                 let mp = g.mean(p as usize);
-                let sp = &prep.std[p as usize * d..(p as usize + 1) * d];
+                let sp: Vec<f32> = g.variances(p as usize).iter().map(|v| v.sqrt()).collect();
                 let mut acc = vec![0.0f32; n];
                 for &q in qs {
                     let mq = g.mean(q as usize);
                     let wq = &prep.ivar[q as usize * d..(q as usize + 1) * d];
-                    kernels::mahalanobis_rows(&mut acc, &self.bank.z, mp, sp, mq, wq);
+                    kernels::mahalanobis_rows(&mut acc, &self.bank.z, mp, &sp, mq, wq);
                     for (hit, &m) in inside.iter_mut().zip(&acc) {
                         *hit |= m <= r2;
                     }
