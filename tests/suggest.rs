@@ -29,12 +29,7 @@ fn top_broader_offer_is_the_true_parent_on_a_planted_hierarchy() {
     let tree = Tree::from_id_map(&phrases, &tf.root, &tf.parent).unwrap();
     let eff = EffectiveTree::from_base(&tree, &phrases);
     let params = SuggestParams::default();
-    let ctx = SuggestCtx {
-        gaussians: &g,
-        phrases: &phrases,
-        eff: &eff,
-        params: &params,
-    };
+    let ctx = SuggestCtx::new(&g, &phrases, &eff, &params);
     let mut right = 0;
     let mut total = 0;
     for p in 0..phrases.len() as PhraseId {

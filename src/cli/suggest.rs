@@ -45,12 +45,7 @@ pub fn run(args: &SuggestArgs) -> Result<(), CliError> {
         top: args.top.max(1),
         ..SuggestParams::default()
     };
-    let ctx = SuggestCtx {
-        gaussians: &project.gaussians,
-        phrases: &project.phrases,
-        eff: &eff,
-        params: &params,
-    };
+    let ctx = SuggestCtx::new(&project.gaussians, &project.phrases, &eff, &params);
     if args.all {
         let rows = bulk_check(&ctx, &project.users);
         if let Some(path) = &args.csv {

@@ -106,12 +106,12 @@ impl SuggestPanel {
             None => true,
         };
         if stale {
-            let ctx = SuggestCtx {
-                gaussians: &view.project.gaussians,
-                phrases: &view.project.phrases,
-                eff: view.eff,
-                params: &self.params,
-            };
+            let ctx = SuggestCtx::new(
+                &view.project.gaussians,
+                &view.project.phrases,
+                view.eff,
+                &self.params,
+            );
             let user = self.user.and_then(|i| view.project.users.get(i));
             let r = suggest(&ctx, p, user).map_err(|e| e.to_string());
             self.cache = Some((p, self.user, view.revision, r));
@@ -130,12 +130,7 @@ impl SuggestPanel {
         let total = bulk_nodes(view.eff).len();
         let (d2, c2) = (Arc::clone(&done), Arc::clone(&cancel));
         let handle = std::thread::spawn(move || {
-            let ctx = SuggestCtx {
-                gaussians: &g,
-                phrases: &phrases,
-                eff: &eff,
-                params: &params,
-            };
+            let ctx = SuggestCtx::new(&g, &phrases, &eff, &params);
             bulk_check_with(&ctx, &users, &d2, &c2)
         });
         self.bulk_revision = view.revision;

@@ -187,7 +187,22 @@ pub struct SuggestCtx<'a> {
     pub params: &'a SuggestParams,
 }
 
-impl SuggestCtx<'_> {
+impl<'a> SuggestCtx<'a> {
+    /// Bundle the inputs of a suggestion.
+    pub fn new(
+        gaussians: &'a Gaussians,
+        phrases: &'a PhraseTable,
+        eff: &'a EffectiveTree,
+        params: &'a SuggestParams,
+    ) -> Self {
+        SuggestCtx {
+            gaussians,
+            phrases,
+            eff,
+            params,
+        }
+    }
+
     fn offerable(&self, p: PhraseId) -> bool {
         let i = p as usize;
         self.eff.tree.is_placed(p) && !self.eff.excluded[i] && self.eff.alias_of[i].is_none()
@@ -637,12 +652,7 @@ mod tests {
         let (phrases, g, tree) = fixture();
         let eff = EffectiveTree::from_base(&tree, &phrases);
         let params = SuggestParams::default();
-        let ctx = SuggestCtx {
-            gaussians: &g,
-            phrases: &phrases,
-            eff: &eff,
-            params: &params,
-        };
+        let ctx = SuggestCtx::new(&g, &phrases, &eff, &params);
         let s = suggest(&ctx, 3, None).unwrap();
         assert_eq!(s.broader[0].id, "a");
         assert_eq!(s.broader[0].relation, Relation::Parent);
@@ -662,12 +672,7 @@ mod tests {
         let (phrases, g, tree) = fixture();
         let eff = EffectiveTree::from_base(&tree, &phrases);
         let params = SuggestParams::default();
-        let ctx = SuggestCtx {
-            gaussians: &g,
-            phrases: &phrases,
-            eff: &eff,
-            params: &params,
-        };
+        let ctx = SuggestCtx::new(&g, &phrases, &eff, &params);
         let user = UserProfile {
             id: "u-b".into(),
             label: "likes b".into(),
@@ -699,12 +704,7 @@ mod tests {
         eff.tree = Tree::from_edges(&phrases, 0, &edges).unwrap();
         eff.excluded[5] = true;
         let params = SuggestParams::default();
-        let ctx = SuggestCtx {
-            gaussians: &g,
-            phrases: &phrases,
-            eff: &eff,
-            params: &params,
-        };
+        let ctx = SuggestCtx::new(&g, &phrases, &eff, &params);
         let s = suggest(&ctx, 4, None).unwrap();
         assert_eq!(s.phrase.id, "a1");
         assert_eq!(s.phrase.redirected_from.as_deref(), Some("a2"));
@@ -728,12 +728,7 @@ mod tests {
         let (phrases, g, tree) = fixture();
         let eff = EffectiveTree::from_base(&tree, &phrases);
         let params = SuggestParams::default();
-        let ctx = SuggestCtx {
-            gaussians: &g,
-            phrases: &phrases,
-            eff: &eff,
-            params: &params,
-        };
+        let ctx = SuggestCtx::new(&g, &phrases, &eff, &params);
         let users = [UserProfile {
             id: "u".into(),
             label: "u".into(),
