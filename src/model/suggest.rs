@@ -21,8 +21,7 @@ use serde::Serialize;
 
 use super::effective::EffectiveTree;
 use super::gaussian::{
-    GaussianView, Gaussians, PhraseId, bhattacharyya_coefficient, containment, kl,
-    log_expected_likelihood,
+    Gaussians, PhraseId, bhattacharyya_coefficient, containment, kl, log_expected_likelihood,
 };
 use super::phrase::PhraseTable;
 use super::project::UserProfile;
@@ -128,6 +127,9 @@ pub struct Candidate {
     /// Rank in the personalised order, when a profile is given.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub personal_rank: Option<usize>,
+    /// (narrower, broader) rows of the pair the numbers describe.
+    #[serde(skip)]
+    pub pair: (PhraseId, PhraseId),
 }
 
 /// The phrase a suggestion is for.
@@ -208,29 +210,48 @@ impl<'a> SuggestCtx<'a> {
         self.eff.tree.is_placed(p) && !self.eff.excluded[i] && self.eff.alias_of[i].is_none()
     }
 
+    /// A candidate with its cheap numbers (KL, generality). `narrow` is the narrower of the
+    /// pair; `score` defaults to −KL(narrow ‖ broad). Containment and overlap are sampled /
+    /// computed by [`SuggestCtx::measure`] only for the candidates that are shown.
     fn candidate(
         &self,
-        narrow: &GaussianView,
-        broad: &GaussianView,
+        narrow: PhraseId,
+        broad: PhraseId,
         cand: PhraseId,
         relation: Relation,
-        score: f64,
+        score: Option<f64>,
     ) -> Candidate {
-        let p = self.params;
+        let g = self.gaussians;
+        let k = kl(&g.get(narrow as usize), &g.get(broad as usize));
         Candidate {
             phrase: cand,
             id: self.phrases.id(cand).to_string(),
             label: self.eff.label(cand).to_string(),
-            score,
+            score: score.unwrap_or(-k),
             in_tree: !matches!(relation, Relation::Container),
             relation,
-            containment: containment(narrow, broad, p.alpha, p.samples, p.seed).value,
-            kl: kl(narrow, broad),
-            overlap: bhattacharyya_coefficient(narrow, broad),
-            generality: self.gaussians.log_det(cand as usize),
+            containment: f64::NAN,
+            kl: k,
+            overlap: f64::NAN,
+            generality: g.log_det(cand as usize),
             user_score: None,
             generic_rank: 0,
             personal_rank: None,
+            pair: (narrow, broad),
+        }
+    }
+
+    /// Fill in the sampled containment and the overlap of a candidate (once).
+    fn measure(&self, c: &mut Candidate) {
+        if !c.containment.is_nan() {
+            return;
+        }
+        let g = self.gaussians;
+        let (narrow, broad) = (g.get(c.pair.0 as usize), g.get(c.pair.1 as usize));
+        let p = self.params;
+        c.containment = containment(&narrow, &broad, p.alpha, p.samples, p.seed).value;
+        if c.overlap.is_nan() {
+            c.overlap = bhattacharyya_coefficient(&narrow, &broad);
         }
     }
 
@@ -247,13 +268,12 @@ impl<'a> SuggestCtx<'a> {
             Vec::new()
         };
         for (i, &a) in ancestors.iter().enumerate() {
-            let ga = g.get(a as usize);
             let rel = if i == 0 {
                 Relation::Parent
             } else {
                 Relation::Ancestor
             };
-            out.push(self.candidate(&me, &ga, a, rel, -kl(&me, &ga)));
+            out.push(self.candidate(q, a, a, rel, None));
         }
         let anc: HashSet<PhraseId> = ancestors.iter().copied().collect();
         let pool: Vec<PhraseId> = if exhaustive || !tree.is_placed(q) {
@@ -281,7 +301,8 @@ impl<'a> SuggestCtx<'a> {
             .collect();
         ext.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
         for &(k, c) in ext.iter().take(self.params.external_pool) {
-            let cand = self.candidate(&me, &g.get(c as usize), c, Relation::Container, -k);
+            let mut cand = self.candidate(q, c, c, Relation::Container, Some(-k));
+            self.measure(&mut cand);
             if cand.containment >= self.params.external_min_containment {
                 out.push(cand);
             }
@@ -290,8 +311,6 @@ impl<'a> SuggestCtx<'a> {
     }
 
     fn narrower(&self, q: PhraseId) -> Vec<Candidate> {
-        let g = self.gaussians;
-        let me = g.get(q as usize);
         let tree = &self.eff.tree;
         let mut out = Vec::new();
         if !tree.is_placed(q) {
@@ -300,13 +319,12 @@ impl<'a> SuggestCtx<'a> {
         let mut stack: Vec<(PhraseId, u32)> =
             tree.children(q).iter().rev().map(|&c| (c, 1)).collect();
         while let Some((c, depth)) = stack.pop() {
-            let gc = g.get(c as usize);
             let rel = if depth == 1 {
                 Relation::Child
             } else {
                 Relation::Descendant
             };
-            out.push(self.candidate(&gc, &me, c, rel, -kl(&gc, &me)));
+            out.push(self.candidate(c, q, c, rel, None));
             for &cc in tree.children(c).iter().rev() {
                 stack.push((cc, depth + 1));
             }
@@ -329,9 +347,8 @@ impl<'a> SuggestCtx<'a> {
             .iter()
             .filter(|&&s| s != q)
             .map(|&s| {
-                let gs = g.get(s as usize);
-                let bc = bhattacharyya_coefficient(&me, &gs);
-                let mut c = self.candidate(&gs, &me, s, Relation::Sibling, bc);
+                let bc = bhattacharyya_coefficient(&me, &g.get(s as usize));
+                let mut c = self.candidate(s, q, s, Relation::Sibling, Some(bc));
                 c.overlap = bc;
                 c
             })
@@ -349,6 +366,7 @@ fn rank(
     v.truncate(top);
     for (i, c) in v.iter_mut().enumerate() {
         c.generic_rank = i;
+        ctx.measure(c);
     }
     if let Some(u) = user {
         let uv = u.gaussian.view();
