@@ -59,6 +59,8 @@ pub struct SuggestPanel {
     /// Bulk table sort column.
     pub sort: BulkSort,
     status: String,
+    /// Phrase matches of the search box: (query, tree revision) → first rows matching.
+    matches: Option<(String, u64, Vec<PhraseId>)>,
 }
 
 impl Default for SuggestPanel {
@@ -76,6 +78,7 @@ impl Default for SuggestPanel {
             filter: String::new(),
             sort: BulkSort::Tree,
             status: String::new(),
+            matches: None,
         }
     }
 }
@@ -242,12 +245,23 @@ impl SuggestPanel {
         let q = self.search.trim().to_lowercase();
         if !q.is_empty() {
             let phrases = &view.project.phrases;
-            let matches: Vec<PhraseId> = (0..phrases.len() as PhraseId)
-                .filter(|&p| {
-                    view.eff.label(p).to_lowercase().contains(&q) || phrases.id(p).contains(&q)
-                })
-                .take(8)
-                .collect();
+            // scan the labels only when the query or the tree changed, not every frame
+            let fresh =
+                matches!(&self.matches, Some((mq, mr, _)) if *mq == q && *mr == view.revision);
+            if !fresh {
+                let found: Vec<PhraseId> = (0..phrases.len() as PhraseId)
+                    .filter(|&p| {
+                        view.eff.label(p).to_lowercase().contains(&q) || phrases.id(p).contains(&q)
+                    })
+                    .take(8)
+                    .collect();
+                self.matches = Some((q.clone(), view.revision, found));
+            }
+            let matches = self
+                .matches
+                .as_ref()
+                .map(|m| m.2.clone())
+                .unwrap_or_default();
             if matches.is_empty() {
                 ui.label("No phrase matches.");
             }
