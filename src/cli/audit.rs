@@ -2,6 +2,7 @@
 //! [--rule RULE...]`.
 
 use std::fmt::Write as _;
+use std::io::Write as _;
 use std::path::PathBuf;
 
 use clap::{Args, ValueEnum};
@@ -12,7 +13,7 @@ use super::edit::Session;
 use crate::model::audit::{AuditConfig, AuditReport, Finding, RULES, Severity, audit};
 use crate::model::edit::{Edit, EditRecord};
 use crate::model::effective::EffectiveTree;
-use crate::model::fsutil::atomic_write;
+use crate::model::fsutil::atomic_write_with;
 use crate::model::phrase::PhraseTable;
 use crate::model::signoff::{latest_signoff, tree_hash};
 
@@ -111,6 +112,10 @@ pub fn signoff_state(
     }
 }
 
+// The JSON structs below list their fields in alphabetical order: the report used to be
+// built as a `serde_json::Value` (whose maps sort their keys) and is now streamed straight
+// from these structs, with the same bytes.
+
 #[derive(Serialize)]
 struct JsonSuggestion<'a> {
     action: &'a str,
@@ -119,39 +124,82 @@ struct JsonSuggestion<'a> {
 
 #[derive(Serialize)]
 struct JsonFinding<'a> {
-    rule: &'a str,
-    severity: Severity,
-    node: &'a str,
-    label: &'a str,
-    score: f64,
-    threshold: f64,
     explanation: &'a str,
+    label: &'a str,
+    node: &'a str,
+    rule: &'a str,
+    score: f64,
+    severity: Severity,
     suggestion: Option<JsonSuggestion<'a>>,
+    threshold: f64,
 }
 
 #[derive(Serialize)]
 struct RuleCount {
+    accepted: usize,
+    open: usize,
     rule: &'static str,
     severity: Severity,
-    open: usize,
-    accepted: usize,
 }
 
 #[derive(Serialize)]
 struct Summary<'a> {
-    project: &'a str,
-    nodes: usize,
-    phrases: usize,
-    findings: usize,
-    open_errors: usize,
-    open_warnings: usize,
-    open_info: usize,
     accepted: usize,
-    unreviewed: usize,
     coverage_threshold: f64,
-    samples: usize,
+    findings: usize,
+    nodes: usize,
+    open_errors: usize,
+    open_info: usize,
+    open_warnings: usize,
+    phrases: usize,
+    project: &'a str,
     rules: Vec<RuleCount>,
-    signoff: &'a SignoffState,
+    samples: usize,
+    signoff: SignoffJson<'a>,
+    unreviewed: usize,
+}
+
+/// [`SignoffState`] with its keys in alphabetical order.
+#[derive(Serialize)]
+struct SignoffJson<'a> {
+    index: Option<usize>,
+    reviewer: Option<&'a str>,
+    state: &'a str,
+    time: Option<&'a str>,
+    tree_hash: &'a str,
+}
+
+/// The findings, serialised one by one as the JSON array is written.
+struct JsonFindings<'v, 'a>(&'v View<'a>);
+
+impl Serialize for JsonFindings<'_, '_> {
+    fn serialize<S: serde::Serializer>(&self, ser: S) -> Result<S::Ok, S::Error> {
+        use serde::ser::SerializeSeq;
+        let view = self.0;
+        let mut seq = ser.serialize_seq(Some(view.findings.len()))?;
+        for f in &view.findings {
+            seq.serialize_element(&JsonFinding {
+                explanation: &f.explanation,
+                label: view.eff.label(f.node),
+                node: view.phrases.id(f.node),
+                rule: f.rule,
+                score: f.score,
+                severity: f.severity,
+                suggestion: f.suggestion.as_ref().map(|s| JsonSuggestion {
+                    action: &s.action,
+                    target: s.target.as_deref(),
+                }),
+                threshold: f.threshold,
+            })?;
+        }
+        seq.end()
+    }
+}
+
+#[derive(Serialize)]
+struct JsonReport<'v, 'a> {
+    findings: JsonFindings<'v, 'a>,
+    summary: Summary<'v>,
 }
 
 /// Everything a renderer needs.
@@ -207,37 +255,30 @@ impl View<'_> {
             coverage_threshold: self.report.coverage_threshold,
             samples: self.report.stats.samples,
             rules: self.rule_counts(),
-            signoff: &self.signoff,
+            signoff: SignoffJson {
+                index: self.signoff.index,
+                reviewer: self.signoff.reviewer.as_deref(),
+                state: self.signoff.state,
+                time: self.signoff.time.as_deref(),
+                tree_hash: &self.signoff.tree_hash,
+            },
         }
     }
 
-    fn json(&self) -> String {
-        let findings: Vec<JsonFinding> = self
-            .findings
-            .iter()
-            .map(|f| JsonFinding {
-                rule: f.rule,
-                severity: f.severity,
-                node: self.phrases.id(f.node),
-                label: self.eff.label(f.node),
-                score: f.score,
-                threshold: f.threshold,
-                explanation: &f.explanation,
-                suggestion: f.suggestion.as_ref().map(|s| JsonSuggestion {
-                    action: &s.action,
-                    target: s.target.as_deref(),
-                }),
-            })
-            .collect();
-        let v = serde_json::json!({ "summary": self.summary(), "findings": findings });
-        let mut s = serde_json::to_string_pretty(&v).unwrap_or_default();
-        s.push('\n');
-        s
+    /// The JSON report, streamed to `w` (no in-memory copy of the whole document).
+    fn json(&self, w: &mut dyn std::io::Write) -> std::io::Result<()> {
+        let report = JsonReport {
+            findings: JsonFindings(self),
+            summary: self.summary(),
+        };
+        serde_json::to_writer_pretty(&mut *w, &report)?;
+        w.write_all(b"\n")
     }
 
-    fn csv(&self) -> Result<String, CliError> {
-        let mut w = csv::Writer::from_writer(Vec::new());
-        let bad = |e: csv::Error| CliError::bad_input(format!("writing CSV: {e}"));
+    /// One CSV row per finding, streamed to `out`.
+    fn csv(&self, out: &mut dyn std::io::Write) -> std::io::Result<()> {
+        let mut w = csv::Writer::from_writer(out);
+        let bad = std::io::Error::other;
         w.write_record([
             "rule",
             "severity",
@@ -269,10 +310,7 @@ impl View<'_> {
             ])
             .map_err(bad)?;
         }
-        let bytes = w
-            .into_inner()
-            .map_err(|e| CliError::bad_input(format!("writing CSV: {e}")))?;
-        Ok(String::from_utf8_lossy(&bytes).into_owned())
+        w.flush()
     }
 
     fn suggestion_text(f: &Finding) -> String {
@@ -445,17 +483,29 @@ pub fn run(args: &AuditArgs) -> Result<(), CliError> {
         signoff: signoff_state(&eff, &project.phrases, &session.layer.edits),
         findings,
     };
-    let out = match args.format {
-        Format::Text => view.text(),
-        Format::Json => view.json(),
-        Format::Csv => view.csv()?,
-        Format::Md => view.md(),
+    let render = |w: &mut dyn std::io::Write| match args.format {
+        Format::Text => w.write_all(view.text().as_bytes()),
+        Format::Json => view.json(w),
+        Format::Csv => view.csv(w),
+        Format::Md => w.write_all(view.md().as_bytes()),
     };
     match &args.out {
-        Some(path) => atomic_write(path, out.as_bytes(), false).map_err(|e| {
+        Some(path) => atomic_write_with(path, false, render).map_err(|e| {
             CliError::bad_input(format!("{}: cannot write the report: {e}", path.display()))
         })?,
-        None => print!("{out}"),
+        None => {
+            let mut w = std::io::BufWriter::new(std::io::stdout().lock());
+            match render(&mut w).and_then(|()| w.flush()) {
+                Ok(()) => {}
+                // a closed pipe (`| head`) is the reader's choice, not an error
+                Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => {}
+                Err(e) => {
+                    return Err(CliError::bad_input(format!(
+                        "cannot write the report to standard output: {e}"
+                    )));
+                }
+            }
+        }
     }
     if let Some(level) = args.fail_on {
         let min = match level {

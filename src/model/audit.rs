@@ -461,8 +461,8 @@ impl Searcher<'_> {
         let d = self.g.dim();
         let (mc, mx) = (self.g.mean(c as usize), self.g.mean(x as usize));
         let vc = self.g.variances(c as usize);
-        let wx = &self.engine.prep.ivar[x as usize * d..(x as usize + 1) * d];
-        let s = kernels::kl_sum(mc, vc, mx, wx);
+        let vx = self.g.variances(x as usize);
+        let s = kernels::kl_sum(mc, vc, mx, vx);
         let ld = &self.engine.diag_log_det;
         0.5 * (s as f64 - d as f64 + ld[x as usize] - ld[c as usize])
     }
@@ -701,26 +701,32 @@ impl Auditor {
         let order = Order::of(eff);
         let n = g.len();
         let exhaustive = n <= cfg.exhaustive_limit;
-        let all: Vec<PhraseId> = (0..n as PhraseId)
-            .filter(|&p| needs_search(eff, p))
-            .collect();
-        let mut placement = vec![Placement::default(); n];
-        let search = |index: &CandidateIndex, nodes: &[PhraseId], placement: &mut [Placement]| {
-            let searcher = Searcher {
-                g,
-                engine: &engine,
-                eff,
-                order: &order,
-                index,
-                cfg: &cfg,
-                exhaustive,
+        macro_rules! searcher {
+            () => {
+                Searcher {
+                    g,
+                    engine: &engine,
+                    eff,
+                    order: &order,
+                    index: &index,
+                    cfg: &cfg,
+                    exhaustive,
+                }
             };
-            let fresh: Vec<Placement> = nodes.par_iter().map(|&p| searcher.place(p)).collect();
-            for (&p, pl) in nodes.iter().zip(fresh) {
-                placement[p as usize] = pl;
-            }
-        };
-        search(&index, &all, &mut placement);
+        }
+        // every node that needs a search, written in place (no second n-long vector)
+        let mut placement = vec![Placement::default(); n];
+        {
+            let s = searcher!();
+            placement
+                .par_iter_mut()
+                .enumerate()
+                .for_each(|(p, slot)| {
+                    if needs_search(eff, p as PhraseId) {
+                        *slot = s.place(p as PhraseId);
+                    }
+                });
+        }
         if !exhaustive {
             // repair the index: a suspicious node is also reachable under its best candidate,
             // then the suspicious nodes are searched again
@@ -732,7 +738,11 @@ impl Auditor {
                     index.children[b as usize].push(p);
                 }
             }
-            search(&index, &suspects, &mut placement);
+            let s = searcher!();
+            let fresh: Vec<Placement> = suspects.par_iter().map(|&p| s.place(p)).collect();
+            for (&p, pl) in suspects.iter().zip(fresh) {
+                placement[p as usize] = pl;
+            }
         }
         let report = assemble(g, phrases, eff, problems, &cfg, stats, &placement);
         Auditor {
@@ -1280,7 +1290,10 @@ fn assemble_with(
             .position(|(x, _)| *x == r)
             .unwrap_or(RULES.len())
     };
-    out.sort_by(|a, b| {
+    // the keys end in (node, other) and, for findings that share those (several stale
+    // edits on the root), the explanation, so the order is total and an in-place unstable
+    // sort (no n/2 scratch buffer) is deterministic
+    out.sort_unstable_by(|a, b| {
         a.accepted
             .cmp(&b.accepted)
             .then(b.severity.cmp(&a.severity))
@@ -1288,6 +1301,7 @@ fn assemble_with(
             .then(rule_pos(a.rule).cmp(&rule_pos(b.rule)))
             .then(a.node.cmp(&b.node))
             .then(a.other.cmp(&b.other))
+            .then_with(|| a.explanation.cmp(&b.explanation))
     });
     AuditReport {
         findings: out,

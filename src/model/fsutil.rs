@@ -9,6 +9,17 @@ use std::path::{Path, PathBuf};
 /// target is first copied to `<name>.bak`. A crash at any point leaves either the old or the
 /// new file, never a torn one.
 pub fn atomic_write(path: &Path, bytes: &[u8], keep_backup: bool) -> std::io::Result<()> {
+    atomic_write_with(path, keep_backup, |w| w.write_all(bytes))
+}
+
+/// [`atomic_write`] for content produced by `fill` into a buffered writer, so a large
+/// report is streamed to disk instead of being built in memory first. If `fill` fails, the
+/// temporary file is removed and the target is left as it was.
+pub fn atomic_write_with(
+    path: &Path,
+    keep_backup: bool,
+    fill: impl FnOnce(&mut dyn Write) -> std::io::Result<()>,
+) -> std::io::Result<()> {
     let dir = match path.parent() {
         Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
         _ => PathBuf::from("."),
@@ -19,10 +30,15 @@ pub fn atomic_write(path: &Path, bytes: &[u8], keep_backup: bool) -> std::io::Re
         .to_string_lossy()
         .into_owned();
     let tmp = dir.join(format!(".{name}.{}.tmp", std::process::id()));
-    {
-        let mut f = fs::File::create(&tmp)?;
-        f.write_all(bytes)?;
-        f.sync_all()?;
+    let written = (|| {
+        let mut w = std::io::BufWriter::with_capacity(1 << 16, fs::File::create(&tmp)?);
+        fill(&mut w)?;
+        let f = w.into_inner().map_err(|e| e.into_error())?;
+        f.sync_all()
+    })();
+    if let Err(e) = written {
+        let _ = fs::remove_file(&tmp);
+        return Err(e);
     }
     if keep_backup && path.exists() {
         let bak = dir.join(format!("{name}.bak"));

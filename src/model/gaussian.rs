@@ -283,14 +283,15 @@ impl Gaussians {
         n: usize,
         d: usize,
         means: Vec<f64>,
-        covariances: Vec<f64>,
+        mut covariances: Vec<f64>,
         floor: f64,
     ) -> Result<Self, GaussError> {
         check_len("means", &means, n * d)?;
         check_len("covariances", &covariances, n * d * d)?;
         check_finite(&means, d, "mean")?;
         check_finite(&covariances, d * d, "covariance")?;
-        let mut chol = Vec::with_capacity(n * d * d);
+        // each block is replaced by its Cholesky factor in place, so loading holds one
+        // n × d × d buffer rather than the covariances and the factors side by side
         let mut variances = Vec::with_capacity(n * d);
         let mut log_det = Vec::with_capacity(n);
         for row in 0..n {
@@ -325,11 +326,12 @@ impl Gaussians {
                 detail: format!("Cholesky pivot {pivot} is not positive"),
             })?;
             let mut ld = 0.0;
+            let out = &mut covariances[row * d * d..(row + 1) * d * d];
             for i in 0..d {
                 ld += 2.0 * l[(i, i)].ln();
                 variances.push(m[(i, i)] as f32);
                 for j in 0..d {
-                    chol.push(l[(i, j)]);
+                    out[i * d + j] = l[(i, j)];
                 }
             }
             log_det.push(ld);
@@ -340,7 +342,7 @@ impl Gaussians {
             kind: CovarianceKind::Full,
             means: means.iter().map(|&x| x as f32).collect(),
             variances,
-            chol,
+            chol: covariances,
             log_det,
         })
     }

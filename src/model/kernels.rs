@@ -5,26 +5,30 @@
 //! vector width differs: no fused multiply-add is enabled, so both versions perform the same
 //! IEEE operations in the same order and give bit-identical results.
 
-/// Σₖ (vc[k] + (mx[k] − mc[k])²) · wx[k], the data term of KL(c ‖ x) with wx = 1/σ²ₓ.
+/// Σₖ (vc[k] + (mx[k] − mc[k])²) / vx[k], the data term of KL(c ‖ x).
+///
+/// It divides by the variance rather than multiplying by a stored reciprocal: an n × d
+/// table of reciprocals would cost as much memory as the variances themselves, and the
+/// packed division is not what bounds this loop (measured in `benches/audit.rs`).
 #[inline(always)]
-fn kl_sum_impl(mc: &[f32], vc: &[f32], mx: &[f32], wx: &[f32]) -> f32 {
+fn kl_sum_impl(mc: &[f32], vc: &[f32], mx: &[f32], vx: &[f32]) -> f32 {
     let mut acc = [0.0f32; 8];
     let n = mc.len() / 8 * 8;
     for (((a, b), c), d) in mc[..n]
         .chunks_exact(8)
         .zip(vc[..n].chunks_exact(8))
         .zip(mx[..n].chunks_exact(8))
-        .zip(wx[..n].chunks_exact(8))
+        .zip(vx[..n].chunks_exact(8))
     {
         for j in 0..8 {
             let dl = c[j] - a[j];
-            acc[j] += (b[j] + dl * dl) * d[j];
+            acc[j] += (b[j] + dl * dl) / d[j];
         }
     }
     let mut s: f32 = acc.iter().sum();
     for k in n..mc.len() {
         let dl = mx[k] - mc[k];
-        s += (vc[k] + dl * dl) * wx[k];
+        s += (vc[k] + dl * dl) / vx[k];
     }
     s
 }
@@ -60,8 +64,9 @@ fn mean_term_exceeds_impl(mc: &[f32], vc: &[f32], mx: &[f32], vx: &[f32], limit:
     total > limit
 }
 
-/// acc[s] = Σₖ (mp[k] − mq[k] + sp[k] · z[k][s])² · wq[k] for every bank point s, where
-/// `bank` holds the d rows of `acc.len()` standard-normal values.
+/// acc[s] = Σₖ (mp[k] − mq[k] + sp[k] · z[k][s])² / vq[k] for every bank point s, where
+/// `bank` holds the d rows of `acc.len()` standard-normal values. The reciprocal of vq[k]
+/// is taken once per dimension and shared by the whole row.
 #[inline(always)]
 fn mahalanobis_rows_impl(
     acc: &mut [f32],
@@ -69,14 +74,14 @@ fn mahalanobis_rows_impl(
     mp: &[f32],
     sp: &[f32],
     mq: &[f32],
-    wq: &[f32],
+    vq: &[f32],
 ) {
     let n = acc.len();
     acc.fill(0.0);
     for (k, row) in bank.chunks_exact(n).enumerate().take(mp.len()) {
         let a = mp[k] - mq[k];
         let b = sp[k];
-        let w = wq[k];
+        let w = 1.0 / vq[k];
         for (m, &z) in acc.iter_mut().zip(row) {
             let t = a + b * z;
             *m += t * t * w;
@@ -87,8 +92,8 @@ fn mahalanobis_rows_impl(
 #[cfg(target_arch = "x86_64")]
 mod avx2 {
     #[target_feature(enable = "avx2")]
-    pub(super) fn kl_sum(mc: &[f32], vc: &[f32], mx: &[f32], wx: &[f32]) -> f32 {
-        super::kl_sum_impl(mc, vc, mx, wx)
+    pub(super) fn kl_sum(mc: &[f32], vc: &[f32], mx: &[f32], vx: &[f32]) -> f32 {
+        super::kl_sum_impl(mc, vc, mx, vx)
     }
 
     #[target_feature(enable = "avx2")]
@@ -109,9 +114,9 @@ mod avx2 {
         mp: &[f32],
         sp: &[f32],
         mq: &[f32],
-        wq: &[f32],
+        vq: &[f32],
     ) {
-        super::mahalanobis_rows_impl(acc, bank, mp, sp, mq, wq)
+        super::mahalanobis_rows_impl(acc, bank, mp, sp, mq, vq)
     }
 }
 
@@ -121,13 +126,13 @@ fn has_avx2() -> bool {
 }
 
 /// See [`kl_sum_impl`].
-pub(crate) fn kl_sum(mc: &[f32], vc: &[f32], mx: &[f32], wx: &[f32]) -> f32 {
+pub(crate) fn kl_sum(mc: &[f32], vc: &[f32], mx: &[f32], vx: &[f32]) -> f32 {
     #[cfg(target_arch = "x86_64")]
     if has_avx2() {
         // SAFETY: the processor supports AVX2 (checked at run time).
-        return unsafe { avx2::kl_sum(mc, vc, mx, wx) };
+        return unsafe { avx2::kl_sum(mc, vc, mx, vx) };
     }
-    kl_sum_impl(mc, vc, mx, wx)
+    kl_sum_impl(mc, vc, mx, vx)
 }
 
 /// See [`mean_term_exceeds_impl`].
@@ -153,15 +158,15 @@ pub(crate) fn mahalanobis_rows(
     mp: &[f32],
     sp: &[f32],
     mq: &[f32],
-    wq: &[f32],
+    vq: &[f32],
 ) {
     #[cfg(target_arch = "x86_64")]
     if has_avx2() {
         // SAFETY: the processor supports AVX2 (checked at run time).
-        unsafe { avx2::mahalanobis_rows(acc, bank, mp, sp, mq, wq) };
+        unsafe { avx2::mahalanobis_rows(acc, bank, mp, sp, mq, vq) };
         return;
     }
-    mahalanobis_rows_impl(acc, bank, mp, sp, mq, wq)
+    mahalanobis_rows_impl(acc, bank, mp, sp, mq, vq)
 }
 
 #[cfg(test)]
@@ -207,7 +212,7 @@ mod tests {
         let direct: f64 = (0..d)
             .map(|k| {
                 let dl = (c[k] - a[k]) as f64;
-                (b[k] as f64 + dl * dl) * e[k] as f64
+                (b[k] as f64 + dl * dl) / e[k] as f64
             })
             .sum();
         assert!((kl_sum(&a, &b, &c, &e) as f64 - direct).abs() < 1e-4 * direct);

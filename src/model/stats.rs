@@ -163,24 +163,16 @@ impl SampleBank {
     }
 }
 
-/// Inverse variances of diagonal Gaussians, row-major n × d (the hot KL and Mahalanobis
-/// loops multiply by them). Standard deviations are taken per call, where they are needed
-/// once per sampled node, which keeps one n × d table instead of two.
-#[derive(Debug, Clone)]
-pub(crate) struct Prepared {
-    pub(crate) ivar: Vec<f32>,
-}
-
 /// Everything the statistics need besides the tree: the sample bank, the χ² radius and the
-/// prepared diagonal factors. Built once per Gaussian table and configuration.
+/// log determinants of the diagonal parts. Built once per Gaussian table and configuration.
+/// It keeps no n × d table: the kernels read the stored variances directly, and standard
+/// deviations are taken per call, once per sampled node.
 #[derive(Debug, Clone)]
 pub(crate) struct StatsEngine {
     alpha: f64,
     r2: f64,
     dim: usize,
     bank: SampleBank,
-    /// Factors of the diagonal parts (the whole covariance when `diagonal`).
-    pub(crate) prep: Prepared,
     /// Whether the covariances are diagonal.
     pub(crate) diagonal: bool,
     /// Σₖ ln σ²ₖ of the diagonal parts (equals ln det Σ when `diagonal`).
@@ -190,22 +182,14 @@ pub(crate) struct StatsEngine {
 impl StatsEngine {
     pub(crate) fn new(g: &Gaussians, cfg: &AuditConfig) -> Self {
         let d = g.dim().max(1);
-        let mut ivar = Vec::with_capacity(g.len() * d);
-        let mut diag_log_det = Vec::with_capacity(g.len());
-        for i in 0..g.len() {
-            let mut ld = 0.0;
-            for &v in g.variances(i) {
-                ivar.push(1.0 / v);
-                ld += (v as f64).ln();
-            }
-            diag_log_det.push(ld);
-        }
+        let diag_log_det = (0..g.len())
+            .map(|i| g.variances(i).iter().map(|&v| (v as f64).ln()).sum())
+            .collect();
         StatsEngine {
             alpha: cfg.alpha,
             r2: chi2_quantile(d, cfg.alpha),
             dim: g.dim(),
             bank: SampleBank::new(g.dim(), cfg.samples, cfg.seed),
-            prep: Prepared { ivar },
             diagonal: g.kind() == CovarianceKind::Diagonal,
             diag_log_det,
         }
@@ -216,29 +200,26 @@ impl StatsEngine {
         let n = self.bank.samples;
         let d = self.dim;
         let mut inside = vec![false; n];
-        match self.diagonal.then_some(&self.prep) {
-            Some(prep) => {
-                let r2 = self.r2 as f32;
-                let mp = g.mean(p as usize);
-                let sp: Vec<f32> = g.variances(p as usize).iter().map(|v| v.sqrt()).collect();
-                let mut acc = vec![0.0f32; n];
-                for &q in qs {
-                    let mq = g.mean(q as usize);
-                    let wq = &prep.ivar[q as usize * d..(q as usize + 1) * d];
-                    kernels::mahalanobis_rows(&mut acc, &self.bank.z, mp, &sp, mq, wq);
-                    for (hit, &m) in inside.iter_mut().zip(&acc) {
-                        *hit |= m <= r2;
-                    }
+        if self.diagonal {
+            let r2 = self.r2 as f32;
+            let mp = g.mean(p as usize);
+            let sp: Vec<f32> = g.variances(p as usize).iter().map(|v| v.sqrt()).collect();
+            let mut acc = vec![0.0f32; n];
+            for &q in qs {
+                let mq = g.mean(q as usize);
+                let vq = g.variances(q as usize);
+                kernels::mahalanobis_rows(&mut acc, &self.bank.z, mp, &sp, mq, vq);
+                for (hit, &m) in inside.iter_mut().zip(&acc) {
+                    *hit |= m <= r2;
                 }
             }
-            None => {
-                let gp = g.get(p as usize);
-                let views: Vec<GaussianView> = qs.iter().map(|&q| g.get(q as usize)).collect();
-                let mut y = vec![0.0f64; d];
-                for (s, hit) in inside.iter_mut().enumerate() {
-                    let x = point_of(&gp, &self.bank.point(s, d));
-                    *hit = views.iter().any(|q| maha2_into(&x, q, &mut y) <= self.r2);
-                }
+        } else {
+            let gp = g.get(p as usize);
+            let views: Vec<GaussianView> = qs.iter().map(|&q| g.get(q as usize)).collect();
+            let mut y = vec![0.0f64; d];
+            for (s, hit) in inside.iter_mut().enumerate() {
+                let x = point_of(&gp, &self.bank.point(s, d));
+                *hit = views.iter().any(|q| maha2_into(&x, q, &mut y) <= self.r2);
             }
         }
         let hits = inside.iter().filter(|&&b| b).count();
