@@ -718,14 +718,11 @@ impl Auditor {
         let mut placement = vec![Placement::default(); n];
         {
             let s = searcher!();
-            placement
-                .par_iter_mut()
-                .enumerate()
-                .for_each(|(p, slot)| {
-                    if needs_search(eff, p as PhraseId) {
-                        *slot = s.place(p as PhraseId);
-                    }
-                });
+            placement.par_iter_mut().enumerate().for_each(|(p, slot)| {
+                if needs_search(eff, p as PhraseId) {
+                    *slot = s.place(p as PhraseId);
+                }
+            });
         }
         if !exhaustive {
             // repair the index: a suspicious node is also reachable under its best candidate,

@@ -524,7 +524,9 @@ where
             Ok(b) => Ok(Read2::F32(b)),
             Err(ReadNpyError::WrongDescriptor(_)) => {
                 rewind(r)?;
-                as_f64(r).map(Read2::F64).map_err(|e| npy_err(file, e, ndim))
+                as_f64(r)
+                    .map(Read2::F64)
+                    .map_err(|e| npy_err(file, e, ndim))
             }
             Err(e) => Err(npy_err(file, e, ndim)),
         };
@@ -533,7 +535,9 @@ where
         Ok(a) => Ok(Read2::F64(a)),
         Err(ReadNpyError::WrongDescriptor(_)) => {
             rewind(r)?;
-            as_f32(r).map(Read2::F32).map_err(|e| npy_err(file, e, ndim))
+            as_f32(r)
+                .map(Read2::F32)
+                .map_err(|e| npy_err(file, e, ndim))
         }
         Err(e) => Err(npy_err(file, e, ndim)),
     }
