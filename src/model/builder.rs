@@ -372,7 +372,11 @@ fn fast_ln(x: f64) -> f64 {
 /// result is the same for every call with the same operands (swapping i and j gives the
 /// same bits, as every term is symmetric).
 macro_rules! lane_sum {
-    ($t:ty, $lanes:expr, $d:expr, [$($s:ident),+], |$k:ident| $term:expr) => {{
+    ($t:ty, $lanes:expr, $d:expr, [$($s:ident),+], |$k:ident| $term:expr) => {
+        lane_sum!($t, from $t, $lanes, $d, [$($s),+], |$k| $term)
+    };
+    // accumulate in `$t` over slices of `$e` (the term widens them)
+    ($t:ty, from $e:ty, $lanes:expr, $d:expr, [$($s:ident),+], |$k:ident| $term:expr) => {{
         let d: usize = $d;
         let mut acc = [0.0 as $t; $lanes];
         let full = d / $lanes * $lanes;
@@ -380,7 +384,7 @@ macro_rules! lane_sum {
         while base < full {
             // fixed-size chunks: no bounds checks, straight-line lanes the compiler vectorises
             $(
-                let $s: &[$t; $lanes] = match $s[base..].first_chunk() {
+                let $s: &[$e; $lanes] = match $s[base..].first_chunk() {
                     Some(c) => c,
                     None => break,
                 };
@@ -397,103 +401,74 @@ macro_rules! lane_sum {
     }};
 }
 
-/// Σₖ ln(σ²ᵢₖ + σ²ⱼₖ) + Δₖ² / (σ²ᵢₖ + σ²ⱼₖ) (the ELK sum).
-fn elk_sum(mi: &[f64], mj: &[f64], vi: &[f64], vj: &[f64]) -> f64 {
+// The exact kernels read the stored f32 values and widen each one to f64 (exactly) before
+// any arithmetic, so they give the bits a widened f64 copy would give without holding one:
+// at the root of a 100 000 × 64 build that copy was 102 MB.
+
+/// Σₖ ln(σ²ᵢₖ + σ²ⱼₖ) + Δₖ² / (σ²ᵢₖ + σ²ⱼₖ) (the ELK sum), in f64.
+fn elk_sum(mi: &[f32], mj: &[f32], vi: &[f32], vj: &[f32]) -> f64 {
     let d = mi.len();
     let (mj, vi, vj) = (&mj[..d], &vi[..d], &vj[..d]);
-    lane_sum!(f64, 4, d, [mi, mj, vi, vj], |k| {
-        let sum = vi[k] + vj[k];
-        let delta = mi[k] - mj[k];
+    lane_sum!(f64, from f32, 4, d, [mi, mj, vi, vj], |k| {
+        let sum = vi[k] as f64 + vj[k] as f64;
+        let delta = mi[k] as f64 - mj[k] as f64;
         fast_ln(sum) + delta * delta / sum
     })
 }
 
-/// Σₖ Δₖ² / (8 σ̄²ₖ) + ½ ln σ̄²ₖ with σ̄² = (σ²ᵢ + σ²ⱼ)/2 (the Bhattacharyya sum).
-fn bc_sum(mi: &[f64], mj: &[f64], vi: &[f64], vj: &[f64]) -> f64 {
+/// Σₖ Δₖ² / (8 σ̄²ₖ) + ½ ln σ̄²ₖ with σ̄² = (σ²ᵢ + σ²ⱼ)/2 (the Bhattacharyya sum), in f64.
+fn bc_sum(mi: &[f32], mj: &[f32], vi: &[f32], vj: &[f32]) -> f64 {
     let d = mi.len();
     let (mj, vi, vj) = (&mj[..d], &vi[..d], &vj[..d]);
-    lane_sum!(f64, 4, d, [mi, mj, vi, vj], |k| {
-        let bar = 0.5 * (vi[k] + vj[k]);
-        let delta = mi[k] - mj[k];
+    lane_sum!(f64, from f32, 4, d, [mi, mj, vi, vj], |k| {
+        let bar = 0.5 * (vi[k] as f64 + vj[k] as f64);
+        let delta = mi[k] as f64 - mj[k] as f64;
         delta * delta / (8.0 * bar) + 0.5 * fast_ln(bar)
     })
 }
 
-/// Σₖ σ²ᵢ/σ²ⱼ + σ²ⱼ/σ²ᵢ + Δ²(1/σ²ᵢ + 1/σ²ⱼ) (twice the symmetric KL plus 2d).
-fn kl_sum(mi: &[f64], mj: &[f64], vi: &[f64], vj: &[f64], ii: &[f64], ij: &[f64]) -> f64 {
+/// Σₖ σ²ᵢ/σ²ⱼ + σ²ⱼ/σ²ᵢ + Δ²(1/σ²ᵢ + 1/σ²ⱼ) (twice the symmetric KL plus 2d), in f64.
+fn kl_sum(mi: &[f32], mj: &[f32], vi: &[f32], vj: &[f32]) -> f64 {
     let d = mi.len();
-    let (mj, vi, vj, ii, ij) = (&mj[..d], &vi[..d], &vj[..d], &ii[..d], &ij[..d]);
-    lane_sum!(f64, 4, d, [mi, mj, vi, vj, ii, ij], |k| {
-        let delta = mi[k] - mj[k];
-        vi[k] * ij[k] + vj[k] * ii[k] + delta * delta * (ii[k] + ij[k])
+    let (mj, vi, vj) = (&mj[..d], &vi[..d], &vj[..d]);
+    lane_sum!(f64, from f32, 4, d, [mi, mj, vi, vj], |k| {
+        let (a, b) = (vi[k] as f64, vj[k] as f64);
+        let (ia, ib) = (1.0 / a, 1.0 / b);
+        let delta = mi[k] as f64 - mj[k] as f64;
+        a * ib + b * ia + delta * delta * (ia + ib)
     })
 }
 
-/// Pairwise similarity over a contiguous copy of some rows, with the per-row terms of the
-/// diagonal formulas precomputed once (no allocation per pair).
+/// Pairwise similarity between two lists of rows, read in place from the Gaussian table
+/// (the diagonal formulas widen the stored f32 values; no copy, no allocation per pair).
 struct SimBlock<'a> {
     g: &'a Gaussians,
     sim: Similarity,
-    d: usize,
-    rows: Vec<PhraseId>,
-    mean: Vec<f64>,
-    var: Vec<f64>,
-    /// 1/σ² (KL only).
-    inv: Vec<f64>,
-    /// ¼ ln det Σ (Bhattacharyya only).
-    quarter_ld: Vec<f64>,
+    rows: &'a [PhraseId],
+    diagonal: bool,
 }
 
 impl<'a> SimBlock<'a> {
-    fn new(g: &'a Gaussians, sim: Similarity, rows: &[PhraseId]) -> Self {
-        let d = g.dim();
-        let diag = g.kind() == CovarianceKind::Diagonal;
-        let mut b = SimBlock {
+    fn new(g: &'a Gaussians, sim: Similarity, rows: &'a [PhraseId]) -> Self {
+        SimBlock {
             g,
             sim,
-            d,
-            rows: rows.to_vec(),
-            mean: Vec::new(),
-            var: Vec::new(),
-            inv: Vec::new(),
-            quarter_ld: Vec::new(),
-        };
-        if diag {
-            b.mean.reserve(rows.len() * d);
-            b.var.reserve(rows.len() * d);
-            for &r in rows {
-                b.mean.extend(g.mean(r as usize).iter().map(|&x| x as f64));
-                b.var
-                    .extend(g.variances(r as usize).iter().map(|&x| x as f64));
-            }
-            if sim == Similarity::Kl {
-                b.inv = b.var.iter().map(|v| 1.0 / v).collect();
-            }
-            if sim == Similarity::Bhattacharyya {
-                b.quarter_ld = rows.iter().map(|&r| 0.25 * g.log_det(r as usize)).collect();
-            }
+            rows,
+            diagonal: g.kind() == CovarianceKind::Diagonal,
         }
-        b
     }
 
     /// Similarity of local rows i of `self` and j of `other` (symmetric to the last bit).
     #[inline]
     fn pair(&self, i: usize, other: &SimBlock, j: usize) -> f64 {
-        if self.mean.is_empty() {
-            return self.sim.score(
-                &self.g.get(self.rows[i] as usize),
-                &other.g.get(other.rows[j] as usize),
-            );
+        let (ri, rj) = (self.rows[i] as usize, other.rows[j] as usize);
+        if !self.diagonal {
+            return self.sim.score(&self.g.get(ri), &other.g.get(rj));
         }
-        let d = self.d;
-        let (mi, mj) = (
-            &self.mean[i * d..(i + 1) * d],
-            &other.mean[j * d..(j + 1) * d],
-        );
-        let (vi, vj) = (
-            &self.var[i * d..(i + 1) * d],
-            &other.var[j * d..(j + 1) * d],
-        );
+        let g = self.g;
+        let d = g.dim();
+        let (mi, mj) = (g.mean(ri), g.mean(rj));
+        let (vi, vj) = (g.variances(ri), g.variances(rj));
         match self.sim {
             Similarity::Elk => {
                 let s = elk_sum(mi, mj, vi, vj);
@@ -501,15 +476,12 @@ impl<'a> SimBlock<'a> {
             }
             Similarity::Bhattacharyya => {
                 let s = bc_sum(mi, mj, vi, vj);
-                let db = (s - (self.quarter_ld[i] + other.quarter_ld[j])).max(0.0);
+                let q = 0.25 * g.log_det(ri) + 0.25 * g.log_det(rj);
+                let db = (s - q).max(0.0);
                 (-db).exp()
             }
             Similarity::Kl => {
-                let (ii, ij) = (
-                    &self.inv[i * d..(i + 1) * d],
-                    &other.inv[j * d..(j + 1) * d],
-                );
-                let s = kl_sum(mi, mj, vi, vj, ii, ij);
+                let s = kl_sum(mi, mj, vi, vj);
                 d as f64 - 0.5 * s
             }
         }
@@ -780,15 +752,23 @@ fn random_subset(members: &[PhraseId], size: usize, seed: u64) -> Vec<PhraseId> 
 /// The k-means feature vector of every phrase: its mean, then `with_variance · ln σ²` per
 /// dimension when `with_variance` > 0.
 pub fn feature_matrix(g: &Gaussians, with_variance: f64) -> Array2<f64> {
+    let all: Vec<PhraseId> = (0..g.len() as PhraseId).collect();
+    feature_rows(g, &all, with_variance)
+}
+
+/// The rows of [`feature_matrix`] for `rows` only, in that order. The builder makes the
+/// matrix of each cluster it splits this way instead of keeping the whole n × d (or
+/// n × 2d) f64 matrix for the run and copying rows out of it.
+pub fn feature_rows(g: &Gaussians, rows: &[PhraseId], with_variance: f64) -> Array2<f64> {
     let d = g.dim();
     let f = if with_variance > 0.0 { 2 * d } else { d };
-    let mut out = Array2::<f64>::zeros((g.len(), f));
-    for (i, mut row) in out.rows_mut().into_iter().enumerate() {
-        for (k, &m) in g.mean(i).iter().enumerate() {
+    let mut out = Array2::<f64>::zeros((rows.len(), f));
+    for (&i, mut row) in rows.iter().zip(out.rows_mut()) {
+        for (k, &m) in g.mean(i as usize).iter().enumerate() {
             row[k] = m as f64;
         }
         if with_variance > 0.0 {
-            for (k, &v) in g.variances(i).iter().enumerate() {
+            for (k, &v) in g.variances(i as usize).iter().enumerate() {
                 row[d + k] = with_variance * (v as f64).ln();
             }
         }
@@ -815,7 +795,6 @@ struct Ctx<'a> {
     g: &'a Gaussians,
     phrases: &'a PhraseTable,
     params: &'a BuildParams,
-    features: Array2<f64>,
     progress: &'a (dyn Fn(BuildProgress) + Sync),
     cancel: &'a AtomicBool,
     placed: AtomicUsize,
@@ -975,13 +954,11 @@ fn distinct_rows(x: &Array2<f64>) -> usize {
 
 fn choose_split(ctx: &Ctx, rest: &[PhraseId], seed: u64) -> Result<Split, BuildError> {
     let p = ctx.params;
-    let rows: Vec<usize> = rest.iter().map(|&r| r as usize).collect();
-    let full = ctx.features.select(ndarray::Axis(0), &rows);
+    let full = feature_rows(ctx.g, rest, p.with_variance);
     let elbow_members = random_subset(rest, p.elbow_sample, mix(seed, SALT_ELBOW_SAMPLE));
     let sampled = elbow_members.len() < rest.len();
     let elbow_x = if sampled {
-        let er: Vec<usize> = elbow_members.iter().map(|&r| r as usize).collect();
-        ctx.features.select(ndarray::Axis(0), &er)
+        feature_rows(ctx.g, &elbow_members, p.with_variance)
     } else {
         full.clone()
     };
@@ -1128,7 +1105,6 @@ pub fn build(
         g,
         phrases,
         params,
-        features: feature_matrix(g, params.with_variance),
         progress,
         cancel,
         placed: AtomicUsize::new(0),
