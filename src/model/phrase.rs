@@ -1,7 +1,5 @@
 //! The phrase table: stable string ids and display labels, indexed by [`PhraseId`].
 
-use std::collections::HashMap;
-
 use serde::{Deserialize, Serialize};
 
 use super::gaussian::PhraseId;
@@ -26,11 +24,16 @@ pub fn id_from_label(label: &str) -> String {
 }
 
 /// Phrases in row order with a lookup from id to row.
+///
+/// The lookup is the rows sorted by id (binary search) rather than a hash map keyed by a
+/// second copy of every id: at 100 000 phrases that copy and its table cost about 7 MB, and
+/// the few hundred thousand lookups made while loading a tree take milliseconds either way.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct PhraseTable {
     ids: Vec<String>,
     labels: Vec<String>,
-    index: HashMap<String, PhraseId>,
+    /// Rows ordered by id.
+    by_id: Vec<PhraseId>,
 }
 
 /// Why a phrase table could not be built.
@@ -59,33 +62,49 @@ pub enum PhraseError {
 impl PhraseTable {
     /// Build from records, deriving missing ids and refusing duplicates.
     pub fn from_records(records: &[PhraseRecord]) -> Result<Self, PhraseError> {
-        let mut t = PhraseTable::default();
-        for (row, r) in records.iter().enumerate() {
+        Self::from_record_vec(records.to_vec())
+    }
+
+    /// [`PhraseTable::from_records`] taking the records by value, so their strings are moved
+    /// into the table instead of copied (the loader's path).
+    pub fn from_record_vec(records: Vec<PhraseRecord>) -> Result<Self, PhraseError> {
+        let mut ids = Vec::with_capacity(records.len());
+        let mut labels = Vec::with_capacity(records.len());
+        for (row, r) in records.into_iter().enumerate() {
             if r.label.trim().is_empty() {
                 return Err(PhraseError::Empty {
                     row,
                     field: "label",
                 });
             }
-            let id = match &r.id {
-                Some(id) => id.clone(),
+            let id = match r.id {
+                Some(id) => id,
                 None => id_from_label(&r.label),
             };
             if id.trim().is_empty() {
                 return Err(PhraseError::Empty { row, field: "id" });
             }
-            if let Some(&first) = t.index.get(&id) {
-                return Err(PhraseError::DuplicateId {
-                    id,
-                    first: first as usize,
-                    second: row,
-                });
-            }
-            t.index.insert(id.clone(), row as PhraseId);
-            t.ids.push(id);
-            t.labels.push(r.label.clone());
+            ids.push(id);
+            labels.push(r.label);
         }
-        Ok(t)
+        let mut by_id: Vec<PhraseId> = (0..ids.len() as PhraseId).collect();
+        // stable: rows sharing an id stay in row order
+        by_id.sort_by(|&a, &b| ids[a as usize].cmp(&ids[b as usize]));
+        // the duplicate reported is the one a row-by-row scan meets first: the group whose
+        // second row comes earliest, named by its first two rows (that window always starts
+        // its group, so w[0] is the group's first row)
+        let dup = by_id
+            .windows(2)
+            .filter(|w| ids[w[0] as usize] == ids[w[1] as usize])
+            .min_by_key(|w| w[1]);
+        if let Some(w) = dup {
+            return Err(PhraseError::DuplicateId {
+                id: ids[w[1] as usize].clone(),
+                first: w[0] as usize,
+                second: w[1] as usize,
+            });
+        }
+        Ok(PhraseTable { ids, labels, by_id })
     }
 
     /// A table from ids alone, each labelled with its id with `-` read as a space (handy for
@@ -123,7 +142,10 @@ impl PhraseTable {
 
     /// Row of an id.
     pub fn get(&self, id: &str) -> Option<PhraseId> {
-        self.index.get(id).copied()
+        self.by_id
+            .binary_search_by(|&r| self.ids[r as usize].as_str().cmp(id))
+            .ok()
+            .map(|i| self.by_id[i])
     }
 
     /// Find a phrase by id, or else by exact label, or else by label ignoring case.
@@ -193,5 +215,40 @@ mod tests {
             e.to_string(),
             "duplicate id \"a-b\" at rows 0 and 1".to_string()
         );
+    }
+
+    proptest::proptest! {
+        /// The sorted lookup agrees with a row-by-row scan through a hash map (the obvious
+        /// implementation): same rows for every id, same duplicate reported.
+        #[test]
+        fn lookup_and_duplicates_match_a_hash_map_scan(
+            ids in proptest::collection::vec("[a-e]{1,2}", 0..40)
+        ) {
+            let recs: Vec<PhraseRecord> =
+                ids.iter().map(|i| rec(Some(i), "label")).collect();
+            let mut seen = std::collections::HashMap::new();
+            let mut expected_dup = None;
+            for (row, id) in ids.iter().enumerate() {
+                if let Some(&first) = seen.get(id) {
+                    expected_dup = Some((id.clone(), first, row));
+                    break;
+                }
+                seen.insert(id.clone(), row);
+            }
+            match PhraseTable::from_records(&recs) {
+                Ok(t) => {
+                    proptest::prop_assert!(expected_dup.is_none());
+                    for (row, id) in ids.iter().enumerate() {
+                        proptest::prop_assert_eq!(t.get(id), Some(row as PhraseId));
+                    }
+                    proptest::prop_assert_eq!(t.get("zz"), None);
+                    proptest::prop_assert_eq!(t.get(""), None);
+                }
+                Err(PhraseError::DuplicateId { id, first, second }) => {
+                    proptest::prop_assert_eq!(expected_dup, Some((id, first, second)));
+                }
+                Err(e) => proptest::prop_assert!(false, "unexpected {e}"),
+            }
+        }
     }
 }

@@ -719,7 +719,7 @@ impl Project {
                 ),
             ));
         }
-        let phrases = PhraseTable::from_records(&records).map_err(|e| match &e {
+        let phrases = PhraseTable::from_record_vec(records).map_err(|e| match &e {
             super::phrase::PhraseError::DuplicateId { id, second, .. } => {
                 LoadError::invalid(&pfile, format!("row {second} id \"{id}\""), e.to_string())
             }
