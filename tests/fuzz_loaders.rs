@@ -6,6 +6,7 @@ use ndarray::Array2;
 use ndarray_npy::WriteNpyExt;
 use proptest::prelude::*;
 use proptest::test_runner::{Config, RngAlgorithm, TestRng, TestRunner};
+use treewright::model::overrides::parse_overrides;
 use treewright::model::phrase::PhraseRecord;
 use treewright::model::project::{
     EmbeddingsJson, Manifest, UserRecord, parse_json, parse_npy2, parse_npy3, parse_tree_csv,
@@ -50,6 +51,7 @@ fn parse_all(bytes: &[u8]) {
     let _ = parse_tree_csv(bytes, "tree.csv");
     let _ = parse_npy2(bytes, "means.npy");
     let _ = parse_npy3(bytes, "covariances.npy");
+    let _ = parse_overrides(bytes, "overrides.json");
 }
 
 #[test]
@@ -71,7 +73,18 @@ fn mutated_valid_inputs_never_panic() {
         br#"{"root": "a", "parent": {"b": "a"}}"#.to_vec(),
         b"child,parent\nb,a\nc,a\n".to_vec(),
         br#"{"covariance": "diagonal", "means": [[0,1]], "variances": [[1,1]]}"#.to_vec(),
+        br#"{"format": "treewright-overrides", "version": 1, "edits": [
+ {"op": "reparent", "node": "b", "parent": "a", "author": "x", "time": "2026-12-03T09:08:37Z"},
+ {"op": "review", "node": "b", "status": "approved", "author": "x", "time": "2026-12-03T09:08:37Z"}]}"#
+            .to_vec(),
     ];
+    // the override seed is a valid file, so its mutations reach past the header check
+    assert_eq!(
+        parse_overrides(seeds.last().unwrap(), "overrides.json")
+            .unwrap()
+            .len(),
+        2
+    );
     let strategy = (
         0..seeds.len(),
         proptest::collection::vec((any::<usize>(), any::<u8>()), 1..6),
