@@ -749,14 +749,8 @@ fn random_subset(members: &[PhraseId], size: usize, seed: u64) -> Vec<PhraseId> 
     idx.into_iter().map(|i| members[i]).collect()
 }
 
-/// The k-means feature vector of every phrase: its mean, then `with_variance · ln σ²` per
-/// dimension when `with_variance` > 0.
-pub fn feature_matrix(g: &Gaussians, with_variance: f64) -> Array2<f64> {
-    let all: Vec<PhraseId> = (0..g.len() as PhraseId).collect();
-    feature_rows(g, &all, with_variance)
-}
-
-/// The rows of [`feature_matrix`] for `rows` only, in that order. The builder makes the
+/// The k-means feature vectors of `rows`, in that order: each phrase's mean, then
+/// `with_variance · ln σ²` per dimension when `with_variance` > 0. The builder makes the
 /// matrix of each cluster it splits this way instead of keeping the whole n × d (or
 /// n × 2d) f64 matrix for the run and copying rows out of it.
 pub fn feature_rows(g: &Gaussians, rows: &[PhraseId], with_variance: f64) -> Array2<f64> {
