@@ -18,7 +18,8 @@ is given), against known-errors.json:
 
 Build (``BIN build DIR --out TMP``, defaults, seed 0), against truth-tree.json:
   * ancestor-pair F1: F1 between the sets of (node, ancestor) pairs of the two trees;
-  * exact-parent share: share of the truth's non-root nodes whose parent is the same.
+  * exact-parent share: share of the truth's non-root nodes whose parent is the same;
+  * depth and depth profile (nodes per depth, root = 0; in the --json output).
 The same two figures for the greedy baseline (each phrase's parent = the broader phrase,
 larger ln det Sigma, with the lowest KL(phrase || candidate); the broadest phrase is the
 root) and for the planted tree.json itself (what the audit starts from).
@@ -163,8 +164,12 @@ def tree_scores(pred: dict, truth: dict) -> dict:
 
     for n in ppar:
         depth[n] = d(n)
-    return {"f1": f1, "exact_parent": exact, "depth": max(depth.values(), default=0),
-            "root": pred["root"]}
+    profile = [0] * (max(depth.values(), default=0) + 1)
+    for k in depth.values():
+        profile[k] += 1
+    profile[0] = 1  # the root
+    return {"f1": f1, "exact_parent": exact, "depth": len(profile) - 1,
+            "depth_profile": profile, "root": pred["root"]}
 
 
 def greedy_tree(ids: list[str], means: np.ndarray, variances: np.ndarray) -> dict:
