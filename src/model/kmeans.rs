@@ -2,7 +2,9 @@
 //!
 //! linfa's `KMeans` reports the *mean* squared distance; this wrapper recomputes the
 //! labels and the *sum* of squared distances to the final centroids (the usual "inertia",
-//! as scikit-learn reports it) so that elbow curves read the same as elsewhere.
+//! as scikit-learn reports it) so that elbow curves read the same as elsewhere. Lloyd's
+//! iteration (Lloyd 1982) from k-means++ starts (Arthur & Vassilvitskii 2007); inertia and
+//! its check values: `docs/maths.md` §11.
 
 use linfa::DatasetBase;
 use linfa::traits::Fit;

@@ -2,7 +2,8 @@
 //!
 //! A projection is a 2 × d matrix P with orthonormal rows; a Gaussian N(μ, Σ) maps to
 //! N(P μ, P Σ Pᵀ). The ellipse at probability α is μ₂ + r L₂ [cos θ, sin θ]ᵀ with
-//! L₂ L₂ᵀ = P Σ Pᵀ and r² = χ²₂⁻¹(α) = −2 ln(1 − α).
+//! L₂ L₂ᵀ = P Σ Pᵀ and r² = χ²₂⁻¹(α) = −2 ln(1 − α). Definitions of the PCA, dimension and
+//! contrast axes and check values: `docs/maths.md` §10.
 
 use nalgebra::{DMatrix, DVector};
 
