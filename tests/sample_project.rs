@@ -283,8 +283,9 @@ fn synthetic_project_loads_with_its_true_tree() {
     // clusters sit inside their parents: the offset of 3 sd over 16 dims plus a quarter of
     // the variance stays well below the 95 % radius (chi-square table)
     let r2 = chi2_quantile(16, 0.95);
-    // NIST/SEMATECH e-Handbook of Statistical Methods, table of chi-square critical values:
-    // upper 5 % point for 16 degrees of freedom is 26.296 (value quoted from memory of that table)
+    // NIST/SEMATECH e-Handbook of Statistical Methods §1.3.6.7.4, table of chi-square
+    // critical values: upper 5 % point for 16 degrees of freedom is 26.296 (recomputed with
+    // SciPy in docs/maths.md §8: 26.296228)
     assert!((r2 - 26.296).abs() < 1e-3);
     for &c in tree.children(root) {
         let s = containment(&g.get(c as usize), &g.get(root as usize), 0.95, 2000, 1);

@@ -1,7 +1,8 @@
 //! Human edits: the one enum every view emits and the override layer stores.
 //!
 //! Edits name phrases by their stable string id, never by row, so they survive re-training
-//! (a regenerated embedding table may reorder or drop phrases).
+//! (a regenerated embedding table may reorder or drop phrases). The file format of the
+//! stored edits is `docs/overrides-format.md`.
 
 use serde::{Deserialize, Serialize};
 

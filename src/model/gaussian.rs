@@ -2,9 +2,9 @@
 //!
 //! Storage is structure-of-arrays: means (and, for diagonal covariance, variances) are
 //! contiguous `f32` rows of an `n × d` table; full covariances are kept as lower Cholesky
-//! factors in `f64`. Every formula is evaluated in `f64` and in log space, following the
-//! shared definitions in `MATH.md`. A covariance that is not positive definite is an error
-//! naming the row, never a NaN.
+//! factors in `f64`. Every formula is evaluated in `f64` and in log space; `docs/maths.md`
+//! defines each one (sections 2–9) with its published source and check values. A covariance
+//! that is not positive definite is an error naming the row, never a NaN.
 
 use nalgebra::{DMatrix, DVector};
 use rand::SeedableRng;
@@ -832,8 +832,10 @@ mod tests {
 
     #[test]
     fn univariate_kl_matches_closed_form() {
-        // MATH.md check value: KL(N(0,1) ‖ N(1,2)) = ln √2 + (1 + 1)/(2·2) − ½ = 0.346574
-        // (univariate closed form ln(σq/σp) + (σp² + Δ²)/(2σq²) − ½).
+        // KL(N(0,1) ‖ N(1,2)) = ln √2 + (1 + 1)/(2·2) − ½ = 0.346574, from the univariate
+        // closed form ln(σq/σp) + (σp² + Δ²)/(2σq²) − ½ of the Gaussian KL divergence
+        // (Kullback & Leibler 1951 for the definition, Kullback 1959 ch. 9 for the normal
+        // case; recomputed by quadrature in docs/maths.md §4).
         let p = diag(&[0.0], &[1.0]);
         let q = diag(&[1.0], &[2.0]);
         close(kl(&p.view(), &q.view()), 0.346_574, 1e-6);
@@ -847,7 +849,8 @@ mod tests {
 
     #[test]
     fn multivariate_kl_worked_example() {
-        // Worked example by hand from the closed form (MATH.md):
+        // Worked example by hand from the Gaussian closed form (Kullback 1959 ch. 9; closed
+        // form derived in docs/maths.md §4, where both values are recomputed):
         // p = N([0,0], diag(1,4)), q = N([1,-1], diag(2,1)):
         // tr = 1/2 + 4 = 4.5; maha = 1/2 + 1 = 1.5; ln det q − ln det p = ln 2 − ln 4 = −ln 2
         // KL = ½ (4.5 + 1.5 − 2 − ln 2) = 1.653426
@@ -863,7 +866,8 @@ mod tests {
 
     #[test]
     fn entropy_of_standard_normal() {
-        // (d/2) ln(2πe), 1.418939 nats per dimension (standard result, MATH.md).
+        // (d/2) ln(2πe), 1.418939 nats per dimension (Cover & Thomas 2006, Theorem 8.4.1;
+        // docs/maths.md §2).
         for d in [1usize, 3, 10] {
             let g = diag(&vec![0.0; d], &vec![1.0; d]);
             close(g.view().entropy(), d as f64 * 1.418_938_533, 1e-8);
@@ -872,6 +876,8 @@ mod tests {
 
     #[test]
     fn self_divergences_vanish() {
+        // KL(p ‖ p) = 0 (Kullback & Leibler 1951), BC(p, p) = ∫ p = 1 (Bhattacharyya 1943),
+        // hence D_B = H = 0; W₂(p, p) = 0 from the closed form (docs/maths.md §4, §5, §7).
         let p = diag(&[0.3, -1.0, 2.0], &[0.5, 2.0, 1.5]);
         close(kl(&p.view(), &p.view()), 0.0, 1e-12);
         close(bhattacharyya_distance(&p.view(), &p.view()), 0.0, 1e-12);
@@ -976,8 +982,9 @@ mod tests {
 
     #[test]
     fn containment_of_self_is_alpha() {
-        // child = parent: containment equals α exactly in expectation (definition of the
-        // chi-square region); check within three standard errors.
+        // child = parent: containment equals α exactly in expectation, since M² of a point
+        // drawn from p under p itself is χ²_d (Johnson & Wichern 2007, Result 4.7;
+        // docs/maths.md §3); check within three standard errors.
         let p = diag(&[0.0, 1.0, -1.0, 0.5], &[1.0, 0.5, 2.0, 1.0]);
         let s = containment(&p.view(), &p.view(), 0.95, 20_000, 7);
         assert!((s.value - 0.95).abs() <= 3.0 * s.std_error, "{s:?}");
@@ -986,8 +993,10 @@ mod tests {
     #[test]
     fn containment_one_dimensional_normal_table() {
         // p = N(0, 1), q = N(0, 4): q's 95 % region is |x| ≤ 2·1.95996 = 3.92, which holds
-        // P(|Z| ≤ 3.92) = 0.999911 of p (standard normal table); with q = N(1, 1) the region
-        // is |x − 1| ≤ 1.96: Φ(2.96) − Φ(−0.96) = 0.998462 − 0.168528 = 0.829934.
+        // P(|Z| ≤ 3.92) = 0.999911 of p; with q = N(1, 1) the region is |x − 1| ≤ 1.96:
+        // Φ(2.96) − Φ(−0.96) = 0.998462 − 0.168528 = 0.829934 (NIST/SEMATECH e-Handbook
+        // §1.3.6.7.1, standard normal table; with the unrounded z = 1.959964 the value is
+        // 0.829925, docs/maths.md §8 — the difference is far inside the tolerance).
         let p = diag(&[0.0], &[1.0]);
         let wide = diag(&[0.0], &[4.0]);
         let shifted = diag(&[1.0], &[1.0]);
@@ -1006,7 +1015,8 @@ mod tests {
         let a = containment(&p.view(), &q.view(), 0.95, 10_000, 3);
         let b = containment(&pf.view(), &qf.view(), 0.95, 10_000, 3);
         assert!((a.value - b.value).abs() <= 3.0 * a.std_error.max(1e-3));
-        // and KL agrees with a Monte-Carlo estimate E_p[ln p(x) − ln q(x)]
+        // and KL agrees with a Monte-Carlo estimate of its definition E_p[ln p(x) − ln q(x)]
+        // (Kullback & Leibler 1951)
         let log_pdf = |x: &[f64], g: &OwnedGaussian| {
             -0.5 * (2.0 * LN_2PI + g.log_det + mahalanobis2(x, &g.view()))
         };

@@ -3,7 +3,8 @@
 //! Each kernel is written once as plain Rust and compiled twice: for the baseline target and,
 //! on x86-64 processors that have it, with AVX2 enabled (chosen at run time). Only the
 //! vector width differs: no fused multiply-add is enabled, so both versions perform the same
-//! IEEE operations in the same order and give bit-identical results.
+//! IEEE operations in the same order and give bit-identical results. The quantities they
+//! compute and the bounds they screen with are derived in `docs/maths.md` §15.
 
 /// Σₖ (vc[k] + (mx[k] − mc[k])²) / vx[k], the data term of KL(c ‖ x).
 ///

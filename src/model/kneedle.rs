@@ -6,7 +6,8 @@
 //! the difference curve `yd = yn − xn` is scanned for local maxima. A local maximum at `i`
 //! becomes a knee when `yd` drops below the threshold `T = yd(i) − S · mean(Δxn)` before
 //! the next local maximum is reached (S is the sensitivity, 1 by default). The first knee
-//! found is returned (the paper's offline use).
+//! found is returned (the paper's offline use). The steps, the builder's use of them and a
+//! recomputed check of the paper's Figure 2 example are in `docs/maths.md` §12.
 
 /// The shape of the curve, which tells kneedle how to turn it into an increasing concave one.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]

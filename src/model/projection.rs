@@ -2,7 +2,8 @@
 //!
 //! A projection is a 2 × d matrix P with orthonormal rows; a Gaussian N(μ, Σ) maps to
 //! N(P μ, P Σ Pᵀ). The ellipse at probability α is μ₂ + r L₂ [cos θ, sin θ]ᵀ with
-//! L₂ L₂ᵀ = P Σ Pᵀ and r² = χ²₂⁻¹(α) = −2 ln(1 − α).
+//! L₂ L₂ᵀ = P Σ Pᵀ and r² = χ²₂⁻¹(α) = −2 ln(1 − α). Definitions of the PCA, dimension and
+//! contrast axes and check values: `docs/maths.md` §10.
 
 use nalgebra::{DMatrix, DVector};
 
@@ -253,8 +254,9 @@ mod tests {
 
     #[test]
     fn chi_square_two_dof_mass_table() {
-        // Closed form of the chi-square distribution with 2 degrees of freedom (MATH.md):
-        // 0.3935 at r = 1, 0.8647 at r = 2, 0.9889 at r = 3.
+        // Closed form of the chi-square distribution with 2 degrees of freedom,
+        // P(χ²₂ ≤ r²) = 1 − e^(−r²/2) (closed form derived in docs/maths.md §8, values
+        // recomputed there with SciPy): 0.3935 at r = 1, 0.8647 at r = 2, 0.9889 at r = 3.
         let [a, b, c] = sigma_levels();
         close(a, 0.3935, 5e-5);
         close(b, 0.8647, 5e-5);
@@ -274,7 +276,9 @@ mod tests {
         let p = project(&g.view(), &axes);
         close(p.mean[0], 3.0 * s, 1e-6);
         close(p.mean[1], 3.0, 1e-6);
-        // P Σ Pᵀ by hand: [0][0] = ½(2 + 2·0.3 + 1) = 1.8; [0][1] = s(0.1 − 0.2); [1][1] = 0.5
+        // N(μ, Σ) maps to N(Pμ, PΣPᵀ) (Johnson & Wichern 2007, Result 4.3). P Σ Pᵀ by hand:
+        // [0][0] = ½(2 + 2·0.3 + 1) = 1.8; [0][1] = s(0.1 − 0.2); [1][1] = 0.5
+        // (recomputed with NumPy in docs/maths.md §10)
         close(p.cov[0][0], 1.8, 1e-9);
         close(p.cov[0][1], s * (0.1 - 0.2), 1e-9);
         close(p.cov[1][1], 0.5, 1e-9);
@@ -297,7 +301,7 @@ mod tests {
             cov: [[2.0, 0.6], [0.6, 1.0]],
         };
         let r2 = chi2_quantile(2, 0.95);
-        close(r2, 5.991, 5e-4); // NIST/SEMATECH e-Handbook table, 2 d.o.f., 0.95
+        close(r2, 5.991, 5e-4); // NIST/SEMATECH e-Handbook §1.3.6.7.4, 2 d.o.f., 0.95
         for p in g.ellipse(0.95, 64) {
             close(g.mahalanobis2(p), r2, 1e-9);
         }

@@ -10,6 +10,9 @@
 //! - narrower: −KL(candidate ‖ phrase), how well the phrase describes the candidate;
 //! - siblings: the Bhattacharyya coefficient with the phrase.
 //!
+//! (The divergences and the bulk check's thresholds are written out in `docs/maths.md` §4–§6
+//! and §14.)
+//!
 //! Broader candidates are the phrase's ancestors plus nodes outside its ancestry that are
 //! broader (larger ln det Σ) and contain it: containment ≥ `external_min_containment`. A single
 //! query scans every node for such containers (O(n·d)); the bulk check bounds the scan to the
