@@ -163,6 +163,23 @@ pub(super) fn small(
     (t, g, eff)
 }
 
+/// The findings of one rule in a report, in report order.
+pub(super) fn of_rule(r: &AuditReport, rule: Rule) -> Vec<&Finding> {
+    r.findings.iter().filter(|f| f.rule == rule.id()).collect()
+}
+
+/// A one-dimensional [`small`] project (each row: id, mean, variance).
+pub(super) fn small_1d(
+    rows: &[(&str, f64, f64)],
+    edges: &[(&str, &str)],
+) -> (PhraseTable, Gaussians, EffectiveTree) {
+    let rows: Vec<(&str, Vec<f64>, Vec<f64>)> = rows
+        .iter()
+        .map(|&(i, m, v)| (i, vec![m], vec![v]))
+        .collect();
+    small(&rows, edges)
+}
+
 pub(super) fn cfg_samples(samples: usize) -> AuditConfig {
     AuditConfig {
         samples,

@@ -60,3 +60,52 @@ pub(super) fn check(ctx: &Ctx, p: PhraseId, out: &mut Vec<Finding>) {
         ));
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use crate::model::audit::tests::{of_rule, small_1d};
+    use crate::model::audit::{AuditConfig, AuditReport, Rule, audit};
+
+    /// Root N(0, 100), a N(−10, 1), b N(10, 1) under it, c N(10, 0.1) under `parent_of_c`.
+    fn run(parent_of_c: &str) -> AuditReport {
+        let (t, g, eff) = small_1d(
+            &[
+                ("r", 0.0, 100.0),
+                ("a", -10.0, 1.0),
+                ("b", 10.0, 1.0),
+                ("c", 10.0, 0.1),
+            ],
+            &[("a", "r"), ("b", "r"), ("c", parent_of_c)],
+        );
+        audit(&g, &t, &eff, &[], &AuditConfig::default())
+    }
+
+    #[test]
+    fn fires_when_another_node_fits_clearly_better() {
+        // univariate KL(N(μ0, s0) ‖ N(μ1, s1)) = ½ ln(s1 / s0) + (s0 + (μ0 − μ1)²) / (2 s1) − ½
+        // (variances s; Kullback & Leibler 1951, closed form derived in docs/maths.md):
+        // KL(c ‖ a) = ½ ln 10 + 400.1 / 2 − ½ = 200.701293, KL(c ‖ b) = ½ ln 10 + 0.05 − ½,
+        // so the gain is exactly 200 and the threshold max(1.5, 0.1 · 200.701293).
+        let r = run("a");
+        let f = of_rule(&r, Rule::BetterParent);
+        assert_eq!(f.len(), 1, "{f:#?}");
+        assert_eq!((f[0].node, f[0].other), (3, Some(2)));
+        assert!((f[0].score - 200.0).abs() < 1e-3, "{}", f[0].score);
+        assert!(
+            (f[0].threshold - 20.0701293).abs() < 1e-4,
+            "{}",
+            f[0].threshold
+        );
+        assert_eq!(
+            f[0].suggestion.as_ref().unwrap().target.as_deref(),
+            Some("b")
+        );
+    }
+
+    #[test]
+    fn is_silent_when_the_parent_is_the_best_fit() {
+        // under b: the best other candidate is the root, KL(c ‖ r) = ½ ln 1000 + 100.1 / 200
+        // − ½ = 3.4544 > KL(c ‖ b) = 0.7013, so there is no gain
+        assert!(of_rule(&run("b"), Rule::BetterParent).is_empty());
+    }
+}

@@ -37,3 +37,55 @@ pub(super) fn check(ctx: &Ctx, p: PhraseId, out: &mut Vec<Finding>) {
         ));
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use crate::model::audit::tests::{cfg_samples, of_rule, small_1d};
+    use crate::model::audit::{AuditReport, Rule, audit};
+
+    /// R N(0, 1) with children A and B, A with children a1 and a2, all copies of N(0, 1);
+    /// B with children b1 N(m, v) and b2 N(−m, v).
+    fn run(m: f64, v: f64) -> AuditReport {
+        let (t, g, eff) = small_1d(
+            &[
+                ("R", 0.0, 1.0),
+                ("A", 0.0, 1.0),
+                ("B", 0.0, 1.0),
+                ("a1", 0.0, 1.0),
+                ("a2", 0.0, 1.0),
+                ("b1", m, v),
+                ("b2", -m, v),
+            ],
+            &[
+                ("A", "R"),
+                ("B", "R"),
+                ("a1", "A"),
+                ("a2", "A"),
+                ("b1", "B"),
+                ("b2", "B"),
+            ],
+        );
+        audit(&g, &t, &eff, &[], &cfg_samples(1024))
+    }
+
+    #[test]
+    fn fires_on_children_far_from_their_parent() {
+        // A copy's 95 % region is its parent's, so R and A are covered α = 0.95 (definition
+        // of the χ² quantile, docs/maths.md); B by N(±5, 0.01): P(|X ∓ 5| ≤ 0.196) ≈ 2 ·
+        // (Φ(5.196) − Φ(4.804)) < 10⁻⁶ (NIST/SEMATECH e-Handbook, normal table). Median of
+        // (0, 0.95, 0.95) is 0.95, so t = min(0.6, 0.7 · 0.95) = 0.6 and only B fires.
+        let r = run(5.0, 0.01);
+        assert_eq!(r.coverage_threshold, 0.6);
+        let f = of_rule(&r, Rule::CoverageGap);
+        assert_eq!(f.len(), 1);
+        assert_eq!(f[0].node, 2);
+        assert!(f[0].score < 0.01, "{}", f[0].score);
+    }
+
+    #[test]
+    fn is_silent_when_every_node_is_covered() {
+        // all copies: every coverage is about 0.95 > 0.6
+        let r = run(0.0, 1.0);
+        assert!(of_rule(&r, Rule::CoverageGap).is_empty());
+    }
+}

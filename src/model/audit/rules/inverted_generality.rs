@@ -36,3 +36,32 @@ pub(super) fn check(ctx: &Ctx, p: PhraseId, out: &mut Vec<Finding>) {
         ));
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use crate::model::audit::tests::{of_rule, small_1d};
+    use crate::model::audit::{AuditConfig, Rule, audit};
+
+    /// Parent N(0, 1), child N(0, v): the excess is ln v (ln det of a diagonal Σ is the sum
+    /// of the log variances, closed form derived in docs/maths.md).
+    fn run(v: f64) -> crate::model::audit::AuditReport {
+        let (t, g, eff) = small_1d(&[("p", 0.0, 1.0), ("c", 0.0, v)], &[("c", "p")]);
+        audit(&g, &t, &eff, &[], &AuditConfig::default())
+    }
+
+    #[test]
+    fn fires_when_the_child_is_broader_than_the_margin() {
+        let r = run(4.0);
+        let f = of_rule(&r, Rule::InvertedGenerality);
+        assert_eq!(f.len(), 1);
+        assert_eq!((f[0].node, f[0].other), (1, Some(0)));
+        assert!((f[0].score - 4f64.ln()).abs() < 1e-6, "{}", f[0].score);
+        assert_eq!(f[0].threshold, 0.5);
+    }
+
+    #[test]
+    fn is_silent_within_the_margin() {
+        // ln 1.6 = 0.47 < 0.5
+        assert!(of_rule(&run(1.6), Rule::InvertedGenerality).is_empty());
+    }
+}

@@ -63,3 +63,43 @@ pub(super) fn check(ctx: &Ctx, p: PhraseId, out: &mut Vec<Finding>) {
         ));
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use crate::model::audit::tests::{of_rule, small_1d};
+    use crate::model::audit::{AuditConfig, AuditReport, Rule, audit};
+
+    /// Root N(0, 100) with children x N(0, 1) and y N(μ, 1).
+    fn run(mu: f64) -> AuditReport {
+        let (t, g, eff) = small_1d(
+            &[("r", 0.0, 100.0), ("x", 0.0, 1.0), ("y", mu, 1.0)],
+            &[("x", "r"), ("y", "r")],
+        );
+        audit(&g, &t, &eff, &[], &AuditConfig::default())
+    }
+
+    // Univariate Bhattacharyya distance (Bhattacharyya 1943): D_B = (μ1 − μ2)² / (4 (s1 + s2))
+    // + ½ ln((s1 + s2) / (2 √(s1 s2))) for variances s; the coefficient is exp(−D_B).
+
+    #[test]
+    fn fires_on_nearly_coinciding_siblings() {
+        // μ = 0.5: D_B = 0.25 / 8 = 0.03125, BC = exp(−0.03125) = 0.969233 ≥ 0.9
+        let r = run(0.5);
+        let f = of_rule(&r, Rule::NearDuplicate);
+        assert_eq!(f.len(), 1);
+        // equal subtrees: the later row merges into the earlier
+        assert_eq!((f[0].node, f[0].other), (2, Some(1)));
+        assert!(
+            (f[0].score - (-0.03125f64).exp()).abs() < 1e-6,
+            "{}",
+            f[0].score
+        );
+        assert_eq!(f[0].suggestion.as_ref().unwrap().action, "merge");
+    }
+
+    #[test]
+    fn is_silent_on_distinct_siblings() {
+        // μ = 2: D_B = 4 / 8 = 0.5, BC = exp(−0.5) = 0.6065 < 0.9
+        assert!(of_rule(&run(2.0), Rule::NearDuplicate).is_empty());
+    }
+}

@@ -31,3 +31,48 @@ pub(super) fn check(ctx: &Ctx, p: PhraseId, out: &mut Vec<Finding>) {
         ctx.approved(p),
     ));
 }
+
+#[cfg(test)]
+mod tests {
+    use crate::model::audit::tests::{of_rule, small_1d};
+    use crate::model::audit::{AuditConfig, Rule, audit};
+
+    /// Root N(0, 100), a N(−3, 1) in the tree, `loose` N(−3, 0.5) not.
+    fn project() -> (
+        crate::model::PhraseTable,
+        crate::model::Gaussians,
+        crate::model::effective::EffectiveTree,
+    ) {
+        small_1d(
+            &[("r", 0.0, 100.0), ("a", -3.0, 1.0), ("loose", -3.0, 0.5)],
+            &[("a", "r")],
+        )
+    }
+
+    #[test]
+    fn fires_on_a_phrase_outside_the_tree() {
+        let (t, g, eff) = project();
+        let r = audit(&g, &t, &eff, &[], &AuditConfig::default());
+        let f = of_rule(&r, Rule::Unplaced);
+        assert_eq!(f.len(), 1);
+        assert_eq!(f[0].node, 2);
+        // broader by more than 1.5 nats of ln det: r (ln 100 − ln 0.5 = 5.3), not a
+        // (ln 2 = 0.69), so the root is the suggested place
+        assert_eq!(
+            f[0].suggestion.as_ref().unwrap().target.as_deref(),
+            Some("r")
+        );
+    }
+
+    #[test]
+    fn is_silent_on_excluded_and_merged_phrases() {
+        let (t, g, mut eff) = project();
+        eff.excluded[2] = true;
+        let r = audit(&g, &t, &eff, &[], &AuditConfig::default());
+        assert!(of_rule(&r, Rule::Unplaced).is_empty());
+        let (t, g, mut eff) = project();
+        eff.alias_of[2] = Some(1);
+        let r = audit(&g, &t, &eff, &[], &AuditConfig::default());
+        assert!(of_rule(&r, Rule::Unplaced).is_empty());
+    }
+}

@@ -38,3 +38,37 @@ pub(super) fn check(ctx: &Ctx, p: PhraseId, out: &mut Vec<Finding>) {
         ));
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use crate::model::audit::tests::{cfg_samples, of_rule, small_1d};
+    use crate::model::audit::{Rule, audit};
+
+    // Parent N(0, 1): its 95 % region is |x| ≤ 1.96. Standard normal CDF values from the
+    // NIST/SEMATECH e-Handbook of Statistical Methods, table 1.3.6.7.1.
+
+    #[test]
+    fn fires_when_the_child_lies_mostly_outside() {
+        // child N(3, 1): P(|X| ≤ 1.96) = Φ(−1.04) − Φ(−4.96) = 1 − 0.8508 − 0.0000 = 0.1492
+        let (t, g, eff) = small_1d(&[("p", 0.0, 1.0), ("c", 3.0, 1.0)], &[("c", "p")]);
+        let r = audit(&g, &t, &eff, &[], &cfg_samples(4096));
+        let f = of_rule(&r, Rule::WeakInclusion);
+        assert_eq!(f.len(), 1);
+        assert_eq!((f[0].node, f[0].other), (1, Some(0)));
+        let se = r.stats.nodes[1].containment.unwrap().std_error;
+        assert!((f[0].score - 0.1492).abs() <= 3.0 * se, "{}", f[0].score);
+    }
+
+    #[test]
+    fn is_silent_when_the_child_lies_inside() {
+        // child N(0.5, 0.5²): P(|X| ≤ 1.96) = Φ(2.92) − Φ(−4.92) = 0.9982 ≥ 0.3
+        let (t, g, eff) = small_1d(&[("p", 0.0, 1.0), ("c", 0.5, 0.25)], &[("c", "p")]);
+        let r = audit(&g, &t, &eff, &[], &cfg_samples(4096));
+        assert!(of_rule(&r, Rule::WeakInclusion).is_empty());
+        let c = r.stats.nodes[1].containment.unwrap();
+        assert!(
+            (c.value - 0.9982).abs() <= 3.0 * c.std_error.max(1e-3),
+            "{c:?}"
+        );
+    }
+}
