@@ -1,5 +1,14 @@
 //! The audit: ranked findings with numbers and suggested fixes, over the effective tree.
 //!
+//! # Layout
+//! - `mod.rs`: the report types and the assembler, a loop over [`Rule::ALL`];
+//! - `config.rs`: [`AuditConfig`] (converts to the statistics' own
+//!   [`StatsConfig`](crate::model::stats::StatsConfig));
+//! - `rules/mod.rs`: the [`Rule`] enum (id, default severity, scope, node-locality, config
+//!   keys) and the context rules read; `rules/<rule>.rs`: one function per rule, with its tests;
+//! - `search.rs`: the candidate search; `auditor.rs`: [`Auditor`] and the incremental
+//!   re-audit; `tests.rs`: tests across rules (acceptance figures, incremental = full).
+//!
 //! # Rules (defaults in [`AuditConfig`])
 //! | rule | severity | fires when | suggestion |
 //! |---|---|---|---|
@@ -49,8 +58,10 @@
 //! whose cached answer is no longer valid (its best candidate left the tree, became its
 //! parent or its descendant). A phrase that joins the tree (an include, a placed phrase) is
 //! offered to the searches of its new siblings; other nodes see it at the next full audit.
-//! Depth, subtree sizes, histograms and the finding list are rebuilt in O(n). A different
-//! phrase table triggers a full audit.
+//! Depth, subtree sizes, histograms and the finding list are rebuilt in O(n): the findings
+//! of [`Rule::node_local`] rules are rerun only for the nodes whose figures, search, review,
+//! pin or labels (or their partner's label) changed and kept for the others; every other
+//! rule is rerun in full. A different phrase table triggers a full audit.
 
 use serde::{Deserialize, Serialize};
 
@@ -62,7 +73,7 @@ use super::stats::Stats;
 
 mod auditor;
 mod config;
-pub mod rules;
+mod rules;
 mod search;
 
 pub use auditor::Auditor;

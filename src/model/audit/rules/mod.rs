@@ -7,7 +7,7 @@
 //! keeps their other findings; every other rule is rerun in full on each update.
 //!
 //! Adding a rule: a variant here (id, default severity, scope, node-locality, config keys),
-//! a file with its function, a line in [`Rule::check_node`] or [`Rule::check_tree`], and a
+//! a file with its function, a line in `Rule::check_node` or `Rule::check_tree`, and a
 //! test in its file where it must fire and one where it must not.
 
 use super::{AuditConfig, Finding, Severity, Suggestion};
