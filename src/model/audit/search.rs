@@ -225,7 +225,10 @@ fn lowest(cands: &[(PhraseId, f64)]) -> Option<(PhraseId, f64)> {
         .min_by(|a, b| a.1.total_cmp(&b.1).then(a.0.cmp(&b.0)))
 }
 
-/// A placed node whose placement rules fire (better parent, weak inclusion, inversion).
+/// A placed node whose placement rules fire (better parent, weak inclusion, inversion):
+/// the pruned search's index repair. It applies the thresholds of those three rules
+/// (`rules/inverted_generality.rs`, `weak_inclusion.rs`, `better_parent.rs`, without the
+/// containment condition of the last), so a change to them belongs here too.
 pub(super) fn suspicious(
     g: &Gaussians,
     eff: &EffectiveTree,

@@ -5,7 +5,7 @@ use crate::model::audit::Finding;
 use crate::model::gaussian::PhraseId;
 
 /// Fires on a node with ≥ 2 children whose sampled coverage c is below the threshold t in
-/// force ([`Ctx::coverage_threshold`]) by more than two standard errors at t:
+/// force ([`Ctx::coverage_threshold_of`]) by more than two standard errors at t:
 /// c < t − 2 √(t (1 − t) / N). Score is the coverage. Not node-local: t depends on the
 /// whole tree.
 pub(super) fn check(ctx: &Ctx, p: PhraseId, out: &mut Vec<Finding>) {

@@ -1,10 +1,12 @@
 //! The audit rules: one [`Rule`] variant and one function per rule (one file each).
 //!
 //! A rule is either *per node* (its function looks at one phrase and may push findings about
-//! it) or *tree-wide* (its function runs once). Per-node rules that are also
-//! [`Rule::node_local`] only read the node, its parent, its children and its own candidate
-//! search, so the incremental re-audit reruns them only for the nodes an edit touched and
-//! keeps their other findings; every other rule is rerun in full on each update.
+//! it) or *tree-wide* (its function runs once). The findings of a [`Rule::node_local`] rule
+//! belong to one node, so the incremental re-audit reruns it only for the nodes an edit
+//! touched (changed figures, search, review, pin or label; the children of changed or
+//! renamed nodes; old and new ancestors of moved ones) and keeps its other findings; every
+//! other rule is rerun in full on each update. A new rule that reads more of the tree than
+//! that must not be node-local.
 //!
 //! Adding a rule: a variant here (id, default severity, scope, node-locality, config keys),
 //! a file with its function, a line in `Rule::check_node` or `Rule::check_tree`, and a
@@ -229,7 +231,7 @@ pub(super) struct Ctx<'a> {
     pub stats: &'a Stats,
     /// Candidate search per phrase.
     pub placement: &'a [Placement],
-    /// The coverage threshold in force (see [`Ctx::coverage_threshold`]).
+    /// The `coverage-gap` threshold in force (absolute ceiling and relative rule).
     pub coverage_threshold: f64,
     /// Nodes of the tree whose review status is unreviewed.
     pub unreviewed: usize,
@@ -258,7 +260,7 @@ impl<'a> Ctx<'a> {
             cfg,
             stats,
             placement,
-            coverage_threshold: Ctx::coverage_threshold(eff, cfg, stats),
+            coverage_threshold: Ctx::coverage_threshold_of(eff, cfg, stats),
             unreviewed,
         }
     }
@@ -266,7 +268,7 @@ impl<'a> Ctx<'a> {
     /// `coverage-gap` threshold: min(`coverage_min`, `coverage_relative` × the median
     /// coverage of the nodes with ≥ 2 children); the median of an even count is the upper
     /// middle value, of none 0.
-    fn coverage_threshold(eff: &EffectiveTree, cfg: &AuditConfig, stats: &Stats) -> f64 {
+    fn coverage_threshold_of(eff: &EffectiveTree, cfg: &AuditConfig, stats: &Stats) -> f64 {
         let tree = &eff.tree;
         let mut covs: Vec<f64> = (0..tree.table_len() as PhraseId)
             .filter(|&p| tree.is_placed(p) && tree.children(p).len() >= 2)
@@ -372,7 +374,10 @@ mod tests {
         for (i, r) in Rule::ALL.into_iter().enumerate() {
             assert_eq!(Rule::from_id(r.id()), Some(r));
             assert_eq!(r.position(), i);
-            assert_eq!(super::super::RULES[i], (r.id(), r.default_severity()));
+            assert_eq!(
+                crate::model::audit::RULES[i],
+                (r.id(), r.default_severity())
+            );
         }
         assert_eq!(Rule::from_id("nope"), None);
     }
