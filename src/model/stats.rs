@@ -1,8 +1,8 @@
 //! Per-node statistics of an effective tree: generality, inclusion in the parent, coverage of
 //! a node by its children, sibling overlap, and tree-wide histograms for the GUI.
 //!
-//! Containment and coverage are Monte-Carlo estimates (`MATH.md`, "containment of p in q at
-//! level α"). Every node uses the same fixed bank of standard-normal draws z₁ … z_N (common
+//! Containment and coverage are Monte-Carlo estimates (`docs/maths.md`, "containment of p in
+//! q at level α"). Every node uses the same fixed bank of standard-normal draws z₁ … z_N (common
 //! random numbers, drawn once from the configured seed): a node's points are μ + L zₛ. Each
 //! estimate is still a binomial share of N independent points, so its standard error is
 //! √(c (1 − c) / N); sharing the bank makes the result reproducible byte for byte and lets the
@@ -16,7 +16,6 @@ use rand_xoshiro::Xoshiro256PlusPlus;
 use rayon::prelude::*;
 use serde::Serialize;
 
-use super::audit::AuditConfig;
 use super::effective::EffectiveTree;
 use super::gaussian::{
     CovView, CovarianceKind, GaussianView, Gaussians, PhraseId, Sampled, bhattacharyya_coefficient,
@@ -110,6 +109,28 @@ pub struct Stats {
     pub samples: usize,
 }
 
+/// Sampling settings of the statistics: the region level and the shared sample bank. The
+/// audit's configuration converts to it (`AuditConfig::stats`).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct StatsConfig {
+    /// Probability level α of a Gaussian's region (default 0.95).
+    pub alpha: f64,
+    /// Sampled points per containment / coverage estimate (default 256).
+    pub samples: usize,
+    /// Seed of the sample bank.
+    pub seed: u64,
+}
+
+impl Default for StatsConfig {
+    fn default() -> Self {
+        StatsConfig {
+            alpha: 0.95,
+            samples: 256,
+            seed: 0x7472_6565_7772_6974,
+        }
+    }
+}
+
 /// Bins of the tree-wide histograms.
 pub const HISTOGRAM_BINS: usize = 20;
 
@@ -129,7 +150,7 @@ pub fn sibling_overlap(g: &Gaussians, eff: &EffectiveTree, node: PhraseId) -> Ve
 }
 
 /// Compute every statistic of the effective tree (parallel over nodes; deterministic).
-pub fn compute_stats(g: &Gaussians, eff: &EffectiveTree, cfg: &AuditConfig) -> Stats {
+pub fn compute_stats(g: &Gaussians, eff: &EffectiveTree, cfg: &StatsConfig) -> Stats {
     let engine = StatsEngine::new(g, cfg);
     engine.compute(g, eff)
 }
@@ -180,7 +201,7 @@ pub(crate) struct StatsEngine {
 }
 
 impl StatsEngine {
-    pub(crate) fn new(g: &Gaussians, cfg: &AuditConfig) -> Self {
+    pub(crate) fn new(g: &Gaussians, cfg: &StatsConfig) -> Self {
         let d = g.dim().max(1);
         let diag_log_det = (0..g.len())
             .map(|i| g.variances(i).iter().map(|&v| (v as f64).ln()).sum())

@@ -4,10 +4,13 @@ use rand::{Rng, SeedableRng};
 use rand_distr::{Distribution, StandardNormal};
 use rand_xoshiro::Xoshiro256PlusPlus;
 
+use super::search::{CandidateIndex, Order, Searcher, needs_search};
 use super::*;
+use crate::model::edit::{Edit, ReviewStatus};
+use crate::model::gaussian::{bhattacharyya_coefficient, kl};
 use crate::model::phrase::PhraseRecord;
-use crate::model::stats::{compute_stats, sibling_overlap};
-use crate::model::tree::Tree;
+use crate::model::stats::{StatsEngine, compute_stats, sibling_overlap};
+use crate::model::tree::{NO_PARENT, Tree};
 
 /// A nested Gaussian hierarchy: every child's variances are the parent's times ~0.3, its
 /// mean a draw of half the parent's spread around the parent's mean.
@@ -135,7 +138,7 @@ fn one(mean: &[f64], var: &[f64]) -> (PhraseTable, Gaussians) {
 
 /// A small hand-made project: rows with the given means/variances (1 or more dims) and
 /// child → parent edges.
-fn small(
+pub(super) fn small(
     rows: &[(&str, Vec<f64>, Vec<f64>)],
     edges: &[(&str, &str)],
 ) -> (PhraseTable, Gaussians, EffectiveTree) {
@@ -160,7 +163,24 @@ fn small(
     (t, g, eff)
 }
 
-fn cfg_samples(samples: usize) -> AuditConfig {
+/// The findings of one rule in a report, in report order.
+pub(super) fn of_rule(r: &AuditReport, rule: Rule) -> Vec<&Finding> {
+    r.findings.iter().filter(|f| f.rule == rule.id()).collect()
+}
+
+/// A one-dimensional [`small`] project (each row: id, mean, variance).
+pub(super) fn small_1d(
+    rows: &[(&str, f64, f64)],
+    edges: &[(&str, &str)],
+) -> (PhraseTable, Gaussians, EffectiveTree) {
+    let rows: Vec<(&str, Vec<f64>, Vec<f64>)> = rows
+        .iter()
+        .map(|&(i, m, v)| (i, vec![m], vec![v]))
+        .collect();
+    small(&rows, edges)
+}
+
+pub(super) fn cfg_samples(samples: usize) -> AuditConfig {
     AuditConfig {
         samples,
         ..AuditConfig::default()
@@ -170,13 +190,14 @@ fn cfg_samples(samples: usize) -> AuditConfig {
 #[test]
 fn containment_of_a_gaussian_in_itself_is_alpha() {
     // x ~ N(μ, Σ) ⇒ Mahalanobis²(x) ~ χ²_d, so the share inside the α-region is α exactly
-    // (definition of the chi-square quantile; MATH.md "containment").
+    // (definition of the chi-square quantile; closed form derived in docs/maths.md,
+    // "containment").
     for d in [1usize, 2, 8, 64] {
         let mean: Vec<f64> = (0..d).map(|k| k as f64 * 0.1).collect();
         let var: Vec<f64> = (0..d).map(|k| 0.5 + k as f64 * 0.01).collect();
         let (_, g) = one(&mean, &var);
         let cfg = cfg_samples(2048);
-        let engine = StatsEngine::new(&g, &cfg);
+        let engine = StatsEngine::new(&g, &cfg.stats());
         let c = engine.containment(&g, 0, 0);
         assert!(
             (c.value - 0.95).abs() <= 3.0 * c.std_error,
@@ -203,7 +224,7 @@ fn one_dimensional_containment_and_coverage_match_normal_tables() {
         &[("a", "p"), ("l", "p"), ("r", "p")],
     );
     let cfg = cfg_samples(8192);
-    let engine = StatsEngine::new(&g, &cfg);
+    let engine = StatsEngine::new(&g, &cfg.stats());
     // child N(1, 1) in parent N(0, 1): P(|X| ≤ 1.96) = Φ(0.96) − Φ(−2.96)
     let want = 0.8315 - (1.0 - 0.9985);
     let c = engine.containment(&g, 1, 0);
@@ -219,7 +240,7 @@ fn one_dimensional_containment_and_coverage_match_normal_tables() {
         "{cov:?} vs {want}"
     );
     // through the public statistics
-    let stats = compute_stats(&g, &eff, &cfg);
+    let stats = compute_stats(&g, &eff, &cfg.stats());
     let s = &stats.nodes[1];
     assert_eq!(s.containment, Some(c));
     assert_eq!(s.depth, 1);
@@ -230,8 +251,8 @@ fn one_dimensional_containment_and_coverage_match_normal_tables() {
 
 #[test]
 fn two_dimensional_coverage_matches_the_closed_form() {
-    // mass of N(0, I₂) inside radius r is 1 − exp(−r²/2): 0.8647 at r = 2 (MATH.md, closed
-    // form of the chi-square distribution with 2 degrees of freedom). A child N(0, s² I) with
+    // mass of N(0, I₂) inside radius r is 1 − exp(−r²/2): 0.8647 at r = 2 (closed form of the
+    // chi-square distribution with 2 degrees of freedom, derived in docs/maths.md). A child N(0, s² I) with
     // s² = 4 / χ²₂⁻¹(0.95) has exactly the disc of radius 2 as its 95 % region.
     let s2 = 4.0 / (-2.0 * (0.05f64).ln());
     let (_, g, eff) = small(
@@ -242,19 +263,20 @@ fn two_dimensional_coverage_matches_the_closed_form() {
         ],
         &[("c", "p"), ("e", "p")],
     );
-    let stats = compute_stats(&g, &eff, &cfg_samples(4096));
+    let stats = compute_stats(&g, &eff, &cfg_samples(4096).stats());
     let cov = stats.nodes[0].coverage.unwrap();
     assert!((cov.value - 0.8647).abs() <= 3.0 * cov.std_error, "{cov:?}");
 }
 
 #[test]
 fn parent_figures_agree_with_the_gaussian_module() {
-    // KL(N(0,1) ‖ N(1,2)) = 0.346574 (MATH.md, univariate closed form)
+    // KL(N(0,1) ‖ N(1,2)) = 0.346574 (univariate closed form, Kullback & Leibler 1951;
+    // closed form derived in docs/maths.md)
     let (_, g, eff) = small(
         &[("q", vec![1.0], vec![2.0]), ("p", vec![0.0], vec![1.0])],
         &[("p", "q")],
     );
-    let stats = compute_stats(&g, &eff, &AuditConfig::default());
+    let stats = compute_stats(&g, &eff, &AuditConfig::default().stats());
     assert!((stats.nodes[1].kl_to_parent.unwrap() - 0.346574).abs() < 1e-6);
     let bc = stats.nodes[1].bc_parent.unwrap();
     assert!((bc - bhattacharyya_coefficient(&g.get(1), &g.get(0))).abs() < 1e-12);
@@ -262,7 +284,7 @@ fn parent_figures_agree_with_the_gaussian_module() {
     let nest = Nested::new(3, 2, 64, 5);
     let g = nest.gaussians();
     let eff = nest.eff(&nest.parent);
-    let engine = StatsEngine::new(&g, &AuditConfig::default());
+    let engine = StatsEngine::new(&g, &AuditConfig::default().stats());
     let order = Order::of(&eff);
     let index = CandidateIndex::of(&eff);
     let cfg = AuditConfig::default();
@@ -756,7 +778,7 @@ fn full_covariance_containment_of_itself_is_alpha() {
     // as above, through the full-covariance path (definition of the χ² quantile)
     let cov = [2.0, 0.6, 0.1, 0.6, 1.0, 0.3, 0.1, 0.3, 0.5];
     let g = Gaussians::from_full(1, 3, vec![0.5, -1.0, 2.0], cov.to_vec(), 0.0).unwrap();
-    let engine = StatsEngine::new(&g, &cfg_samples(2048));
+    let engine = StatsEngine::new(&g, &cfg_samples(2048).stats());
     let c = engine.containment(&g, 0, 0);
     assert!((c.value - 0.95).abs() <= 3.0 * c.std_error, "{c:?}");
 }

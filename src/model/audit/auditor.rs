@@ -1,0 +1,291 @@
+//! The [`Auditor`]: caches of a full audit and the incremental re-audit after an edit.
+
+use rayon::prelude::*;
+
+use super::rules::Rule;
+use super::search::{CandidateIndex, Order, Placement, Searcher, needs_search, suspicious};
+use super::{AuditConfig, AuditReport, Finding, assemble, assemble_with};
+use crate::model::edit::ReviewStatus;
+use crate::model::effective::{ApplyProblem, EffectiveTree};
+use crate::model::gaussian::{Gaussians, PhraseId};
+use crate::model::phrase::PhraseTable;
+use crate::model::stats::{Histogram, Stats, StatsEngine};
+use crate::model::tree::NO_PARENT;
+
+/// What the auditor remembers of the effective tree it saw last.
+#[derive(Debug, Clone)]
+struct Snapshot {
+    parent: Vec<PhraseId>,
+    placed: Vec<bool>,
+    review: Vec<ReviewStatus>,
+    pinned: Vec<bool>,
+    labels: Vec<String>,
+}
+
+impl Snapshot {
+    fn of(eff: &EffectiveTree) -> Self {
+        let (parent, placed) = tree_arrays(eff);
+        Snapshot {
+            parent,
+            placed,
+            review: eff.review.clone(),
+            pinned: eff.pinned.clone(),
+            labels: eff.labels.clone(),
+        }
+    }
+}
+
+/// Parent (or `NO_PARENT`) and membership of every phrase.
+fn tree_arrays(eff: &EffectiveTree) -> (Vec<PhraseId>, Vec<bool>) {
+    let n = eff.tree.table_len();
+    (
+        (0..n as PhraseId)
+            .map(|p| eff.tree.parent(p).unwrap_or(NO_PARENT))
+            .collect(),
+        (0..n as PhraseId).map(|p| eff.tree.is_placed(p)).collect(),
+    )
+}
+
+/// Holds the statistics, the candidate index and the per-node search results, and updates
+/// them incrementally after an edit.
+#[derive(Debug, Clone)]
+pub struct Auditor {
+    pub(super) cfg: AuditConfig,
+    pub(super) engine: StatsEngine,
+    pub(super) index: CandidateIndex,
+    placement: Vec<Placement>,
+    snapshot: Snapshot,
+    pub(super) report: AuditReport,
+}
+
+impl Auditor {
+    /// Audit `eff` from scratch and keep the caches. The candidate index is the hierarchy of
+    /// this first tree.
+    pub fn new(
+        g: &Gaussians,
+        phrases: &PhraseTable,
+        eff: &EffectiveTree,
+        problems: &[ApplyProblem],
+        cfg: AuditConfig,
+    ) -> Self {
+        let engine = StatsEngine::new(g, &cfg.stats());
+        let mut index = CandidateIndex::of(eff);
+        let stats = engine.compute(g, eff);
+        let order = Order::of(eff);
+        let n = g.len();
+        let exhaustive = n <= cfg.exhaustive_limit;
+        macro_rules! searcher {
+            () => {
+                Searcher {
+                    g,
+                    engine: &engine,
+                    eff,
+                    order: &order,
+                    index: &index,
+                    cfg: &cfg,
+                    exhaustive,
+                }
+            };
+        }
+        // every node that needs a search, written in place (no second n-long vector)
+        let mut placement = vec![Placement::default(); n];
+        {
+            let s = searcher!();
+            placement.par_iter_mut().enumerate().for_each(|(p, slot)| {
+                if needs_search(eff, p as PhraseId) {
+                    *slot = s.place(p as PhraseId);
+                }
+            });
+        }
+        if !exhaustive {
+            // repair the index: a suspicious node is also reachable under its best candidate,
+            // then the suspicious nodes are searched again
+            let suspects: Vec<PhraseId> = (0..n as PhraseId)
+                .filter(|&p| suspicious(g, eff, &cfg, &stats, &placement, p))
+                .collect();
+            for &p in &suspects {
+                if let Some((b, _)) = placement[p as usize].best {
+                    index.children[b as usize].push(p);
+                }
+            }
+            let s = searcher!();
+            let fresh: Vec<Placement> = suspects.par_iter().map(|&p| s.place(p)).collect();
+            for (&p, pl) in suspects.iter().zip(fresh) {
+                placement[p as usize] = pl;
+            }
+        }
+        let report = assemble(g, phrases, eff, problems, &cfg, stats, &placement);
+        Auditor {
+            snapshot: Snapshot::of(eff),
+            cfg,
+            engine,
+            index,
+            placement,
+            report,
+        }
+    }
+
+    /// The current report.
+    pub fn report(&self) -> &AuditReport {
+        &self.report
+    }
+
+    /// The configuration in use.
+    pub fn config(&self) -> &AuditConfig {
+        &self.cfg
+    }
+
+    /// Re-audit after the effective tree changed (same phrase table and Gaussians),
+    /// recomputing only what the change can affect (see the module documentation).
+    pub fn update(
+        &mut self,
+        g: &Gaussians,
+        phrases: &PhraseTable,
+        eff: &EffectiveTree,
+        problems: &[ApplyProblem],
+    ) -> &AuditReport {
+        let n = g.len();
+        if n != self.placement.len() || eff.tree.table_len() != n {
+            // a different phrase table: nothing cached applies
+            *self = Auditor::new(g, phrases, eff, problems, self.cfg.clone());
+            return &self.report;
+        }
+        let (new_parent, new_placed) = tree_arrays(eff);
+        let mut stat_dirty = vec![false; n];
+        let mut search_dirty = vec![false; n];
+        let mark = |v: &mut Vec<bool>, p: PhraseId| {
+            if p != NO_PARENT {
+                v[p as usize] = true;
+            }
+        };
+        for i in 0..n {
+            if self.snapshot.parent[i] == new_parent[i] && self.snapshot.placed[i] == new_placed[i]
+            {
+                continue;
+            }
+            let p = i as PhraseId;
+            let (old_par, new_par) = (self.snapshot.parent[i], new_parent[i]);
+            for x in [p, old_par, new_par] {
+                mark(&mut stat_dirty, x);
+                mark(&mut search_dirty, x);
+            }
+            // old and new ancestors: their sets of descendants changed
+            for chain in [&self.snapshot.parent, &new_parent] {
+                let mut cur = chain[i];
+                let mut steps = 0;
+                while cur != NO_PARENT && steps < n {
+                    mark(&mut search_dirty, cur);
+                    cur = chain[cur as usize];
+                    steps += 1;
+                }
+            }
+            // a phrase that joined the tree may be the better answer for its new siblings
+            if new_placed[i] && !self.snapshot.placed[i] && new_par != NO_PARENT {
+                for &s in eff.tree.children(new_par) {
+                    mark(&mut search_dirty, s);
+                }
+            }
+        }
+        let order = Order::of(eff);
+        // cached answers that are no longer valid
+        for (i, pl) in self.placement.iter().enumerate() {
+            if let Some((b, _)) = pl.best {
+                let c = i as PhraseId;
+                if !eff.tree.is_placed(b) || new_parent[i] == b || order.in_subtree(c, b) {
+                    search_dirty[i] = true;
+                }
+            }
+        }
+        let stat_list: Vec<PhraseId> = (0..n as PhraseId)
+            .filter(|&p| stat_dirty[p as usize])
+            .collect();
+        let mut stats = std::mem::replace(&mut self.report.stats, empty_stats());
+        self.engine.refresh(&mut stats, g, eff, &stat_list, &order);
+        let searcher = Searcher {
+            g,
+            engine: &self.engine,
+            eff,
+            order: &order,
+            index: &self.index,
+            cfg: &self.cfg,
+            exhaustive: n <= self.cfg.exhaustive_limit,
+        };
+        let fresh: Vec<(PhraseId, Placement)> = (0..n as PhraseId)
+            .filter(|&p| search_dirty[p as usize])
+            .collect::<Vec<_>>()
+            .into_par_iter()
+            .map(|p| {
+                let pl = if needs_search(eff, p) {
+                    searcher.place(p)
+                } else {
+                    Placement::default()
+                };
+                (p, pl)
+            })
+            .collect();
+        for (p, pl) in fresh {
+            self.placement[p as usize] = pl;
+        }
+        // nodes whose findings must be rebuilt: changed figures or search, review, pin or
+        // label; the children of nodes whose fan-out may have changed (single-child chains)
+        // and of renamed nodes (their explanations name the parent)
+        let mut dirty: Vec<bool> = (0..n).map(|i| stat_dirty[i] || search_dirty[i]).collect();
+        let mut renamed = vec![false; n];
+        for i in 0..n {
+            if self.snapshot.review[i] != eff.review[i] || self.snapshot.pinned[i] != eff.pinned[i]
+            {
+                dirty[i] = true;
+                self.snapshot.review[i] = eff.review[i];
+                self.snapshot.pinned[i] = eff.pinned[i];
+            }
+            if self.snapshot.labels[i] != eff.labels[i] {
+                dirty[i] = true;
+                renamed[i] = true;
+                self.snapshot.labels[i].clone_from(&eff.labels[i]);
+            }
+        }
+        for i in 0..n {
+            if stat_dirty[i] || renamed[i] {
+                for &c in eff.tree.children(i as PhraseId) {
+                    dirty[c as usize] = true;
+                }
+            }
+        }
+        let old = std::mem::take(&mut self.report.findings);
+        for f in &old {
+            if f.other.is_some_and(|o| renamed[o as usize]) {
+                dirty[f.node as usize] = true;
+            }
+        }
+        let kept: Vec<Finding> = old
+            .into_iter()
+            .filter(|f| {
+                Rule::from_id(f.rule).is_some_and(Rule::node_local) && !dirty[f.node as usize]
+            })
+            .collect();
+        self.snapshot.parent = new_parent;
+        self.snapshot.placed = new_placed;
+        self.report = assemble_with(
+            g,
+            phrases,
+            eff,
+            problems,
+            &self.cfg,
+            stats,
+            &self.placement,
+            Some((&dirty, kept)),
+        );
+        &self.report
+    }
+}
+
+fn empty_stats() -> Stats {
+    Stats {
+        nodes: Vec::new(),
+        generality: Histogram::of(&[], 1, None),
+        containment: Histogram::of(&[], 1, None),
+        placed: 0,
+        alpha: 0.0,
+        samples: 0,
+    }
+}

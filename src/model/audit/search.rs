@@ -1,0 +1,260 @@
+//! The candidate search of `better-parent`, `near-duplicate` and `unplaced`: exhaustive
+//! for small tables, else a beam over a kept navigation hierarchy (see the module
+//! documentation of [`super`]).
+
+use super::AuditConfig;
+use crate::model::effective::EffectiveTree;
+use crate::model::gaussian::{Gaussians, PhraseId, Sampled, bhattacharyya_coefficient, kl};
+use crate::model::kernels;
+pub(super) use crate::model::stats::Shape as Order;
+use crate::model::stats::{Stats, StatsEngine, quad_form};
+use crate::model::tree::NO_PARENT;
+
+/// Result of the candidate search for one phrase.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub(super) struct Placement {
+    /// Lowest-KL broader node that is placed, not a descendant and not the current parent.
+    pub(super) best: Option<(PhraseId, f64)>,
+    /// Near-duplicate partners with their Bhattacharyya coefficient.
+    pub(super) dups: Vec<(PhraseId, f64)>,
+    /// Containment of the node in `best`, when `best` fits better than the parent.
+    pub(super) best_containment: Option<Sampled>,
+}
+
+/// The kept navigation hierarchy of the pruned search.
+#[derive(Debug, Clone)]
+pub(super) struct CandidateIndex {
+    root: PhraseId,
+    pub(super) children: Vec<Vec<PhraseId>>,
+    /// Phrases not in the hierarchy, always scanned.
+    extra: Vec<PhraseId>,
+}
+
+impl CandidateIndex {
+    pub(super) fn of(eff: &EffectiveTree) -> Self {
+        let n = eff.tree.table_len();
+        CandidateIndex {
+            root: eff.tree.root(),
+            children: (0..n as PhraseId)
+                .map(|p| eff.tree.children(p).to_vec())
+                .collect(),
+            extra: (0..n as PhraseId)
+                .filter(|&p| !eff.tree.is_placed(p))
+                .collect(),
+        }
+    }
+}
+
+/// Everything the candidate search reads.
+pub(super) struct Searcher<'a> {
+    pub(super) g: &'a Gaussians,
+    pub(super) engine: &'a StatsEngine,
+    pub(super) eff: &'a EffectiveTree,
+    pub(super) order: &'a Order,
+    pub(super) index: &'a CandidateIndex,
+    pub(super) cfg: &'a AuditConfig,
+    pub(super) exhaustive: bool,
+}
+
+impl Searcher<'_> {
+    /// KL(c ‖ x) of the diagonal parts (exact for diagonal covariance).
+    fn kl_diag(&self, c: PhraseId, x: PhraseId) -> f64 {
+        let d = self.g.dim();
+        let (mc, mx) = (self.g.mean(c as usize), self.g.mean(x as usize));
+        let vc = self.g.variances(c as usize);
+        let vx = self.g.variances(x as usize);
+        let s = kernels::kl_sum(mc, vc, mx, vx);
+        let ld = &self.engine.diag_log_det;
+        0.5 * (s as f64 - d as f64 + ld[x as usize] - ld[c as usize])
+    }
+
+    /// Exact KL(c ‖ x).
+    pub(super) fn kl_to(&self, c: PhraseId, x: PhraseId) -> f64 {
+        if self.engine.diagonal {
+            self.kl_diag(c, x)
+        } else {
+            kl(&self.g.get(c as usize), &self.g.get(x as usize))
+        }
+    }
+
+    /// Exact BC when the pair passes the cheap bound, else None.
+    fn dup_bc(&self, c: PhraseId, x: PhraseId) -> Option<f64> {
+        let dmax = -self.cfg.duplicate_bc_min.ln();
+        if self.engine.diagonal {
+            let (mc, mx) = (self.g.mean(c as usize), self.g.mean(x as usize));
+            let (vc, vx) = (self.g.variances(c as usize), self.g.variances(x as usize));
+            // D_B ≥ ¼ Σ Δ² / (σ²c + σ²x); skip the exact coefficient when the bound is over
+            let limit = (4.0 * dmax * (1.0 + 1e-4)) as f32;
+            if kernels::mean_term_exceeds(mc, vc, mx, vx, limit) {
+                return None;
+            }
+        } else {
+            // full covariance: for u = Δ, Cauchy–Schwarz gives ΔᵀΣ̄⁻¹Δ ≥ ‖Δ‖⁴ / ΔᵀΣ̄Δ
+            let (gc, gx) = (self.g.get(c as usize), self.g.get(x as usize));
+            let delta: Vec<f64> = gc
+                .mean
+                .iter()
+                .zip(gx.mean)
+                .map(|(&a, &b)| a as f64 - b as f64)
+                .collect();
+            let n2: f64 = delta.iter().map(|v| v * v).sum();
+            let quad = 0.5 * (quad_form(&gc, &delta) + quad_form(&gx, &delta));
+            if quad > 0.0 && n2 * n2 / quad / 8.0 > dmax * (1.0 + 1e-9) {
+                return None;
+            }
+        }
+        let bc = bhattacharyya_coefficient(&self.g.get(c as usize), &self.g.get(x as usize));
+        (bc >= self.cfg.duplicate_bc_min).then_some(bc)
+    }
+
+    pub(super) fn place(&self, c: PhraseId) -> Placement {
+        let mut out = self.search(c);
+        if let (Some((b, kb)), Some(par)) = (out.best, self.eff.tree.parent(c))
+            && kb < self.kl_to(c, par)
+        {
+            out.best_containment = Some(self.engine.containment(self.g, c, b));
+        }
+        out
+    }
+
+    fn search(&self, c: PhraseId) -> Placement {
+        let ldc = self.g.log_det(c as usize);
+        let margin = self.cfg.duplicate_generality_margin;
+        let parent = self.eff.tree.parent(c).unwrap_or(NO_PARENT);
+        let min_ld = ldc + self.cfg.better_parent_broader;
+        let mut out = Placement::default();
+        let mut cands: Vec<(PhraseId, f64)> = Vec::new();
+        let consider = |x: PhraseId,
+                        klx: Option<f64>,
+                        out: &mut Placement,
+                        cands: &mut Vec<(PhraseId, f64)>| {
+            if x == c || !self.eff.tree.is_placed(x) {
+                return;
+            }
+            let ldx = self.g.log_det(x as usize);
+            if (ldx - ldc).abs() <= margin
+                && let Some(bc) = self.dup_bc(c, x)
+            {
+                out.dups.push((x, bc));
+            }
+            if let Some(k) = klx
+                && x != parent
+                && ldx > min_ld
+                && !self.order.in_subtree(c, x)
+            {
+                cands.push((x, k));
+            }
+        };
+        let broader = |x: PhraseId| self.g.log_det(x as usize) > ldc;
+        if self.exhaustive {
+            for x in 0..self.g.len() as PhraseId {
+                let k = (x != c && broader(x)).then(|| self.kl_to(c, x));
+                consider(x, k, &mut out, &mut cands);
+            }
+            out.best = lowest(&cands);
+            return out;
+        }
+        let root = self.index.root;
+        if root != c {
+            let k = broader(root).then(|| self.kl_diag(c, root));
+            consider(root, k, &mut out, &mut cands);
+        }
+        let mut beam = vec![root];
+        let mut next: Vec<(PhraseId, f64)> = Vec::new();
+        while !beam.is_empty() {
+            next.clear();
+            for &b in &beam {
+                for &x in &self.index.children[b as usize] {
+                    if x == c {
+                        continue;
+                    }
+                    if broader(x) {
+                        let k = self.kl_diag(c, x);
+                        consider(x, Some(k), &mut out, &mut cands);
+                        next.push((x, k));
+                    } else {
+                        consider(x, None, &mut out, &mut cands);
+                    }
+                }
+            }
+            // keep the `search_beam` lowest (ties by row); a node reachable twice (repaired
+            // index links) is kept once
+            let by =
+                |a: &(PhraseId, f64), b: &(PhraseId, f64)| a.1.total_cmp(&b.1).then(a.0.cmp(&b.0));
+            let width = self.cfg.search_beam;
+            if next.len() > width {
+                next.select_nth_unstable_by(width - 1, by);
+                next.truncate(width);
+            }
+            next.sort_unstable_by(by);
+            next.dedup_by_key(|e| e.0);
+            beam.clear();
+            beam.extend(next.iter().map(|&(x, _)| x));
+        }
+        for &x in &self.index.extra {
+            let k = (x != c && broader(x)).then(|| self.kl_diag(c, x));
+            consider(x, k, &mut out, &mut cands);
+        }
+        if !self.engine.diagonal {
+            // the beam was steered by the KL of the diagonal parts: rescore the lowest
+            // few exactly
+            let by =
+                |a: &(PhraseId, f64), b: &(PhraseId, f64)| a.1.total_cmp(&b.1).then(a.0.cmp(&b.0));
+            cands.sort_unstable_by(by);
+            cands.dedup_by_key(|e| e.0);
+            cands.truncate(FULL_RESCORE);
+            for e in cands.iter_mut() {
+                e.1 = self.kl_to(c, e.0);
+            }
+        }
+        out.best = lowest(&cands);
+        out.dups.sort_by_key(|e| e.0);
+        out.dups.dedup_by_key(|e| e.0);
+        out
+    }
+}
+
+/// Full covariance: candidates rescored with the exact KL after the pruned search.
+const FULL_RESCORE: usize = 8;
+
+/// The candidate with the lowest score (ties: the lower row).
+fn lowest(cands: &[(PhraseId, f64)]) -> Option<(PhraseId, f64)> {
+    cands
+        .iter()
+        .copied()
+        .min_by(|a, b| a.1.total_cmp(&b.1).then(a.0.cmp(&b.0)))
+}
+
+/// A placed node whose placement rules fire (better parent, weak inclusion, inversion):
+/// the pruned search's index repair. It applies the thresholds of those three rules
+/// (`rules/inverted_generality.rs`, `weak_inclusion.rs`, `better_parent.rs`, without the
+/// containment condition of the last), so a change to them belongs here too.
+pub(super) fn suspicious(
+    g: &Gaussians,
+    eff: &EffectiveTree,
+    cfg: &AuditConfig,
+    stats: &Stats,
+    placement: &[Placement],
+    p: PhraseId,
+) -> bool {
+    let i = p as usize;
+    let Some(par) = eff.tree.parent(p) else {
+        return false;
+    };
+    let s = &stats.nodes[i];
+    let inverted = g.log_det(i) - g.log_det(par as usize) > cfg.inversion_margin;
+    let weak = s.containment.is_some_and(|c| c.value < cfg.containment_min);
+    let better = match (placement[i].best, s.kl_to_parent) {
+        (Some((_, kb)), Some(kp)) => {
+            kp - kb > cfg.better_parent_margin.max(cfg.better_parent_ratio * kp)
+        }
+        _ => false,
+    };
+    inverted || weak || better
+}
+
+/// Placed nodes and unplaced phrases get a candidate search; aliases and exclusions do not.
+pub(super) fn needs_search(eff: &EffectiveTree, p: PhraseId) -> bool {
+    let i = p as usize;
+    eff.tree.is_placed(p) || (eff.alias_of[i].is_none() && !eff.excluded[i])
+}
