@@ -355,3 +355,45 @@ fn author_changes_arrive_as_an_action() {
     app.apply(Action::SetAuthor("second reviewer".into()));
     assert_eq!(app.settings.author, "second reviewer");
 }
+
+#[test]
+fn the_sign_off_dialog_sets_the_author_before_its_edit() {
+    let (_t, app) = demo_app();
+    let mut h = Harness::builder()
+        .with_size([1280.0, 800.0])
+        .with_max_steps(12)
+        .build_ui_state(|ui, app: &mut App| app.ui(ui), app);
+    h.run();
+    h.state_mut().apply(Action::Dialog(
+        treewright::gui::context::DialogRequest::Signoff,
+    ));
+    h.run();
+    h.get_by_label("Sign off the tree");
+    // replace the reviewer (prefilled with the author) by a new name
+    // the reviewer field (its text run carries the same value)
+    h.get_all_by_value("tester").next().unwrap().click();
+    h.run();
+    h.event(egui::Event::Key {
+        key: egui::Key::A,
+        physical_key: None,
+        pressed: true,
+        repeat: false,
+        modifiers: egui::Modifiers::COMMAND,
+    });
+    h.event(egui::Event::Text("second reviewer".into()));
+    h.run();
+    h.get_by_label("Sign off").click();
+    h.run();
+    h.get_by_label("SIGNED OFF");
+    let app = h.state();
+    assert_eq!(app.settings.author, "second reviewer");
+    let last = app.doc.layer.edits.last().unwrap();
+    assert!(
+        matches!(&last.edit, treewright::model::edit::Edit::Signoff { reviewer, .. }
+            if reviewer == "second reviewer"),
+        "{:?}",
+        last.edit
+    );
+    // the record's author is the new name: SetAuthor was applied before the edit
+    assert_eq!(last.author, "second reviewer");
+}
