@@ -3,6 +3,18 @@
 //!
 //! Layering: panels and dialogs import this module (and the model), never `app.rs`; the
 //! app shell builds a [`ViewCtx`] each frame, draws the panels and applies the actions.
+//!
+//! Adding a panel:
+//! 1. `src/gui/<name>_panel.rs` with a struct holding only view state, and
+//!    `impl Panel for ...` (`kind` and `ui`); import from `super::context` and the model.
+//! 2. A [`PanelKind`] variant and its place in [`PanelKind::ALL`].
+//! 3. Whatever it asks the shell to do becomes an [`Action`] variant, applied in
+//!    `App::apply`; whatever new it reads becomes a [`ViewCtx`] field filled in `app.rs`'s
+//!    `view_ctx` (costly questions go on [`DocQueries`]).
+//! 4. In `app.rs`: a field for the panel, its entry in `App::panel_kinds`, and a `draw` call
+//!    where it belongs in `App::ui` (behind an [`Area`] and a `Settings` flag if it can hide).
+//! 5. Tests: `tests/gui_panels.rs` then checks the kind is held and drawn and that the file
+//!    does not import `app` or `doc`; add a kittest flow in `tests/gui.rs` through its labels.
 
 use std::path::PathBuf;
 use std::time::Duration;
