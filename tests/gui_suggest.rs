@@ -34,7 +34,7 @@ fn pick_a_phrase_see_offers_personalise_and_bulk_check() {
                 revision: 0,
                 selected: None,
             };
-            let picked = s.panel.ui(ui, &view);
+            let picked = s.panel.show(ui, &view);
             s.selected.extend(picked);
         },
         state,

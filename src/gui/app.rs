@@ -1,234 +1,27 @@
 //! The app shell: owns the document and the selection, lays out the panels, drains the
 //! [`Action`]s they return and applies them (edits only through the override layer).
 
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use std::time::{Duration, Instant};
 
-use serde::{Deserialize, Serialize};
+use crate::model::PhraseId;
+use crate::model::edit::Edit;
 
-use crate::model::audit::{AuditReport, Severity};
-use crate::model::builder::BuildReport;
-use crate::model::edit::{Edit, EditRecord, ReviewStatus};
-use crate::model::effective::EffectiveTree;
-use crate::model::tree::TreeFile;
-use crate::model::{PhraseId, Project};
-
+pub use super::context::{
+    AUTOSAVE_EVERY, Action, Area, Central, DialogRequest, ExportFormat, MAX_RECENT, PanelKind,
+    PickerKind, SETTINGS_KEY, Settings, ViewCtx,
+};
+use super::context::{DocQueries, Panel, SignState};
 use super::dialogs::{self, Dialog};
 use super::doc::Doc;
 use super::ellipse_panel::EllipsePanel;
 use super::findings_panel::FindingsPanel;
+use super::menu_bar::MenuBar;
 use super::stats_panel::StatsPanel;
-use super::suggest_panel::{SuggestPanel, SuggestView};
+use super::status_bar::StatusBar;
+use super::suggest_panel::SuggestPanel;
 use super::tree_panel::TreePanel;
-use super::{autosave, menu_bar, shortcuts, status_bar};
-
-/// Which kind of node the searchable picker chooses.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum PickerKind {
-    /// A new parent for the node.
-    Reparent,
-    /// The node to merge into.
-    Merge,
-}
-
-/// A dialog a view asks the shell to open.
-#[derive(Debug, Clone, PartialEq)]
-pub enum DialogRequest {
-    /// Rename a node.
-    Rename(PhraseId),
-    /// Record a review decision with a comment.
-    Review(PhraseId, ReviewStatus),
-    /// Pick a target node for a reparent or merge.
-    Picker(PickerKind, PhraseId),
-    /// Build (or rebuild) the base tree.
-    Build,
-    /// Sign off the effective tree.
-    Signoff,
-    /// Compare trees.
-    Diff,
-    /// Export the effective tree.
-    Export,
-    /// Keyboard shortcuts.
-    Shortcuts,
-    /// About treewright.
-    About,
-}
-
-/// Something a panel asks the shell to do.
-#[derive(Debug, Clone, PartialEq)]
-pub enum Action {
-    /// Select one node (replacing the selection).
-    Select(PhraseId),
-    /// Add a node to the selection or remove it (Ctrl-click).
-    ToggleSelect(PhraseId),
-    /// Replace the selection (Shift-click range, "select with children").
-    SelectMany(Vec<PhraseId>),
-    /// Select a node and scroll the tree to it, expanding its ancestors.
-    Reveal(PhraseId),
-    /// Apply one edit through the override layer.
-    Edit(Edit),
-    /// Apply one edit with a note stored beside it.
-    EditWithNote(Edit, String),
-    /// Undo the last edit.
-    Undo,
-    /// Redo the last undone edit.
-    Redo,
-    /// Write the override file.
-    Save,
-    /// Open a project folder.
-    Open(PathBuf),
-    /// Pick a project folder with the system dialog and open it.
-    Browse,
-    /// Open the Fernhollow demo project.
-    OpenDemo,
-    /// Open a dialog.
-    Dialog(DialogRequest),
-    /// Replace the base tree with a built one (edits are re-applied on top).
-    NewBase(Box<TreeFile>, Box<Option<BuildReport>>),
-    /// Show or hide a panel.
-    TogglePanel(PanelKind),
-    /// Switch light / dark.
-    SetDark(bool),
-    /// Expand every node of the tree panel.
-    ExpandAll,
-    /// Collapse every node but the root.
-    CollapseAll,
-    /// Show a message in the status bar.
-    Notify(String),
-    /// Put the keyboard focus into the tree's search box.
-    FocusSearch,
-    /// Write an export of the effective tree.
-    Export {
-        /// File format.
-        format: ExportFormat,
-        /// Output file.
-        path: PathBuf,
-        /// SKOS base IRI.
-        base_iri: String,
-        /// SKOS concept-scheme label.
-        scheme_label: String,
-    },
-    /// Push edits recovered from the crash-recovery file (keeping their authors and times).
-    Restore(Vec<EditRecord>),
-    /// Delete the crash-recovery file without restoring it.
-    DiscardRecovery,
-    /// Close the window (asks first when edits are unsaved).
-    Quit,
-    /// Save, then close the window if the save worked.
-    SaveAndQuit,
-    /// Close the window, dropping unsaved edits and the recovery file.
-    DiscardAndQuit,
-}
-
-/// Export file formats.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum ExportFormat {
-    /// SKOS concept scheme in Turtle.
-    Skos,
-    /// One row per node.
-    Csv,
-    /// The effective tree as JSON.
-    Json,
-}
-
-impl ExportFormat {
-    /// File extension.
-    pub fn extension(self) -> &'static str {
-        match self {
-            ExportFormat::Skos => "ttl",
-            ExportFormat::Csv => "csv",
-            ExportFormat::Json => "json",
-        }
-    }
-}
-
-/// The side panels that can be hidden.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum PanelKind {
-    /// The tree (left).
-    Tree,
-    /// Statistics and findings (right).
-    Inspector,
-    /// The ellipse projection (centre).
-    Ellipses,
-}
-
-/// Settings kept between sessions (eframe persistence).
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-#[serde(default)]
-pub struct Settings {
-    /// Most recently opened project folders, newest first.
-    pub recent: Vec<PathBuf>,
-    /// Dark theme.
-    pub dark: bool,
-    /// Show the tree panel.
-    pub show_tree: bool,
-    /// Show the statistics and findings panel.
-    pub show_inspector: bool,
-    /// Show the ellipse projection.
-    pub show_ellipses: bool,
-    /// Name stored with every edit and offered as reviewer.
-    pub author: String,
-    /// What the centre of the window shows.
-    pub central: Central,
-}
-
-/// The views of the centre area.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
-#[serde(rename_all = "kebab-case")]
-pub enum Central {
-    /// The ellipse projection.
-    #[default]
-    Ellipses,
-    /// What shoppers would be offered for a phrase.
-    Suggestions,
-}
-
-impl Default for Settings {
-    fn default() -> Self {
-        Settings {
-            recent: Vec::new(),
-            dark: false,
-            show_tree: true,
-            show_inspector: true,
-            show_ellipses: true,
-            author: std::env::var("USER")
-                .ok()
-                .filter(|u| !u.is_empty())
-                .unwrap_or_else(|| "curator".into()),
-            central: Central::Ellipses,
-        }
-    }
-}
-
-/// Key of the settings in eframe's storage.
-pub const SETTINGS_KEY: &str = "treewright-settings";
-/// How many recent projects are kept.
-pub const MAX_RECENT: usize = 8;
-/// How often unsaved edits are written to the recovery file.
-pub const AUTOSAVE_EVERY: Duration = Duration::from_secs(20);
-
-/// What every view reads.
-pub struct ViewCtx<'a> {
-    /// The document.
-    pub doc: &'a Doc,
-    /// Its project.
-    pub project: &'a Project,
-    /// Its effective tree, if it has a tree.
-    pub eff: Option<&'a EffectiveTree>,
-    /// Selected phrases (the first is the anchor).
-    pub selection: &'a [PhraseId],
-    /// Worst open finding of every phrase.
-    pub worst: &'a [Option<Severity>],
-    /// The audit.
-    pub report: Option<&'a AuditReport>,
-    /// Changes whenever the effective tree or the audit changes.
-    pub generation: u64,
-    /// Would an edit apply now? (`Err` says why not.)
-    pub check: &'a dyn Fn(&Edit) -> Result<(), String>,
-    /// Move the keyboard focus to the search box this frame.
-    pub focus_search: bool,
-}
+use super::{autosave, shortcuts};
 
 /// The workbench window.
 pub struct App {
@@ -244,6 +37,10 @@ pub struct App {
     stats_panel: StatsPanel,
     findings_panel: FindingsPanel,
     suggest_panel: SuggestPanel,
+    menu_bar: MenuBar,
+    status_bar: StatusBar,
+    /// Panels drawn in the last frame, in drawing order.
+    drawn: Vec<PanelKind>,
     /// The open dialog, if any.
     pub dialog: Option<Dialog>,
     /// Last message for the status bar, and whether it is an error.
@@ -272,6 +69,9 @@ impl App {
             stats_panel: StatsPanel::default(),
             findings_panel: FindingsPanel::default(),
             suggest_panel: SuggestPanel::default(),
+            menu_bar: MenuBar,
+            status_bar: StatusBar,
+            drawn: Vec::new(),
             dialog: None,
             message: None,
             allow_close: false,
@@ -386,7 +186,9 @@ impl App {
             }
             Action::OpenDemo => self.apply(Action::Open(crate::model::sample::demo_dir())),
             Action::Dialog(req) => {
-                if let Some(d) = dialogs::open(req, &self.doc, &self.selection, &self.settings) {
+                let doc = &self.doc;
+                let view = view_ctx(doc, &self.settings, &self.selection, None, false);
+                if let Some(d) = dialogs::open(req, &view) {
                     self.dialog = Some(d);
                 }
             }
@@ -404,18 +206,21 @@ impl App {
                             "New base tree in use; {stale} edit(s) no longer apply (before: {before})"
                         ));
                         if stale > 0 {
-                            self.dialog = Some(Dialog::Stale(dialogs::stale_list(&self.doc)));
+                            self.dialog =
+                                Some(Dialog::Stale(dialogs::stale_list(&self.doc.problems)));
                         }
                     }
                     Err(e) => self.fail(e),
                 }
             }
-            Action::TogglePanel(k) => match k {
-                PanelKind::Tree => self.settings.show_tree ^= true,
-                PanelKind::Inspector => self.settings.show_inspector ^= true,
-                PanelKind::Ellipses => self.settings.show_ellipses ^= true,
+            Action::ToggleArea(a) => match a {
+                Area::Tree => self.settings.show_tree ^= true,
+                Area::Inspector => self.settings.show_inspector ^= true,
+                Area::Ellipses => self.settings.show_ellipses ^= true,
             },
             Action::SetDark(d) => self.settings.dark = d,
+            Action::SetCentral(c) => self.settings.central = c,
+            Action::SetAuthor(name) => self.settings.author = name,
             Action::ExpandAll => self.tree_panel.expand_all(),
             Action::CollapseAll => {
                 if let Some(eff) = &self.doc.eff {
@@ -519,6 +324,25 @@ impl App {
         }
     }
 
+    /// The kinds of the panels this app holds, each drawn through [`Panel::ui`].
+    pub fn panel_kinds(&self) -> Vec<PanelKind> {
+        let panels: [&dyn Panel; 7] = [
+            &self.menu_bar,
+            &self.status_bar,
+            &self.tree_panel,
+            &self.findings_panel,
+            &self.stats_panel,
+            &self.ellipse_panel,
+            &self.suggest_panel,
+        ];
+        panels.iter().map(|p| p.kind()).collect()
+    }
+
+    /// The panels drawn in the last frame, in drawing order (hidden areas are left out).
+    pub fn drawn_panels(&self) -> &[PanelKind] {
+        &self.drawn
+    }
+
     /// Draw one frame into the window's root `ui`.
     pub fn ui(&mut self, ui: &mut egui::Ui) {
         let ctx = ui.ctx().clone();
@@ -548,25 +372,25 @@ impl App {
         }
 
         let focus_search = std::mem::take(&mut self.focus_search);
-        let doc = &self.doc;
-        let check = |e: &Edit| doc.check(e);
-        let view = ViewCtx {
-            doc,
-            project: &doc.project,
-            eff: doc.eff.as_ref(),
-            selection: &self.selection,
-            worst: &doc.worst,
-            report: doc.report(),
-            generation: doc.generation,
-            check: &check,
+        let view = view_ctx(
+            &self.doc,
+            &self.settings,
+            &self.selection,
+            self.message.as_ref(),
             focus_search,
+        );
+        let drawn = &mut self.drawn;
+        drawn.clear();
+        let mut draw = |panel: &mut dyn Panel, ui: &mut egui::Ui, actions: &mut Vec<Action>| {
+            drawn.push(panel.kind());
+            actions.extend(panel.ui(ui, &view));
         };
 
         egui::Panel::top("menu").show(ui, |ui| {
-            actions.extend(menu_bar::ui(ui, &view, &self.settings, self.is_dirty()));
+            draw(&mut self.menu_bar, ui, &mut actions);
         });
         egui::Panel::bottom("status").show(ui, |ui| {
-            status_bar::ui(ui, &view, self.message.as_ref());
+            draw(&mut self.status_bar, ui, &mut actions);
         });
         if self.settings.show_tree {
             egui::Panel::left("tree")
@@ -574,7 +398,7 @@ impl App {
                 .default_size(360.0)
                 .min_size(220.0)
                 .show(ui, |ui| {
-                    actions.extend(self.tree_panel.ui(ui, &view));
+                    draw(&mut self.tree_panel, ui, &mut actions);
                 });
         }
         if self.settings.show_inspector {
@@ -584,45 +408,32 @@ impl App {
                 .min_size(260.0)
                 .show(ui, |ui| {
                     // findings on top (the review workflow), statistics of the selection below
-                    let list = (ui.available_height() * 0.42).max(160.0);
-                    actions.extend(self.findings_panel.ui(ui, &view, list));
+                    draw(&mut self.findings_panel, ui, &mut actions);
                     ui.separator();
                     egui::ScrollArea::vertical()
                         .id_salt("stats-scroll")
                         .auto_shrink([false, false])
                         .show(ui, |ui| {
-                            actions.extend(self.stats_panel.ui(ui, &view));
+                            draw(&mut self.stats_panel, ui, &mut actions);
                         });
                 });
         }
         egui::CentralPanel::default().show(ui, |ui| {
             ui.horizontal(|ui| {
-                ui.selectable_value(&mut self.settings.central, Central::Ellipses, "Ellipses");
-                ui.selectable_value(
-                    &mut self.settings.central,
-                    Central::Suggestions,
-                    "Shopper suggestions",
-                );
+                let mut central = self.settings.central;
+                ui.selectable_value(&mut central, Central::Ellipses, "Ellipses");
+                ui.selectable_value(&mut central, Central::Suggestions, "Shopper suggestions");
+                if central != self.settings.central {
+                    actions.push(Action::SetCentral(central));
+                }
             });
             ui.separator();
-            match (self.settings.central, view.eff) {
-                (Central::Suggestions, Some(eff)) => {
-                    let sv = SuggestView {
-                        project: view.project,
-                        eff,
-                        revision: view.generation,
-                        selected: view.selection.first().copied(),
-                    };
-                    let picked = self.suggest_panel.ui(ui, &sv);
-                    actions.extend(picked.into_iter().take(1).map(Action::Reveal));
+            match self.settings.central {
+                Central::Suggestions => draw(&mut self.suggest_panel, ui, &mut actions),
+                Central::Ellipses if self.settings.show_ellipses => {
+                    draw(&mut self.ellipse_panel, ui, &mut actions);
                 }
-                (Central::Suggestions, None) => {
-                    ui.label("Suggestions need a tree.");
-                }
-                (Central::Ellipses, _) if self.settings.show_ellipses => {
-                    actions.extend(self.ellipse_panel.ui(ui, &view));
-                }
-                (Central::Ellipses, _) => {
+                Central::Ellipses => {
                     ui.label("The ellipse view is hidden (View > Ellipse projection).");
                 }
             }
@@ -634,9 +445,6 @@ impl App {
         if let Some(d) = &mut self.dialog {
             let out = d.ui(&ctx, &view);
             actions.extend(out.actions);
-            if let Some(name) = out.author {
-                self.settings.author = name;
-            }
             if out.close {
                 self.dialog = None;
             }
@@ -653,6 +461,53 @@ impl App {
         if self.dialog.as_ref().is_some_and(Dialog::is_busy) {
             ctx.request_repaint_after(Duration::from_millis(50));
         }
+    }
+}
+
+/// The document's answers to the views' costly questions.
+impl DocQueries for Doc {
+    fn check(&self, edit: &Edit) -> Result<(), String> {
+        Doc::check(self, edit)
+    }
+
+    fn outside(&self) -> (Vec<PhraseId>, Vec<PhraseId>) {
+        Doc::outside(self)
+    }
+
+    fn sign_state(&self) -> SignState {
+        Doc::sign_state(self)
+    }
+}
+
+/// What the views read this frame: the one place that turns the document into a [`ViewCtx`].
+fn view_ctx<'a>(
+    doc: &'a Doc,
+    settings: &'a Settings,
+    selection: &'a [PhraseId],
+    message: Option<&'a (String, bool)>,
+    focus_search: bool,
+) -> ViewCtx<'a> {
+    ViewCtx {
+        project: &doc.project,
+        eff: doc.eff.as_ref(),
+        selection,
+        worst: &doc.worst,
+        report: doc.report(),
+        auditing: doc.is_auditing(),
+        open_by_severity: doc.open_by_severity,
+        approved: doc.approved(),
+        unreviewed: doc.unreviewed(),
+        tree_hash: doc.tree_hash.as_deref(),
+        problems: &doc.problems,
+        build_report: doc.build_report.as_ref(),
+        dirty: doc.layer.is_dirty(),
+        can_undo: doc.layer.can_undo(),
+        can_redo: doc.layer.can_redo(),
+        generation: doc.generation,
+        settings,
+        message,
+        focus_search,
+        queries: doc,
     }
 }
 

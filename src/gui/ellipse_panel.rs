@@ -11,8 +11,8 @@ use crate::model::PhraseId;
 use crate::model::gaussian::{GaussianView, Sampled, containment};
 use crate::model::projection::{self, Gaussian2, Projection};
 
-use super::app::{Action, ViewCtx};
 use super::badges::ROLE_COLOURS;
+use super::context::{Action, Panel, PanelKind, ViewCtx};
 
 /// Most children / siblings drawn (the rest are listed as "… and N more").
 pub const MAX_RELATIVES: usize = 40;
@@ -307,9 +307,14 @@ impl EllipsePanel {
         }
         self.hover_containment.get(&key).copied()
     }
+}
 
-    /// Draw the panel.
-    pub fn ui(&mut self, ui: &mut egui::Ui, view: &ViewCtx) -> Vec<Action> {
+impl Panel for EllipsePanel {
+    fn kind(&self) -> PanelKind {
+        PanelKind::Ellipses
+    }
+
+    fn ui(&mut self, ui: &mut egui::Ui, view: &ViewCtx) -> Vec<Action> {
         let mut actions = Vec::new();
         ui.heading("Ellipse projection");
         self.controls(ui, view);

@@ -9,8 +9,8 @@ use egui::{RichText, Sense};
 use crate::model::audit::{Finding, Severity};
 use crate::model::edit::{Edit, ReviewStatus};
 
-use super::app::{Action, ViewCtx};
 use super::badges;
+use super::context::{Action, Panel, PanelKind, ViewCtx};
 
 /// Height of one finding row (two lines) without spacing.
 const ROW_HEIGHT: f32 = 44.0;
@@ -112,14 +112,20 @@ impl FindingsPanel {
             fix_ok: HashMap::new(),
         });
     }
+}
 
-    /// Draw the panel.
-    /// Draw the panel; the list scrolls within `list_height` points.
-    pub fn ui(&mut self, ui: &mut egui::Ui, view: &ViewCtx, list_height: f32) -> Vec<Action> {
+impl Panel for FindingsPanel {
+    fn kind(&self) -> PanelKind {
+        PanelKind::Findings
+    }
+
+    /// Draw the panel; the list takes 42 % of the height (at least 160 points) and scrolls.
+    fn ui(&mut self, ui: &mut egui::Ui, view: &ViewCtx) -> Vec<Action> {
+        let list_height = (ui.available_height() * 0.42).max(160.0);
         let mut actions = Vec::new();
         ui.heading("Findings");
         let Some(report) = view.report else {
-            if view.doc.is_auditing() {
+            if view.auditing {
                 ui.horizontal(|ui| {
                     ui.spinner();
                     ui.label(format!(
@@ -228,7 +234,7 @@ impl FindingsPanel {
                                 let why = cache
                                     .fix_ok
                                     .entry(i)
-                                    .or_insert_with(|| (view.check)(edit).err())
+                                    .or_insert_with(|| view.check(edit).err())
                                     .clone();
                                 let b = ui
                                     .add_enabled(

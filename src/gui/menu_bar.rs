@@ -2,7 +2,7 @@
 
 use egui::Button;
 
-use super::app::{Action, DialogRequest, PanelKind, Settings, ViewCtx};
+use super::context::{Action, Area, DialogRequest, Panel, PanelKind, ViewCtx};
 use super::shortcuts::{self, Command};
 
 fn item(ui: &mut egui::Ui, label: &str, cmd: Option<Command>, enabled: bool) -> bool {
@@ -17,8 +17,23 @@ fn item(ui: &mut egui::Ui, label: &str, cmd: Option<Command>, enabled: bool) -> 
     clicked
 }
 
-/// Draw the menu bar.
-pub fn ui(ui: &mut egui::Ui, view: &ViewCtx, settings: &Settings, dirty: bool) -> Vec<Action> {
+/// The menu bar (no state of its own).
+#[derive(Debug, Default)]
+pub struct MenuBar;
+
+impl Panel for MenuBar {
+    fn kind(&self) -> PanelKind {
+        PanelKind::MenuBar
+    }
+
+    /// Draw the menu bar.
+    fn ui(&mut self, ui: &mut egui::Ui, view: &ViewCtx) -> Vec<Action> {
+        menu(ui, view)
+    }
+}
+
+fn menu(ui: &mut egui::Ui, view: &ViewCtx) -> Vec<Action> {
+    let (settings, dirty) = (view.settings, view.dirty);
     let mut actions = Vec::new();
     let has_tree = view.eff.is_some();
     egui::MenuBar::new().ui(ui, |ui| {
@@ -52,10 +67,10 @@ pub fn ui(ui: &mut egui::Ui, view: &ViewCtx, settings: &Settings, dirty: bool) -
             }
         });
         ui.menu_button("Edit", |ui| {
-            if item(ui, "Undo", Some(Command::Undo), view.doc.layer.can_undo()) {
+            if item(ui, "Undo", Some(Command::Undo), view.can_undo) {
                 actions.push(Action::Undo);
             }
-            if item(ui, "Redo", Some(Command::Redo), view.doc.layer.can_redo()) {
+            if item(ui, "Redo", Some(Command::Redo), view.can_redo) {
                 actions.push(Action::Redo);
             }
             ui.separator();
@@ -92,15 +107,15 @@ pub fn ui(ui: &mut egui::Ui, view: &ViewCtx, settings: &Settings, dirty: bool) -
         ui.menu_button("View", |ui| {
             let mut t = settings.show_tree;
             if ui.checkbox(&mut t, "Tree panel").clicked() {
-                actions.push(Action::TogglePanel(PanelKind::Tree));
+                actions.push(Action::ToggleArea(Area::Tree));
             }
             let mut e = settings.show_ellipses;
             if ui.checkbox(&mut e, "Ellipse projection").clicked() {
-                actions.push(Action::TogglePanel(PanelKind::Ellipses));
+                actions.push(Action::ToggleArea(Area::Ellipses));
             }
             let mut i = settings.show_inspector;
             if ui.checkbox(&mut i, "Statistics and findings").clicked() {
-                actions.push(Action::TogglePanel(PanelKind::Inspector));
+                actions.push(Action::ToggleArea(Area::Inspector));
             }
             ui.separator();
             if item(ui, "Light theme", None, settings.dark) {

@@ -1,5 +1,6 @@
-//! The desktop workbench (eframe/egui). Panels read the model and emit [`Action`]s; only
-//! the app shell applies them, and edits go through the override layer.
+//! The desktop workbench (eframe/egui). Panels implement [`Panel`]: they read a [`ViewCtx`]
+//! and return [`Action`]s; only the app shell (`app.rs`) applies them, and edits go through
+//! the override layer. Panels and dialogs import [`context`], never `app`.
 
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -7,6 +8,7 @@ use std::process::ExitCode;
 pub mod app;
 pub mod autosave;
 pub mod badges;
+pub mod context;
 pub mod dialogs;
 pub mod doc;
 pub mod ellipse_panel;
@@ -18,7 +20,8 @@ pub mod status_bar;
 pub mod suggest_panel;
 pub mod tree_panel;
 
-pub use app::{Action, App, Settings};
+pub use app::App;
+pub use context::{Action, Panel, PanelKind, Settings, ViewCtx};
 pub use doc::Doc;
 
 /// Application id (window class and the folder of the persisted settings).
@@ -55,7 +58,7 @@ pub fn run(project: Option<PathBuf>, select: Option<String>) -> ExitCode {
         Box::new(move |cc| {
             let settings: Settings = cc
                 .storage
-                .and_then(|s| eframe::get_value(s, app::SETTINGS_KEY))
+                .and_then(|s| eframe::get_value(s, context::SETTINGS_KEY))
                 .unwrap_or_default();
             let mut app = App::new(doc, settings);
             if let Some(id) = select

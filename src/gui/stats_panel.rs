@@ -8,8 +8,8 @@ use egui_plot::{Bar, BarChart, Line, MarkerShape, Plot, PlotPoints, Points, VLin
 use crate::model::PhraseId;
 use crate::model::stats::sibling_overlap;
 
-use super::app::{Action, ViewCtx};
 use super::badges;
+use super::context::{Action, Panel, PanelKind, ViewCtx};
 
 /// Histogram bins.
 const BINS: usize = 24;
@@ -113,9 +113,14 @@ impl StatsPanel {
             Some((owner, kids, m))
         });
     }
+}
 
-    /// Draw the panel.
-    pub fn ui(&mut self, ui: &mut egui::Ui, view: &ViewCtx) -> Vec<Action> {
+impl Panel for StatsPanel {
+    fn kind(&self) -> PanelKind {
+        PanelKind::Stats
+    }
+
+    fn ui(&mut self, ui: &mut egui::Ui, view: &ViewCtx) -> Vec<Action> {
         let mut actions = Vec::new();
         ui.heading("Statistics");
         let Some(&p) = view.selection.first() else {
@@ -249,7 +254,7 @@ impl StatsPanel {
             }
         }
 
-        if let Some(report) = view.doc.build_report.as_ref()
+        if let Some(report) = view.build_report
             && let Some(nr) = report.node(view.project.phrases.id(p))
             && !nr.k_tried.is_empty()
         {

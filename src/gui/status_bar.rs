@@ -3,13 +3,27 @@
 
 use crate::model::audit::Severity;
 
-use super::app::ViewCtx;
 use super::badges;
-use super::doc::{SignState, severity_index};
+use super::context::{Action, Panel, PanelKind, SignState, ViewCtx, severity_index};
 
-/// Draw the status bar.
-pub fn ui(ui: &mut egui::Ui, view: &ViewCtx, message: Option<&(String, bool)>) {
-    let doc = view.doc;
+/// The status bar (no state of its own).
+#[derive(Debug, Default)]
+pub struct StatusBar;
+
+impl Panel for StatusBar {
+    fn kind(&self) -> PanelKind {
+        PanelKind::StatusBar
+    }
+
+    /// Draw the status bar; it asks for nothing.
+    fn ui(&mut self, ui: &mut egui::Ui, view: &ViewCtx) -> Vec<Action> {
+        status(ui, view);
+        Vec::new()
+    }
+}
+
+fn status(ui: &mut egui::Ui, view: &ViewCtx) {
+    let message = view.message;
     ui.horizontal_wrapped(|ui| {
         ui.label(format!("{} phrases", view.project.phrases.len()));
         ui.separator();
@@ -22,7 +36,7 @@ pub fn ui(ui: &mut egui::Ui, view: &ViewCtx, message: Option<&(String, bool)>) {
             }
         }
         ui.separator();
-        if doc.is_auditing() {
+        if view.auditing {
             ui.spinner();
             ui.label("auditing…");
             ui.separator();
@@ -31,12 +45,12 @@ pub fn ui(ui: &mut egui::Ui, view: &ViewCtx, message: Option<&(String, bool)>) {
             for s in [Severity::Error, Severity::Warning, Severity::Info] {
                 let (t, tip) = badges::severity(s);
                 ui.label(t).on_hover_text(tip);
-                ui.label(format!("{}", doc.open_by_severity[severity_index(s)]));
+                ui.label(format!("{}", view.open_by_severity[severity_index(s)]));
             }
             ui.label("open findings");
             ui.separator();
         }
-        if doc.layer.is_dirty() {
+        if view.dirty {
             ui.label(badges::pill("UNSAVED EDITS", badges::ORANGE))
                 .on_hover_text("Edits not yet written to the override file (Ctrl+S saves)");
         } else {
@@ -46,12 +60,12 @@ pub fn ui(ui: &mut egui::Ui, view: &ViewCtx, message: Option<&(String, bool)>) {
         if let Some(eff) = view.eff {
             ui.label(format!(
                 "reviewed: {} approved / {} nodes",
-                doc.approved(),
+                view.approved,
                 eff.tree.node_count()
             ));
             ui.separator();
         }
-        match doc.sign_state() {
+        match view.queries.sign_state() {
             SignState::Unsigned => {
                 ui.label("not signed off");
             }
@@ -66,11 +80,11 @@ pub fn ui(ui: &mut egui::Ui, view: &ViewCtx, message: Option<&(String, bool)>) {
                     ));
             }
         }
-        if !doc.problems.is_empty() {
+        if !view.problems.is_empty() {
             ui.separator();
-            ui.label(format!("{} edit(s) do not apply", doc.problems.len()))
+            ui.label(format!("{} edit(s) do not apply", view.problems.len()))
                 .on_hover_text(
-                    doc.problems
+                    view.problems
                         .iter()
                         .map(|p| badges::plain(&format!("#{} {}: {}", p.index + 1, p.op, p.reason)))
                         .collect::<Vec<_>>()

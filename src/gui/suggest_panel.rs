@@ -14,6 +14,8 @@ use crate::model::suggest::{
     bulk_nodes, suggest,
 };
 
+use super::context::{Action, Panel, PanelKind, ViewCtx};
+
 /// Column the bulk table is sorted by.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum BulkSort {
@@ -95,6 +97,28 @@ pub struct SuggestView<'a> {
     pub selected: Option<PhraseId>,
 }
 
+impl Panel for SuggestPanel {
+    fn kind(&self) -> PanelKind {
+        PanelKind::Suggestions
+    }
+
+    /// Draw the panel; a picked phrase is revealed in the tree.
+    fn ui(&mut self, ui: &mut egui::Ui, ctx: &ViewCtx) -> Vec<Action> {
+        let Some(eff) = ctx.eff else {
+            ui.label("Suggestions need a tree.");
+            return Vec::new();
+        };
+        let view = SuggestView {
+            project: ctx.project,
+            eff,
+            revision: ctx.generation,
+            selected: ctx.selection.first().copied(),
+        };
+        let picked = self.show(ui, &view);
+        picked.into_iter().take(1).map(Action::Reveal).collect()
+    }
+}
+
 impl SuggestPanel {
     /// Is a bulk check running?
     pub fn bulk_running(&self) -> bool {
@@ -174,8 +198,9 @@ impl SuggestPanel {
         }
     }
 
-    /// Draw the panel; returns the phrases the user asked to select.
-    pub fn ui(&mut self, ui: &mut egui::Ui, view: &SuggestView) -> Vec<PhraseId> {
+    /// Draw the panel for `view`; returns the phrases the user asked to select. (The
+    /// [`Panel`] implementation builds the view from the [`ViewCtx`].)
+    pub fn show(&mut self, ui: &mut egui::Ui, view: &SuggestView) -> Vec<PhraseId> {
         let mut select = Vec::new();
         if self.poll() {
             ui.ctx().request_repaint();

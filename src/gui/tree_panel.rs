@@ -7,8 +7,8 @@ use egui::{Color32, Key, Modifiers, RichText, Sense, vec2};
 use crate::model::edit::{Edit, ReviewStatus};
 use crate::model::{PhraseId, Tree};
 
-use super::app::{Action, DialogRequest, PickerKind, ViewCtx};
 use super::badges;
+use super::context::{Action, DialogRequest, Panel, PanelKind, PickerKind, ViewCtx};
 
 /// Height of one row in points (without item spacing).
 pub const ROW_HEIGHT: f32 = 20.0;
@@ -245,8 +245,92 @@ impl TreePanel {
         }
     }
 
-    /// Draw the panel.
-    pub fn ui(&mut self, ui: &mut egui::Ui, ctx: &ViewCtx) -> Vec<Action> {
+    /// Phrases outside the tree: unplaced ones can be placed, excluded ones included again.
+    fn outside_ui(&mut self, ui: &mut egui::Ui, ctx: &ViewCtx, actions: &mut Vec<Action>) {
+        if self.outside_for != Some(ctx.generation) {
+            self.outside = ctx.queries.outside();
+            self.outside_for = Some(ctx.generation);
+        }
+        let (excluded, unplaced) = &self.outside;
+        if excluded.is_empty() && unplaced.is_empty() {
+            return;
+        }
+        let Some(eff) = ctx.eff else { return };
+        egui::CollapsingHeader::new(format!(
+            "Outside the tree: {} unplaced, {} excluded",
+            unplaced.len(),
+            excluded.len()
+        ))
+        .id_salt("outside-tree")
+        .show(ui, |ui| {
+            egui::ScrollArea::vertical()
+                .id_salt("outside-rows")
+                .max_height(140.0)
+                .show(ui, |ui| {
+                    for &p in unplaced {
+                        ui.horizontal(|ui| {
+                            ui.label(badges::pill("unplaced", badges::YELLOW));
+                            let r = ui.selectable_label(ctx.selection.contains(&p), eff.label(p));
+                            if r.clicked() {
+                                actions.push(Action::Select(p));
+                            }
+                            if ui
+                                .small_button("Place under…")
+                                .on_hover_text("Choose a parent for this phrase")
+                                .clicked()
+                            {
+                                actions.push(Action::Dialog(DialogRequest::Picker(
+                                    PickerKind::Reparent,
+                                    p,
+                                )));
+                            }
+                        });
+                    }
+                    for &p in excluded {
+                        ui.horizontal(|ui| {
+                            ui.label(badges::pill("excluded", Color32::from_gray(190)));
+                            let r = ui.selectable_label(ctx.selection.contains(&p), eff.label(p));
+                            if r.clicked() {
+                                actions.push(Action::Select(p));
+                            }
+                            if ui.small_button("Include").clicked() {
+                                actions.push(Action::Edit(Edit::Include {
+                                    node: ctx.project.phrases.id(p).to_string(),
+                                }));
+                            }
+                        });
+                    }
+                });
+        });
+    }
+
+    /// Rows from the selection anchor to `row` (Shift-click).
+    fn range_to(&self, ctx: &ViewCtx, row: usize) -> Vec<PhraseId> {
+        let anchor = ctx
+            .selection
+            .first()
+            .and_then(|a| self.rows.iter().position(|r| r.0 == *a))
+            .unwrap_or(row);
+        let (a, b) = if anchor <= row {
+            (anchor, row)
+        } else {
+            (row, anchor)
+        };
+        let mut v: Vec<PhraseId> = self.rows[a..=b].iter().map(|r| r.0).collect();
+        // keep the anchor first so later Shift-clicks extend from it
+        if anchor > row {
+            v.reverse();
+        }
+        v
+    }
+}
+
+impl Panel for TreePanel {
+    fn kind(&self) -> PanelKind {
+        PanelKind::Tree
+    }
+
+    fn ui(&mut self, ui: &mut egui::Ui, ctx: &ViewCtx) -> Vec<Action> {
         let mut actions = Vec::new();
         ui.heading("Hierarchy");
         let Some(eff) = ctx.eff else {
@@ -369,7 +453,7 @@ impl TreePanel {
                             node: ctx.project.phrases.id(*dragged).to_string(),
                             parent: ctx.project.phrases.id(p).to_string(),
                         };
-                        let tip = match (ctx.check)(&edit) {
+                        let tip = match ctx.check(&edit) {
                             Ok(()) => format!("Drop to move under \"{label}\""),
                             Err(why) => badges::plain(&format!("Cannot drop here: {why}")),
                         };
@@ -395,85 +479,6 @@ impl TreePanel {
             self.set_expanded(p, open);
         }
         actions
-    }
-
-    /// Phrases outside the tree: unplaced ones can be placed, excluded ones included again.
-    fn outside_ui(&mut self, ui: &mut egui::Ui, ctx: &ViewCtx, actions: &mut Vec<Action>) {
-        if self.outside_for != Some(ctx.generation) {
-            self.outside = ctx.doc.outside();
-            self.outside_for = Some(ctx.generation);
-        }
-        let (excluded, unplaced) = &self.outside;
-        if excluded.is_empty() && unplaced.is_empty() {
-            return;
-        }
-        let Some(eff) = ctx.eff else { return };
-        egui::CollapsingHeader::new(format!(
-            "Outside the tree: {} unplaced, {} excluded",
-            unplaced.len(),
-            excluded.len()
-        ))
-        .id_salt("outside-tree")
-        .show(ui, |ui| {
-            egui::ScrollArea::vertical()
-                .id_salt("outside-rows")
-                .max_height(140.0)
-                .show(ui, |ui| {
-                    for &p in unplaced {
-                        ui.horizontal(|ui| {
-                            ui.label(badges::pill("unplaced", badges::YELLOW));
-                            let r = ui.selectable_label(ctx.selection.contains(&p), eff.label(p));
-                            if r.clicked() {
-                                actions.push(Action::Select(p));
-                            }
-                            if ui
-                                .small_button("Place under…")
-                                .on_hover_text("Choose a parent for this phrase")
-                                .clicked()
-                            {
-                                actions.push(Action::Dialog(DialogRequest::Picker(
-                                    PickerKind::Reparent,
-                                    p,
-                                )));
-                            }
-                        });
-                    }
-                    for &p in excluded {
-                        ui.horizontal(|ui| {
-                            ui.label(badges::pill("excluded", Color32::from_gray(190)));
-                            let r = ui.selectable_label(ctx.selection.contains(&p), eff.label(p));
-                            if r.clicked() {
-                                actions.push(Action::Select(p));
-                            }
-                            if ui.small_button("Include").clicked() {
-                                actions.push(Action::Edit(Edit::Include {
-                                    node: ctx.project.phrases.id(p).to_string(),
-                                }));
-                            }
-                        });
-                    }
-                });
-        });
-    }
-
-    /// Rows from the selection anchor to `row` (Shift-click).
-    fn range_to(&self, ctx: &ViewCtx, row: usize) -> Vec<PhraseId> {
-        let anchor = ctx
-            .selection
-            .first()
-            .and_then(|a| self.rows.iter().position(|r| r.0 == *a))
-            .unwrap_or(row);
-        let (a, b) = if anchor <= row {
-            (anchor, row)
-        } else {
-            (row, anchor)
-        };
-        let mut v: Vec<PhraseId> = self.rows[a..=b].iter().map(|r| r.0).collect();
-        // keep the anchor first so later Shift-clicks extend from it
-        if anchor > row {
-            v.reverse();
-        }
-        v
     }
 }
 

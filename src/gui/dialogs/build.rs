@@ -9,11 +9,10 @@ use std::thread::JoinHandle;
 
 use egui::{Id, Modal};
 
-use crate::model::Similarity;
 use crate::model::builder::{BuildError, BuildParams, BuildProgress, BuiltTree, build};
+use crate::model::{Project, Similarity};
 
-use super::super::app::{Action, ViewCtx};
-use super::super::doc::Doc;
+use super::super::context::{Action, ViewCtx};
 use super::DialogOut;
 
 /// A build running on a worker thread.
@@ -26,12 +25,12 @@ pub struct BuildJob {
 
 impl BuildJob {
     /// Start building on a worker thread.
-    pub fn start(doc: &Doc, params: BuildParams) -> Self {
+    pub fn start(project: &Project, params: BuildParams) -> Self {
         let cancel = Arc::new(AtomicBool::new(false));
         let progress = Arc::new(Mutex::new(None));
         let (tx, rx) = channel();
-        let g = Arc::clone(&doc.project.gaussians);
-        let phrases = doc.project.phrases.clone();
+        let g = Arc::clone(&project.gaussians);
+        let phrases = project.phrases.clone();
         let (c, p) = (Arc::clone(&cancel), Arc::clone(&progress));
         let handle = std::thread::spawn(move || {
             let report = move |bp: BuildProgress| {
@@ -93,7 +92,7 @@ pub struct BuildDialog {
 
 impl BuildDialog {
     /// Start with the builder's defaults.
-    pub fn new(_doc: &Doc) -> Self {
+    pub fn new(_view: &ViewCtx) -> Self {
         BuildDialog {
             params: BuildParams::default(),
             job: None,
@@ -207,7 +206,7 @@ impl BuildDialog {
                     if ui.button("Start build").clicked() {
                         self.outcome = None;
                         self.built = None;
-                        self.job = Some(BuildJob::start(view.doc, self.params.clone()));
+                        self.job = Some(BuildJob::start(view.project, self.params.clone()));
                     }
                     if let Some(b) = &self.built
                         && ui

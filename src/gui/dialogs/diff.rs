@@ -7,9 +7,8 @@ use crate::model::diff::{TreeChange, base_vs_effective, compare};
 use crate::model::effective::EffectiveTree;
 use crate::model::project::load_tree;
 
-use super::super::app::{Action, ViewCtx};
 use super::super::badges::plain;
-use super::super::doc::Doc;
+use super::super::context::{Action, ViewCtx};
 use super::DialogOut;
 
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -29,10 +28,10 @@ pub struct DiffDialog {
 
 impl DiffDialog {
     /// Start with base vs effective.
-    pub fn new(doc: &Doc) -> Self {
+    pub fn new(view: &ViewCtx) -> Self {
         DiffDialog {
             against: Against::Base,
-            path: doc.project.tree_path().display().to_string(),
+            path: view.project.tree_path().display().to_string(),
             changes: None,
             for_generation: None,
             filter: String::new(),
@@ -103,7 +102,7 @@ impl DiffDialog {
                         );
                         if ui.button("Browse…").clicked()
                             && let Some(p) = rfd::FileDialog::new()
-                                .set_directory(view.doc.dir())
+                                .set_directory(&view.project.dir)
                                 .add_filter("tree", &["json", "csv"])
                                 .pick_file()
                         {

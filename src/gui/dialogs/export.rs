@@ -2,10 +2,11 @@
 
 use std::path::PathBuf;
 
+use crate::model::Project;
+
 use egui::{Id, Modal};
 
-use super::super::app::{Action, ExportFormat, ViewCtx};
-use super::super::doc::Doc;
+use super::super::context::{Action, ExportFormat, ViewCtx};
 use super::{DialogOut, ok_cancel};
 
 /// State of the export dialog.
@@ -16,8 +17,9 @@ pub struct ExportDialog {
     scheme_label: String,
 }
 
-fn default_path(doc: &Doc, f: ExportFormat) -> String {
-    doc.dir()
+fn default_path(project: &Project, f: ExportFormat) -> String {
+    project
+        .dir
         .join("exports")
         .join(format!("tree.{}", f.extension()))
         .display()
@@ -26,8 +28,8 @@ fn default_path(doc: &Doc, f: ExportFormat) -> String {
 
 impl ExportDialog {
     /// Defaults: SKOS into the project's `exports/` folder.
-    pub fn new(doc: &Doc) -> Self {
-        let name = doc.project.manifest.name.clone();
+    pub fn new(view: &ViewCtx) -> Self {
+        let name = view.project.manifest.name.clone();
         let slug: String = name
             .to_lowercase()
             .chars()
@@ -35,7 +37,7 @@ impl ExportDialog {
             .collect();
         ExportDialog {
             format: ExportFormat::Skos,
-            path: default_path(doc, ExportFormat::Skos),
+            path: default_path(view.project, ExportFormat::Skos),
             base_iri: format!("https://example.org/{}/", slug.trim_matches('-')),
             scheme_label: name,
         }
@@ -54,8 +56,8 @@ impl ExportDialog {
                 ui.radio_value(&mut self.format, ExportFormat::Csv, "CSV");
                 ui.radio_value(&mut self.format, ExportFormat::Json, "JSON");
             });
-            if before != self.format && self.path == default_path(view.doc, before) {
-                self.path = default_path(view.doc, self.format);
+            if before != self.format && self.path == default_path(view.project, before) {
+                self.path = default_path(view.project, self.format);
             }
             egui::Grid::new("export-grid")
                 .num_columns(2)
@@ -69,7 +71,7 @@ impl ExportDialog {
                         );
                         if ui.button("Browse…").clicked()
                             && let Some(p) = rfd::FileDialog::new()
-                                .set_directory(view.doc.dir())
+                                .set_directory(&view.project.dir)
                                 .set_file_name(format!("tree.{}", self.format.extension()))
                                 .save_file()
                         {

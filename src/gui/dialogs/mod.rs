@@ -1,11 +1,10 @@
 //! Dialogs: one file each. A dialog reads the document through [`ViewCtx`] and returns
 //! [`Action`]s like every view; it never changes the model itself.
 
-use crate::model::PhraseId;
+use crate::model::effective::ApplyProblem;
 
-use super::app::{Action, DialogRequest, Settings, ViewCtx};
 use super::autosave::Recovery;
-use super::doc::Doc;
+use super::context::{Action, DialogRequest, ViewCtx};
 
 pub mod build;
 pub mod diff;
@@ -24,8 +23,6 @@ pub struct DialogOut {
     pub actions: Vec<Action>,
     /// Close the dialog.
     pub close: bool,
-    /// A new author name to remember.
-    pub author: Option<String>,
 }
 
 impl DialogOut {
@@ -40,7 +37,6 @@ impl DialogOut {
         DialogOut {
             actions,
             close: true,
-            author: None,
         }
     }
 }
@@ -74,32 +70,27 @@ pub enum Dialog {
 }
 
 /// Make the dialog for a request (`None` when it does not apply, e.g. no tree).
-pub fn open(
-    req: DialogRequest,
-    doc: &Doc,
-    selection: &[PhraseId],
-    settings: &Settings,
-) -> Option<Dialog> {
-    let eff = doc.eff.as_ref();
+pub fn open(req: DialogRequest, view: &ViewCtx) -> Option<Dialog> {
+    let eff = view.eff;
     Some(match req {
-        DialogRequest::Rename(p) => Dialog::Rename(rename::RenameDialog::new(doc, p)),
-        DialogRequest::Review(p, s) => Dialog::Review(review::ReviewDialog::new(doc, p, s)),
+        DialogRequest::Rename(p) => Dialog::Rename(rename::RenameDialog::new(view, p)),
+        DialogRequest::Review(p, s) => Dialog::Review(review::ReviewDialog::new(view, p, s)),
         DialogRequest::Picker(k, p) => {
             eff?;
-            Dialog::Picker(picker::PickerDialog::new(k, p, selection))
+            Dialog::Picker(picker::PickerDialog::new(k, p, view.selection))
         }
-        DialogRequest::Build => Dialog::Build(Box::new(build::BuildDialog::new(doc))),
+        DialogRequest::Build => Dialog::Build(Box::new(build::BuildDialog::new(view))),
         DialogRequest::Signoff => {
             eff?;
-            Dialog::Signoff(signoff::SignoffDialog::new(settings))
+            Dialog::Signoff(signoff::SignoffDialog::new(view))
         }
         DialogRequest::Diff => {
             eff?;
-            Dialog::Diff(diff::DiffDialog::new(doc))
+            Dialog::Diff(diff::DiffDialog::new(view))
         }
         DialogRequest::Export => {
             eff?;
-            Dialog::Export(export::ExportDialog::new(doc))
+            Dialog::Export(export::ExportDialog::new(view))
         }
         DialogRequest::Shortcuts => Dialog::Shortcuts,
         DialogRequest::About => Dialog::About,
@@ -107,8 +98,8 @@ pub fn open(
 }
 
 /// The list of edits that do not apply, for the stale-edit dialog.
-pub fn stale_list(doc: &Doc) -> Vec<String> {
-    doc.problems
+pub fn stale_list(problems: &[ApplyProblem]) -> Vec<String> {
+    problems
         .iter()
         .map(|p| super::badges::plain(&format!("edit #{} ({}): {}", p.index + 1, p.op, p.reason)))
         .collect()

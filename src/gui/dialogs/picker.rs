@@ -7,8 +7,8 @@ use egui::{Id, Modal};
 use crate::model::PhraseId;
 use crate::model::edit::Edit;
 
-use super::super::app::{Action, PickerKind, ViewCtx};
 use super::super::badges::plain;
+use super::super::context::{Action, PickerKind, ViewCtx};
 use super::{DialogOut, ok_cancel};
 
 /// Most candidates listed at once (the search narrows the rest).
@@ -126,7 +126,7 @@ impl PickerDialog {
                             .refusals
                             .1
                             .entry(p)
-                            .or_insert_with(|| edits.iter().find_map(|e| (view.check)(e).err()))
+                            .or_insert_with(|| edits.iter().find_map(|e| view.check(e).err()))
                             .clone();
                         let parent = eff
                             .tree

@@ -5,8 +5,7 @@ use egui::{Id, Modal};
 use crate::model::PhraseId;
 use crate::model::edit::Edit;
 
-use super::super::app::{Action, ViewCtx};
-use super::super::doc::Doc;
+use super::super::context::{Action, ViewCtx};
 use super::{DialogOut, ok_cancel};
 
 /// State of the rename dialog.
@@ -18,12 +17,8 @@ pub struct RenameDialog {
 
 impl RenameDialog {
     /// Start with the node's current label.
-    pub fn new(doc: &Doc, node: PhraseId) -> Self {
-        let label = doc
-            .eff
-            .as_ref()
-            .map_or_else(|| doc.project.phrases.label(node), |e| e.label(node))
-            .to_string();
+    pub fn new(view: &ViewCtx, node: PhraseId) -> Self {
+        let label = view.label(node).to_string();
         RenameDialog {
             node,
             label,
@@ -56,7 +51,7 @@ impl RenameDialog {
             let check = if self.label.trim().is_empty() {
                 Err("the label is empty".to_string())
             } else {
-                (view.check)(&edit)
+                view.check(&edit)
             };
             if let Err(why) = &check {
                 ui.label(super::super::badges::plain(&format!(

@@ -5,8 +5,7 @@ use egui::{Id, Modal};
 use crate::model::PhraseId;
 use crate::model::edit::{Edit, ReviewStatus};
 
-use super::super::app::{Action, ViewCtx};
-use super::super::doc::Doc;
+use super::super::context::{Action, ViewCtx};
 use super::{DialogOut, ok_cancel};
 
 /// State of the review dialog.
@@ -19,10 +18,9 @@ pub struct ReviewDialog {
 
 impl ReviewDialog {
     /// Start with the requested status and the node's previous comment.
-    pub fn new(doc: &Doc, node: PhraseId, status: ReviewStatus) -> Self {
-        let comment = doc
+    pub fn new(view: &ViewCtx, node: PhraseId, status: ReviewStatus) -> Self {
+        let comment = view
             .eff
-            .as_ref()
             .map(|e| e.review_comment[node as usize].clone())
             .unwrap_or_default();
         ReviewDialog {

@@ -2,8 +2,8 @@
 
 use egui::{Id, Modal};
 
-use super::super::app::{Action, ViewCtx};
 use super::super::autosave::Recovery;
+use super::super::context::{Action, ViewCtx};
 use super::DialogOut;
 
 /// "You have unsaved edits" when closing the window.
@@ -13,7 +13,7 @@ pub fn confirm_close(ctx: &egui::Context, view: &ViewCtx) -> DialogOut {
         ui.heading("Unsaved edits");
         ui.label(format!(
             "The override file {} does not have your latest edits.",
-            view.doc.overrides_path().display()
+            view.project.overrides_path().display()
         ));
         ui.horizontal(|ui| {
             if ui.button("Save and close").clicked() {

@@ -5,7 +5,7 @@ use egui::{Id, Modal};
 use crate::model::audit::Severity;
 use crate::model::edit::Edit;
 
-use super::super::app::{Action, Settings, ViewCtx};
+use super::super::context::{Action, ViewCtx};
 use super::{DialogOut, ok_cancel};
 
 /// State of the sign-off dialog.
@@ -16,9 +16,9 @@ pub struct SignoffDialog {
 
 impl SignoffDialog {
     /// Start with the remembered author as reviewer.
-    pub fn new(settings: &Settings) -> Self {
+    pub fn new(view: &ViewCtx) -> Self {
         SignoffDialog {
-            reviewer: settings.author.clone(),
+            reviewer: view.settings.author.clone(),
             note: String::new(),
         }
     }
@@ -26,14 +26,13 @@ impl SignoffDialog {
     /// Draw it.
     pub fn ui(&mut self, ctx: &egui::Context, view: &ViewCtx) -> DialogOut {
         let mut out = DialogOut::default();
-        let doc = view.doc;
-        let Some(hash) = doc.tree_hash.clone() else {
+        let Some(hash) = view.tree_hash.map(str::to_string) else {
             return DialogOut::close();
         };
-        let errors = doc.open_findings(Severity::Error);
-        let warnings = doc.open_findings(Severity::Warning) - errors;
-        let all_open = doc.open_findings(Severity::Info);
-        let unreviewed = doc.unreviewed();
+        let errors = view.open_findings(Severity::Error);
+        let warnings = view.open_findings(Severity::Warning) - errors;
+        let all_open = view.open_findings(Severity::Info);
+        let unreviewed = view.unreviewed;
         let resp = Modal::new(Id::unique("signoff-dialog")).show(ctx, |ui| {
             ui.set_width(440.0);
             ui.heading("Sign off the tree");
@@ -49,7 +48,7 @@ impl SignoffDialog {
                 ui.label(unreviewed.to_string());
                 ui.end_row();
                 ui.label("Unsaved edits:");
-                ui.label(if doc.layer.is_dirty() { "yes" } else { "no" });
+                ui.label(if view.dirty { "yes" } else { "no" });
                 ui.end_row();
                 ui.label("Tree hash:");
                 ui.monospace(&hash[..hash.len().min(16)])
@@ -82,7 +81,7 @@ impl SignoffDialog {
             let check = if reviewer.is_empty() {
                 Err("enter the reviewer's name".to_string())
             } else {
-                (view.check)(&edit)
+                view.check(&edit)
             };
             if let Err(why) = &check {
                 ui.label(super::super::badges::plain(&format!("Cannot sign: {why}")));
@@ -95,8 +94,8 @@ impl SignoffDialog {
                 } else {
                     Action::EditWithNote(edit, note)
                 };
-                out = DialogOut::act(vec![action, Action::Save]);
-                out.author = Some(reviewer);
+                // the reviewer becomes the author before the sign-off edit is recorded
+                out = DialogOut::act(vec![Action::SetAuthor(reviewer), action, Action::Save]);
             } else if cancel {
                 out = DialogOut::close();
             }
