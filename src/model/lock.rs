@@ -89,7 +89,7 @@ impl ProjectLock {
             .open(&path)
             .map_err(io)?;
         let start = Instant::now();
-        let mut pause = Duration::from_millis(2);
+        let mut pause = Duration::from_millis(1);
         loop {
             match fs4::FileExt::try_lock(&file) {
                 Ok(()) => break,
@@ -105,7 +105,7 @@ impl ProjectLock {
                 });
             }
             std::thread::sleep(pause.min(wait - waited));
-            pause = (pause * 2).min(Duration::from_millis(50));
+            pause = (pause * 2).min(Duration::from_millis(5));
         }
         // record the holder for whoever waits next; failing to is not worth refusing a save
         let pid = std::process::id().to_string();
