@@ -87,7 +87,10 @@ fn workbench_and_cli_sign_offs_record_the_same_counts_and_hash() {
     cli_signoff(&c);
     let gui = stored_signoff(&g);
     let cli = stored_signoff(&c);
-    assert_eq!(gui, cli, "workbench vs CLI sign-off (open findings, unreviewed, hash)");
+    assert_eq!(
+        gui, cli,
+        "workbench vs CLI sign-off (open findings, unreviewed, hash)"
+    );
     // the count is warnings and errors, as the README promises
     assert_eq!(gui.0, warnings_and_up);
     // the demo has open info findings, so the old count (info and above) would differ

@@ -56,8 +56,8 @@ pub fn run(args: &DiffArgs) -> Result<(), CliError> {
     } else {
         read_json(other)?
     };
-    let d = diff_retrained(base, phrases, &ws.layer.edits, &tf, &file)
-        .map_err(CliError::bad_input)?;
+    let d =
+        diff_retrained(base, phrases, &ws.layer.edits, &tf, &file).map_err(CliError::bad_input)?;
     if args.json {
         println!(
             "{}",

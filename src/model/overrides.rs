@@ -18,10 +18,10 @@ use sha2::{Digest, Sha256};
 use super::edit::{Edit, EditRecord, ReviewStatus};
 use super::effective::{ApplyProblem, EffectiveTree};
 use super::fsutil;
-use super::lock::{LockError, ProjectLock};
-pub use super::refusal::{EditRefusal, Role};
 use super::gaussian::PhraseId;
+use super::lock::{LockError, ProjectLock};
 use super::phrase::PhraseTable;
+pub use super::refusal::{EditRefusal, Role};
 use super::tree::Tree;
 
 /// The `format` value of an override file.
@@ -608,13 +608,19 @@ fn validate(s: &impl View, phrases: &PhraseTable, edit: &Edit) -> Result<Plan, E
             for src in sources {
                 let x = lookup(phrases, src)?;
                 if x == t {
-                    return Err(EditRefusal::MergeIntoItself { source_id: own(src) });
+                    return Err(EditRefusal::MergeIntoItself {
+                        source_id: own(src),
+                    });
                 }
                 if rows.contains(&x) {
-                    return Err(EditRefusal::ListedTwice { source_id: own(src) });
+                    return Err(EditRefusal::ListedTwice {
+                        source_id: own(src),
+                    });
                 }
                 if x == s.root() {
-                    return Err(EditRefusal::SourceIsRoot { source_id: own(src) });
+                    return Err(EditRefusal::SourceIsRoot {
+                        source_id: own(src),
+                    });
                 }
                 if let Some(why) = node_problem(s, phrases, x, Role::Source) {
                     return Err(why);

@@ -213,6 +213,9 @@ mod tests {
             node: "n".into(),
             parent: "p".into(),
         };
-        assert_eq!(c.to_string(), "\"p\" is below \"n\": that would make a cycle");
+        assert_eq!(
+            c.to_string(),
+            "\"p\" is below \"n\": that would make a cycle"
+        );
     }
 }
