@@ -766,3 +766,120 @@ pub fn tree_csv(t: &TreeFile) -> Result<Vec<u8>, csv::Error> {
     }
     w.into_inner().map_err(|e| csv::Error::from(e.into_error()))
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn demo() -> (tempfile::TempDir, PathBuf) {
+        let t = tempfile::tempdir().unwrap();
+        let dir = t.path().join("demo");
+        super::super::sample::write_demo(&dir).unwrap();
+        (t, dir)
+    }
+
+    /// A placed non-root node of the demo's base tree.
+    fn some_node(ws: &Workspace, k: usize) -> String {
+        let t = ws.base().unwrap();
+        let mut ids: Vec<String> = t
+            .preorder()
+            .into_iter()
+            .filter(|&x| x != t.root())
+            .map(|x| ws.project.phrases.id(x).to_string())
+            .collect();
+        ids.sort();
+        ids[k].clone()
+    }
+
+    #[test]
+    fn resolve_takes_an_id_or_a_label_in_any_case() {
+        let (_t, dir) = demo();
+        let ws = Workspace::open(&dir).unwrap();
+        let id = some_node(&ws, 0);
+        let p = ws.project.phrases.get(&id).unwrap();
+        let label = ws.project.phrases.labels()[p as usize].clone();
+        assert_eq!(ws.resolve(&id).unwrap(), id);
+        assert_eq!(ws.resolve(&label).unwrap(), id);
+        assert_eq!(ws.resolve(&label.to_uppercase()).unwrap(), id);
+        let e = ws.resolve("no such phrase").unwrap_err();
+        assert!(
+            e.to_string().starts_with("no phrase with id or label"),
+            "{e}"
+        );
+    }
+
+    #[test]
+    fn append_rechecks_on_top_of_a_newer_file() {
+        let (_t, dir) = demo();
+        let mut a = Workspace::open(&dir).unwrap();
+        let mut b = Workspace::open(&dir).unwrap();
+        let x = some_node(&a, 3);
+        let exclude = Edit::Exclude { node: x.clone() };
+        a.append(exclude.clone(), "a", None).unwrap();
+        // b loaded before a saved: its exclusion no longer applies and is refused
+        let e = b.append(exclude, "b", None).unwrap_err();
+        assert_eq!(e.to_string(), format!("\"{x}\" is already excluded"));
+        // an edit that still applies lands after a's
+        let y = some_node(&a, 4);
+        let i = b
+            .append(
+                Edit::Review {
+                    node: y,
+                    status: ReviewStatus::Approved,
+                    comment: String::new(),
+                },
+                "b",
+                None,
+            )
+            .unwrap();
+        let stored = OverrideLayer::load(&a.overrides_path()).unwrap();
+        assert_eq!(stored.edits.len(), i + 1);
+        assert!(matches!(stored.edits[i - 1].edit, Edit::Exclude { .. }));
+    }
+
+    #[test]
+    fn a_sign_off_appended_on_a_newer_file_is_rebuilt_for_it() {
+        let (_t, dir) = demo();
+        let mut a = Workspace::open(&dir).unwrap();
+        let mut b = Workspace::open(&dir).unwrap();
+        let stale = b.signoff_edit("rita").unwrap();
+        a.append(
+            Edit::Exclude {
+                node: some_node(&a, 2),
+            },
+            "a",
+            None,
+        )
+        .unwrap();
+        let i = b.append(stale.clone(), "rita", None).unwrap();
+        let fresh = Workspace::open(&dir).unwrap();
+        assert_ne!(b.layer.edits[i].edit, stale);
+        assert_eq!(fresh.sign_state(), b.sign_state());
+        assert!(matches!(fresh.sign_state(), SignState::Signed { .. }));
+    }
+
+    #[test]
+    fn set_base_refuses_when_the_tree_file_changed() {
+        let (_t, dir) = demo();
+        let mut ws = Workspace::open(&dir).unwrap();
+        let tf = TreeFile {
+            root: ws.project.phrases.id(ws.base().unwrap().root()).to_string(),
+            parent: Default::default(),
+        };
+        let path = ws.project.tree_path();
+        let mut bytes = std::fs::read(&path).unwrap();
+        bytes.push(b'\n');
+        std::fs::write(&path, &bytes).unwrap();
+        let e = ws.set_base(&tf, None).unwrap_err();
+        assert!(matches!(e, WorkspaceError::ChangedOnDisk { .. }), "{e}");
+        assert_eq!(std::fs::read(&path).unwrap(), bytes);
+    }
+
+    #[test]
+    fn export_formats_round_trip_their_names() {
+        for f in Format::ALL {
+            assert_eq!(f.name().parse::<Format>().unwrap(), f);
+        }
+        assert!("turtle".parse::<Format>().is_err());
+    }
+}
