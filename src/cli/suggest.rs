@@ -66,7 +66,7 @@ pub fn run(args: &SuggestArgs) -> Result<(), CliError> {
         return Ok(());
     }
     let query = args.phrase.as_deref().unwrap_or_default();
-    let Some(p) = project.phrases.find(query) else {
+    let Ok(p) = ws.resolve_row(query) else {
         let near = nearest_labels(&project.phrases, query, 3);
         return Err(CliError::bad_input(format!(
             "{}: no phrase \"{query}\"; did you mean {}?",
