@@ -335,3 +335,42 @@ fn undo_refuses_when_the_file_changed() {
     let layer = OverrideLayer::load(&dir.join("overrides.json")).unwrap();
     assert!(layer.edits.len() >= 2);
 }
+
+#[test]
+fn a_held_lock_makes_a_writer_give_up_naming_the_holder() {
+    use treewright::model::lock::ProjectLock;
+    let t = tempfile::tempdir().unwrap();
+    let dir = demo(&t, "held");
+    let ids = node_ids(&dir);
+    let held = ProjectLock::acquire(&dir).unwrap();
+    let out = Command::new(bin())
+        .arg("edit")
+        .arg(&dir)
+        .args(["review", &ids[0], "approved", "--author", "a"])
+        .env("TREEWRIGHT_LOCK_WAIT", "0.3")
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains(&format!("pid {}", std::process::id())) && err.contains("gave up"),
+        "{err}"
+    );
+    assert!(edits_of(&dir).is_empty(), "nothing written");
+    drop(held);
+    // a lock file left by a process that is gone (here: any pid written in it) never blocks
+    std::fs::write(dir.join(".treewright.lock"), "4194303").unwrap();
+    let out = Command::new(bin())
+        .arg("edit")
+        .arg(&dir)
+        .args(["review", &ids[0], "approved", "--author", "a"])
+        .env("TREEWRIGHT_LOCK_WAIT", "0.3")
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert_eq!(edits_of(&dir).len(), 1);
+}
