@@ -243,14 +243,6 @@ impl OverrideLayer {
         Ok(Fingerprint::of_file(path)? != self.disk)
     }
 
-    /// The edits that are not saved yet: those after the saved prefix, when the saved
-    /// edits are still a prefix of the current ones (else `None`: edits were undone).
-    pub fn unsaved_tail(&self) -> Option<&[EditRecord]> {
-        self.edits
-            .starts_with(&self.saved)
-            .then(|| &self.edits[self.saved.len()..])
-    }
-
     /// Append an edit; clears the redo stack.
     pub fn push(&mut self, r: EditRecord) {
         self.edits.push(r);
