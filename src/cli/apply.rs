@@ -5,8 +5,9 @@ use std::path::PathBuf;
 use clap::Args;
 
 use super::CliError;
-use super::edit::{Session, print_problems};
-use crate::model::export::export_json;
+use crate::model::Workspace;
+use crate::model::effective::ApplyProblem;
+use crate::model::export::Format;
 use crate::model::fsutil::atomic_write;
 
 /// Arguments of `apply`.
@@ -19,20 +20,26 @@ pub struct ApplyArgs {
     pub out: PathBuf,
 }
 
+/// Print the skipped edits, one per line.
+pub fn print_problems(problems: &[ApplyProblem]) {
+    for p in problems {
+        println!("skipped edit #{} ({}): {}", p.index, p.op, p.reason);
+    }
+}
+
 /// Apply the override layer and write the effective tree.
 pub fn run(args: &ApplyArgs) -> Result<(), CliError> {
-    let s = Session::open(&args.project)?;
-    let (eff, problems) = s.effective();
-    let text = export_json(&eff, &s.project.phrases);
+    let ws = Workspace::open(&args.project)?;
+    let text = ws.export(Format::Json, "", "")?;
     atomic_write(&args.out, text.as_bytes(), false)
         .map_err(|e| CliError::bad_input(format!("{}: {e}", args.out.display())))?;
     println!(
         "wrote {} ({} nodes, {} edits, {} skipped)",
         args.out.display(),
-        eff.tree.node_count(),
-        s.layer.edits.len(),
-        problems.len()
+        ws.effective()?.tree.node_count(),
+        ws.layer.edits.len(),
+        ws.problems.len()
     );
-    print_problems(&problems);
+    print_problems(&ws.problems);
     Ok(())
 }

@@ -9,8 +9,8 @@ use clap::{Args, ValueEnum};
 use serde::Serialize;
 
 use super::CliError;
-use super::edit::Session;
-use crate::model::audit::{AuditConfig, AuditReport, Finding, RULES, Severity, audit};
+use crate::model::Workspace;
+use crate::model::audit::{AuditConfig, AuditReport, Finding, RULES, Severity};
 use crate::model::edit::{Edit, EditRecord};
 use crate::model::effective::EffectiveTree;
 use crate::model::fsutil::atomic_write_with;
@@ -464,11 +464,11 @@ pub fn run(args: &AuditArgs) -> Result<(), CliError> {
             )));
         }
     }
-    let session = Session::open(&args.project)?;
-    let project = &session.project;
-    let cfg = AuditConfig::of_project(project).map_err(CliError::bad_input)?;
-    let (eff, problems) = session.effective();
-    let report = audit(&project.gaussians, &project.phrases, &eff, &problems, &cfg);
+    let ws = Workspace::open(&args.project)?;
+    let project = &ws.project;
+    let cfg = ws.audit_config()?;
+    let eff = ws.effective()?;
+    let report = ws.audit_now()?;
     let findings: Vec<&Finding> = report
         .findings
         .iter()
@@ -477,10 +477,10 @@ pub fn run(args: &AuditArgs) -> Result<(), CliError> {
     let view = View {
         name: &project.manifest.name,
         phrases: &project.phrases,
-        eff: &eff,
+        eff,
         report: &report,
         cfg: &cfg,
-        signoff: signoff_state(&eff, &project.phrases, &session.layer.edits),
+        signoff: signoff_state(eff, &project.phrases, &ws.layer.edits),
         findings,
     };
     let render = |w: &mut dyn std::io::Write| match args.format {

@@ -17,9 +17,10 @@ use super::CliError;
 use super::progress;
 use crate::model::builder::{BuildParams, BuildProgress, BuiltTree, build};
 use crate::model::fsutil;
-use crate::model::project::{MANIFEST_NAME, Project};
-use crate::model::tree::TreeFile;
-use crate::model::{PhraseTable, Similarity};
+use crate::model::overrides::OverrideLayer;
+use crate::model::project::Project;
+use crate::model::workspace::tree_bytes;
+use crate::model::{AuditMode, PhraseTable, Similarity, Workspace};
 
 /// Arguments of `build`.
 #[derive(Debug, Args)]
@@ -80,16 +81,7 @@ impl BuildArgs {
     }
 }
 
-/// The tree as a `child,parent` CSV edge list (the root with an empty parent first).
-pub fn tree_csv(t: &TreeFile) -> Result<Vec<u8>, csv::Error> {
-    let mut w = csv::Writer::from_writer(Vec::new());
-    w.write_record(["child", "parent"])?;
-    w.write_record([t.root.as_str(), ""])?;
-    for (c, p) in &t.parent {
-        w.write_record([c.as_str(), p.as_str()])?;
-    }
-    w.into_inner().map_err(|e| csv::Error::from(e.into_error()))
-}
+pub use crate::model::workspace::tree_csv;
 
 fn write(path: &Path, bytes: &[u8], backup: bool) -> Result<(), CliError> {
     fsutil::atomic_write(path, bytes, backup)
@@ -97,37 +89,32 @@ fn write(path: &Path, bytes: &[u8], backup: bool) -> Result<(), CliError> {
 }
 
 /// Build and write the tree and the report.
+///
+/// Into the project (no `--out`), the new tree goes through [`Workspace::set_base`]: under
+/// the project lock, refused when the tree file or the manifest changed on disk during the
+/// build.
 pub fn run(args: &BuildArgs) -> Result<(), CliError> {
     let params = args.params();
     params.validate().map_err(CliError::bad_input)?;
-    let mut project = Project::load(&args.project)?;
+    let project = Project::load(&args.project)?;
     let out = args.out.clone().unwrap_or_else(|| project.tree_path());
     let report_path = args.report.clone().unwrap_or_else(|| {
         out.parent()
             .map(|d| d.join("build-report.json"))
             .unwrap_or_else(|| PathBuf::from("build-report.json"))
     });
-    let built = run_build(&project.gaussians, &project.phrases, &params)?;
+    // the edits play no part in installing a base tree; the workspace remembers what the
+    // tree file and the manifest looked like before the build
+    let mut ws = Workspace::from_project(project, OverrideLayer::new(), AuditMode::Off)?;
+    let built = run_build(&ws.project.gaussians, &ws.project.phrases, &params)?;
 
-    let is_csv = out
-        .extension()
-        .is_some_and(|e| e.eq_ignore_ascii_case("csv"));
-    let tree_bytes = if is_csv {
-        tree_csv(&built.tree_file)
-            .map_err(|e| CliError::bad_input(format!("{}: {e}", out.display())))?
-    } else {
-        fsutil::to_json_pretty(&built.tree_file)
-    };
-    write(&out, &tree_bytes, true)?;
-    write(&report_path, &fsutil::to_json_pretty(&built.report), false)?;
-    // a project without a tree file learns where its new tree is
     if args.out.is_none() {
-        project.record_tree_in_manifest().map_err(|e| {
-            CliError::bad_input(format!(
-                "{}: cannot write: {e}",
-                project.dir.join(MANIFEST_NAME).display()
-            ))
-        })?;
+        ws.set_base_reporting(&built.tree_file, Some((&built.report, &report_path)))?;
+    } else {
+        let tree_bytes = tree_bytes(&built.tree_file, &out)
+            .map_err(|e| CliError::bad_input(format!("{}: {e}", out.display())))?;
+        write(&out, &tree_bytes, true)?;
+        write(&report_path, &fsutil::to_json_pretty(&built.report), false)?;
     }
     // a closed pipe (`| head`) is not an error worth a panic: the files are written
     let mut o = std::io::stdout().lock();

@@ -6,7 +6,7 @@ use std::path::PathBuf;
 use clap::Args;
 
 use super::CliError;
-use super::edit::Session;
+use crate::model::Workspace;
 use crate::model::diff::{base_vs_effective, diff_retrained};
 use crate::model::project::read_json;
 use crate::model::tree::TreeFile;
@@ -26,11 +26,11 @@ pub struct DiffArgs {
 
 /// Print the differences.
 pub fn run(args: &DiffArgs) -> Result<(), CliError> {
-    let s = Session::open(&args.project)?;
-    let phrases = &s.project.phrases;
+    let ws = Workspace::open(&args.project)?;
+    let phrases = &ws.project.phrases;
+    let base = ws.base()?;
     let Some(other) = &args.against else {
-        let (eff, _) = s.effective();
-        let changes = base_vs_effective(&s.base, phrases, &eff);
+        let changes = base_vs_effective(base, phrases, ws.effective()?);
         if args.json {
             println!(
                 "{}",
@@ -56,8 +56,8 @@ pub fn run(args: &DiffArgs) -> Result<(), CliError> {
     } else {
         read_json(other)?
     };
-    let d = diff_retrained(&s.base, phrases, &s.layer.edits, &tf, &file)
-        .map_err(CliError::bad_input)?;
+    let d =
+        diff_retrained(base, phrases, &ws.layer.edits, &tf, &file).map_err(CliError::bad_input)?;
     if args.json {
         println!(
             "{}",

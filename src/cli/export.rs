@@ -3,23 +3,27 @@
 
 use std::path::PathBuf;
 
+use clap::builder::PossibleValue;
 use clap::{Args, ValueEnum};
 
 use super::CliError;
-use super::edit::Session;
-use crate::model::export::{DEFAULT_BASE_IRI, export_csv, export_json, export_skos};
+use crate::model::Workspace;
+use crate::model::export::{DEFAULT_BASE_IRI, Format};
 use crate::model::fsutil::atomic_write;
-use crate::model::signoff::verify;
 
-/// Export formats.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
-pub enum Format {
-    /// W3C SKOS in Turtle.
-    Skos,
-    /// `id,label,parent,depth,aliases,status`.
-    Csv,
-    /// tree.json schema plus aliases and exclusions.
-    Json,
+impl ValueEnum for Format {
+    fn value_variants<'a>() -> &'a [Self] {
+        &Format::ALL
+    }
+
+    fn to_possible_value(&self) -> Option<PossibleValue> {
+        let help = match self {
+            Format::Skos => "W3C SKOS in Turtle",
+            Format::Csv => "`id,label,parent,depth,aliases,status`",
+            Format::Json => "tree.json schema plus aliases and exclusions",
+        };
+        Some(PossibleValue::new(self.name()).help(help))
+    }
 }
 
 /// Arguments of `export`.
@@ -46,10 +50,9 @@ pub struct ExportArgs {
 
 /// Write the export.
 pub fn run(args: &ExportArgs) -> Result<(), CliError> {
-    let s = Session::open(&args.project)?;
-    let phrases = &s.project.phrases;
+    let ws = Workspace::open(&args.project)?;
     if args.require_signoff {
-        let v = verify(&s.base, phrases, &s.layer.edits);
+        let v = ws.verify()?;
         if !v.is_valid() {
             return Err(CliError::check_failed(format!(
                 "--require-signoff: not exporting\n{}",
@@ -57,25 +60,18 @@ pub fn run(args: &ExportArgs) -> Result<(), CliError> {
             )));
         }
     }
-    let (eff, problems) = s.effective();
-    let text = match args.format {
-        Format::Skos => {
-            let label = args
-                .scheme_label
-                .clone()
-                .unwrap_or_else(|| s.project.manifest.name.clone());
-            export_skos(&eff, phrases, &args.base_iri, &label).map_err(CliError::bad_input)?
-        }
-        Format::Csv => export_csv(&eff, phrases),
-        Format::Json => export_json(&eff, phrases),
-    };
+    let label = args
+        .scheme_label
+        .clone()
+        .unwrap_or_else(|| ws.project.manifest.name.clone());
+    let text = ws.export(args.format, &args.base_iri, &label)?;
     atomic_write(&args.out, text.as_bytes(), false)
         .map_err(|e| CliError::bad_input(format!("{}: {e}", args.out.display())))?;
     println!(
         "wrote {} ({} nodes; {} edits skipped)",
         args.out.display(),
-        eff.tree.node_count(),
-        problems.len()
+        ws.effective()?.tree.node_count(),
+        ws.problems.len()
     );
     Ok(())
 }

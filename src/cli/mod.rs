@@ -110,30 +110,15 @@ impl From<crate::model::LoadError> for CliError {
     }
 }
 
-/// The effective tree of a project: its base tree with the override layer applied, plus
-/// the edits that could not be applied.
-pub fn effective_tree(
-    project: &crate::model::Project,
-) -> Result<
-    (
-        crate::model::effective::EffectiveTree,
-        Vec<crate::model::effective::ApplyProblem>,
-    ),
-    CliError,
-> {
-    let base = project.tree.as_ref().ok_or_else(|| {
-        CliError::bad_input(format!(
-            "{}: the project has no tree yet (run `treewright build`)",
-            project.dir.display()
-        ))
-    })?;
-    let layer = crate::model::overrides::OverrideLayer::load(&project.overrides_path())
-        .map_err(CliError::bad_input)?;
-    Ok(crate::model::overrides::apply(
-        base,
-        &project.phrases,
-        &layer.edits,
-    ))
+impl From<crate::model::WorkspaceError> for CliError {
+    fn from(e: crate::model::WorkspaceError) -> Self {
+        match e {
+            crate::model::WorkspaceError::Refused(why) => {
+                CliError::bad_input(format!("refused: {why}"))
+            }
+            e => CliError::bad_input(e),
+        }
+    }
 }
 
 /// Run a subcommand, printing errors to standard error.

@@ -6,7 +6,7 @@ use std::path::PathBuf;
 use clap::Args;
 
 use super::CliError;
-use crate::model::Project;
+use crate::model::Workspace;
 use crate::model::suggest::{
     Candidate, SuggestCtx, SuggestParams, Suggestions, bulk_check, bulk_csv, nearest_labels,
     suggest,
@@ -39,13 +39,13 @@ pub struct SuggestArgs {
 
 /// Run `suggest`.
 pub fn run(args: &SuggestArgs) -> Result<(), CliError> {
-    let project = Project::load(&args.project)?;
-    let (eff, _problems) = super::effective_tree(&project)?;
+    let ws = Workspace::open(&args.project)?;
+    let (project, eff) = (&ws.project, ws.effective()?);
     let params = SuggestParams {
         top: args.top.max(1),
         ..SuggestParams::default()
     };
-    let ctx = SuggestCtx::new(&project.gaussians, &project.phrases, &eff, &params);
+    let ctx = SuggestCtx::new(&project.gaussians, &project.phrases, eff, &params);
     if args.all {
         let rows = bulk_check(&ctx, &project.users);
         if let Some(path) = &args.csv {
@@ -66,7 +66,7 @@ pub fn run(args: &SuggestArgs) -> Result<(), CliError> {
         return Ok(());
     }
     let query = args.phrase.as_deref().unwrap_or_default();
-    let Some(p) = project.phrases.find(query) else {
+    let Ok(p) = ws.resolve_row(query) else {
         let near = nearest_labels(&project.phrases, query, 3);
         return Err(CliError::bad_input(format!(
             "{}: no phrase \"{query}\"; did you mean {}?",

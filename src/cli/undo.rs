@@ -1,12 +1,15 @@
 //! `treewright undo PROJECT`: drop the last edit of the override layer.
+//!
+//! Refused (exit 2, nothing written) when the override file changed on disk since it was
+//! loaded: the last edit might then be someone else's.
 
 use std::path::PathBuf;
 
 use clap::Args;
 
 use super::CliError;
-use super::edit::Session;
 use crate::model::signoff::describe_edit;
+use crate::model::{Workspace, WorkspaceError};
 
 /// Arguments of `undo`.
 #[derive(Debug, Args)]
@@ -17,15 +20,14 @@ pub struct UndoArgs {
 
 /// Drop the last edit and save.
 pub fn run(args: &UndoArgs) -> Result<(), CliError> {
-    let mut s = Session::open(&args.project)?;
-    let r = s
-        .layer
-        .undo()
-        .ok_or_else(|| CliError::bad_input(format!("{}: no edit to undo", s.path.display())))?;
-    s.save()?;
+    let mut ws = Workspace::open(&args.project)?;
+    let r = ws.undo().ok_or_else(|| WorkspaceError::NothingToUndo {
+        file: ws.overrides_path().display().to_string(),
+    })?;
+    ws.save()?;
     println!(
         "dropped edit #{}: {} (by {}, {})",
-        s.layer.edits.len(),
+        ws.layer.edits.len(),
         describe_edit(&r.edit),
         r.author,
         r.time

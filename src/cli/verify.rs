@@ -6,8 +6,8 @@ use std::path::PathBuf;
 use clap::Args;
 
 use super::CliError;
-use super::edit::Session;
-use crate::model::signoff::{Verification, verify};
+use crate::model::Workspace;
+use crate::model::signoff::Verification;
 
 /// Arguments of `verify`.
 #[derive(Debug, Args)]
@@ -68,8 +68,7 @@ pub fn render(v: &Verification) -> String {
 
 /// Compare the latest sign-off with the current effective tree.
 pub fn run(args: &VerifyArgs) -> Result<(), CliError> {
-    let s = Session::open(&args.project)?;
-    let v = verify(&s.base, &s.project.phrases, &s.layer.edits);
+    let v = Workspace::open(&args.project)?.verify()?;
     if args.json {
         println!(
             "{}",

@@ -74,6 +74,79 @@ pub enum ExportError {
     Write(#[from] std::io::Error),
 }
 
+/// The export formats: one enum for every front end (the CLI's `--format` and the
+/// workbench's export dialog).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+pub enum Format {
+    /// W3C SKOS concept scheme in Turtle.
+    Skos,
+    /// One row per node: `id,label,parent,depth,aliases,status`.
+    Csv,
+    /// The `tree.json` schema plus aliases and exclusions.
+    Json,
+}
+
+/// Why a format name was not understood.
+#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
+#[error("unknown export format \"{0}\" (expected skos, csv or json)")]
+pub struct UnknownFormat(pub String);
+
+impl Format {
+    /// Every format, in the order menus list them.
+    pub const ALL: [Format; 3] = [Format::Skos, Format::Csv, Format::Json];
+
+    /// The name used on the command line.
+    pub fn name(self) -> &'static str {
+        match self {
+            Format::Skos => "skos",
+            Format::Csv => "csv",
+            Format::Json => "json",
+        }
+    }
+
+    /// File extension (without the dot).
+    pub fn extension(self) -> &'static str {
+        match self {
+            Format::Skos => "ttl",
+            Format::Csv => "csv",
+            Format::Json => "json",
+        }
+    }
+
+    /// Render the effective tree in this format. `base_iri` and `scheme_label` are used by
+    /// SKOS only.
+    pub fn render(
+        self,
+        eff: &EffectiveTree,
+        phrases: &PhraseTable,
+        base_iri: &str,
+        scheme_label: &str,
+    ) -> Result<String, ExportError> {
+        Ok(match self {
+            Format::Skos => export_skos(eff, phrases, base_iri, scheme_label)?,
+            Format::Csv => export_csv(eff, phrases),
+            Format::Json => export_json(eff, phrases),
+        })
+    }
+}
+
+impl std::fmt::Display for Format {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.name())
+    }
+}
+
+impl std::str::FromStr for Format {
+    type Err = UnknownFormat;
+
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        Format::ALL
+            .into_iter()
+            .find(|f| f.name().eq_ignore_ascii_case(s.trim()))
+            .ok_or_else(|| UnknownFormat(s.to_string()))
+    }
+}
+
 /// Percent-encode every byte outside RFC 3986's unreserved set.
 fn iri_escape(id: &str) -> String {
     let mut s = String::with_capacity(id.len());

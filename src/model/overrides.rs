@@ -16,10 +16,12 @@ use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
 
 use super::edit::{Edit, EditRecord, ReviewStatus};
-use super::effective::{ApplyProblem, EffectiveTree, STALE_PREFIX};
+use super::effective::{ApplyProblem, EffectiveTree};
 use super::fsutil;
 use super::gaussian::PhraseId;
+use super::lock::{LockError, ProjectLock};
 use super::phrase::PhraseTable;
+pub use super::refusal::{EditRefusal, Role};
 use super::tree::Tree;
 
 /// The `format` value of an override file.
@@ -74,6 +76,9 @@ pub enum OverrideError {
         /// The file.
         file: String,
     },
+    /// The project lock could not be taken (another writer held it too long).
+    #[error(transparent)]
+    Lock(#[from] LockError),
 }
 
 /// The on-disk shape of `overrides.json`.
@@ -203,20 +208,39 @@ impl OverrideLayer {
         })
     }
 
-    /// Save atomically (temporary file, fsync, rename) keeping the previous file as
-    /// `<name>.bak`. Refuses with [`OverrideError::ChangedOnDisk`] when the file was changed
-    /// by someone else since it was loaded or last saved.
+    /// Save atomically (temporary file, fsync, rename, folder fsync) keeping the previous
+    /// file as `<name>.bak`, under the project lock (see [`super::lock`]). Refuses with
+    /// [`OverrideError::ChangedOnDisk`] when the file was changed by someone else since it was
+    /// loaded or last saved; the check and the write happen under the lock, so no other
+    /// writer can slip in between them.
     pub fn save(&mut self, path: &Path) -> Result<(), OverrideError> {
+        let lock = ProjectLock::acquire(&super::lock::dir_of(path))?;
+        self.save_locked(path, &lock)
+    }
+
+    /// [`OverrideLayer::save`] for a caller that already holds the project lock.
+    pub fn save_locked(&mut self, path: &Path, _lock: &ProjectLock) -> Result<(), OverrideError> {
         let file = path.display().to_string();
-        if Fingerprint::of_file(path)? != self.disk {
+        if self.changed_on_disk(path)? {
             return Err(OverrideError::ChangedOnDisk { file });
         }
+        self.write_unchecked(path)
+    }
+
+    fn write_unchecked(&mut self, path: &Path) -> Result<(), OverrideError> {
+        let file = path.display().to_string();
         let bytes = serialize_overrides(&self.edits);
         fsutil::atomic_write(path, &bytes, true)
             .map_err(|source| OverrideError::Io { file, source })?;
         self.disk = Fingerprint::of_bytes(&bytes);
         self.saved = self.edits.clone();
         Ok(())
+    }
+
+    /// Whether `path` differs from what this layer last loaded or saved (a missing file
+    /// counts as what it was: missing).
+    pub fn changed_on_disk(&self, path: &Path) -> Result<bool, OverrideError> {
+        Ok(Fingerprint::of_file(path)? != self.disk)
     }
 
     /// Append an edit; clears the redo stack.
@@ -480,65 +504,76 @@ enum Plan {
     Nothing,
 }
 
-fn lookup(phrases: &PhraseTable, id: &str) -> Result<PhraseId, String> {
+fn lookup(phrases: &PhraseTable, id: &str) -> Result<PhraseId, EditRefusal> {
     phrases
         .get(id)
-        .ok_or_else(|| format!("{STALE_PREFIX} phrase \"{id}\" is no longer in the phrase table"))
+        .ok_or_else(|| EditRefusal::Stale { id: id.to_string() })
 }
 
 /// Why `p` cannot take part as a tree node, if it cannot.
-fn node_problem(s: &impl View, phrases: &PhraseTable, p: PhraseId, role: &str) -> Option<String> {
-    let id = phrases.id(p);
+fn node_problem(
+    s: &impl View,
+    phrases: &PhraseTable,
+    p: PhraseId,
+    role: Role,
+) -> Option<EditRefusal> {
+    let id = phrases.id(p).to_string();
     if let Some(t) = s.alias_of(p) {
-        return Some(format!(
-            "{role} \"{id}\" is merged into \"{}\"",
-            phrases.id(t)
-        ));
+        return Some(EditRefusal::RoleMerged {
+            role,
+            id,
+            into: phrases.id(t).to_string(),
+        });
     }
     if s.excluded(p) {
-        return Some(format!("{role} \"{id}\" is excluded"));
+        return Some(EditRefusal::RoleExcluded { role, id });
     }
     if !s.is_node(p) {
-        return Some(format!("{role} \"{id}\" is not in the tree"));
+        return Some(EditRefusal::RoleNotInTree { role, id });
     }
     None
 }
 
-fn validate(s: &impl View, phrases: &PhraseTable, edit: &Edit) -> Result<Plan, String> {
+fn validate(s: &impl View, phrases: &PhraseTable, edit: &Edit) -> Result<Plan, EditRefusal> {
     let id = |p: PhraseId| phrases.id(p).to_string();
+    let own = |x: &str| x.to_string();
     match edit {
         Edit::Reparent { node, parent } | Edit::Pin { node, parent } => {
             let is_pin = matches!(edit, Edit::Pin { .. });
             let x = lookup(phrases, node)?;
             let p = lookup(phrases, parent)?;
             if x == s.root() {
-                return Err(format!("\"{node}\" is the root and has no parent"));
+                return Err(EditRefusal::RootHasNoParent { node: own(node) });
             }
             if x == p {
-                return Err(format!("\"{node}\" cannot be its own parent"));
+                return Err(EditRefusal::OwnParent { node: own(node) });
             }
             if let Some(t) = s.alias_of(x) {
-                return Err(format!("\"{node}\" is merged into \"{}\"", id(t)));
+                return Err(EditRefusal::Merged {
+                    node: own(node),
+                    into: id(t),
+                });
             }
             if s.excluded(x) {
-                return Err(format!("\"{node}\" is excluded; include it first"));
+                return Err(EditRefusal::ExcludedIncludeFirst { node: own(node) });
             }
             if is_pin && !s.is_node(x) {
-                return Err(format!("\"{node}\" is not in the tree"));
+                return Err(EditRefusal::NotInTree { node: own(node) });
             }
-            if let Some(why) = node_problem(s, phrases, p, "parent") {
+            if let Some(why) = node_problem(s, phrases, p, Role::Parent) {
                 return Err(why);
             }
             if s.is_node(x) && s.is_ancestor(x, p) {
-                return Err(format!(
-                    "\"{parent}\" is below \"{node}\": that would make a cycle"
-                ));
+                return Err(EditRefusal::Cycle {
+                    node: own(node),
+                    parent: own(parent),
+                });
             }
             if !is_pin && s.pinned(x) && s.parent(x) != Some(p) {
-                return Err(format!(
-                    "\"{node}\" is pinned under \"{}\"; unpin it first",
-                    s.parent(x).map(id).unwrap_or_default()
-                ));
+                return Err(EditRefusal::Pinned {
+                    node: own(node),
+                    under: s.parent(x).map(id).unwrap_or_default(),
+                });
             }
             Ok(if is_pin {
                 Plan::Pin(x, p)
@@ -549,33 +584,37 @@ fn validate(s: &impl View, phrases: &PhraseTable, edit: &Edit) -> Result<Plan, S
         Edit::Unpin { node } => {
             let x = lookup(phrases, node)?;
             if !s.pinned(x) {
-                return Err(format!("\"{node}\" is not pinned"));
+                return Err(EditRefusal::NotPinned { node: own(node) });
             }
             Ok(Plan::Unpin(x))
         }
         Edit::Merge { sources, into } => {
             let t = lookup(phrases, into)?;
             if sources.is_empty() {
-                return Err("no source to merge".into());
+                return Err(EditRefusal::NoSource);
             }
-            if let Some(why) = node_problem(s, phrases, t, "target") {
+            if let Some(why) = node_problem(s, phrases, t, Role::Target) {
                 return Err(why);
             }
             let mut rows = Vec::with_capacity(sources.len());
             for src in sources {
                 let x = lookup(phrases, src)?;
                 if x == t {
-                    return Err(format!("\"{src}\" cannot be merged into itself"));
+                    return Err(EditRefusal::MergeIntoItself {
+                        source_id: own(src),
+                    });
                 }
                 if rows.contains(&x) {
-                    return Err(format!("\"{src}\" is listed twice"));
+                    return Err(EditRefusal::ListedTwice {
+                        source_id: own(src),
+                    });
                 }
                 if x == s.root() {
-                    return Err(format!(
-                        "\"{src}\" is the root; merge the other node into it instead"
-                    ));
+                    return Err(EditRefusal::SourceIsRoot {
+                        source_id: own(src),
+                    });
                 }
-                if let Some(why) = node_problem(s, phrases, x, "source") {
+                if let Some(why) = node_problem(s, phrases, x, Role::Source) {
                     return Err(why);
                 }
                 rows.push(x);
@@ -586,30 +625,36 @@ fn validate(s: &impl View, phrases: &PhraseTable, edit: &Edit) -> Result<Plan, S
             let x = lookup(phrases, node)?;
             let label = label.trim();
             if label.is_empty() {
-                return Err("the new label is empty".into());
+                return Err(EditRefusal::EmptyLabel);
             }
             if s.label(x) == label {
-                return Err(format!("\"{node}\" is already labelled \"{label}\""));
+                return Err(EditRefusal::SameLabel {
+                    node: own(node),
+                    label: own(label),
+                });
             }
             Ok(Plan::Rename(x, label.to_string()))
         }
         Edit::Exclude { node } => {
             let x = lookup(phrases, node)?;
             if x == s.root() {
-                return Err(format!("\"{node}\" is the root and cannot be excluded"));
+                return Err(EditRefusal::RootExcluded { node: own(node) });
             }
             if let Some(t) = s.alias_of(x) {
-                return Err(format!("\"{node}\" is merged into \"{}\"", id(t)));
+                return Err(EditRefusal::Merged {
+                    node: own(node),
+                    into: id(t),
+                });
             }
             if s.excluded(x) {
-                return Err(format!("\"{node}\" is already excluded"));
+                return Err(EditRefusal::AlreadyExcluded { node: own(node) });
             }
             Ok(Plan::Exclude(x))
         }
         Edit::Include { node } => {
             let x = lookup(phrases, node)?;
             if !s.excluded(x) {
-                return Err(format!("\"{node}\" is not excluded"));
+                return Err(EditRefusal::NotExcluded { node: own(node) });
             }
             Ok(Plan::Include(x))
         }
@@ -620,7 +665,10 @@ fn validate(s: &impl View, phrases: &PhraseTable, edit: &Edit) -> Result<Plan, S
         } => {
             let x = lookup(phrases, node)?;
             if let Some(t) = s.alias_of(x) {
-                return Err(format!("\"{node}\" is merged into \"{}\"", id(t)));
+                return Err(EditRefusal::Merged {
+                    node: own(node),
+                    into: id(t),
+                });
             }
             Ok(Plan::Review(x, *status, comment.clone()))
         }
@@ -727,7 +775,7 @@ pub fn apply(
             Err(reason) => problems.push(ApplyProblem {
                 index,
                 op: r.edit.op().to_string(),
-                reason,
+                reason: reason.to_string(),
             }),
         }
     }
@@ -748,9 +796,13 @@ pub fn apply(
 
 /// Would `edit` apply to the effective tree as it stands? `Err` carries the reason shown to
 /// the user (the GUI refuses a drop with it, the CLI exits 2 with it).
-pub fn check_edit(eff: &EffectiveTree, phrases: &PhraseTable, edit: &Edit) -> Result<(), String> {
+pub fn check_edit(
+    eff: &EffectiveTree,
+    phrases: &PhraseTable,
+    edit: &Edit,
+) -> Result<(), EditRefusal> {
     if eff.labels.len() != phrases.len() {
-        return Err("the effective tree does not belong to this phrase table".into());
+        return Err(EditRefusal::ForeignTree);
     }
     validate(eff, phrases, edit).map(|_| ())
 }
