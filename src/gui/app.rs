@@ -6,6 +6,7 @@ use std::time::{Duration, Instant};
 
 use crate::model::PhraseId;
 use crate::model::edit::Edit;
+use crate::model::workspace::Workspace;
 
 pub use super::context::{
     AUTOSAVE_EVERY, Action, Area, Central, DialogRequest, ExportFormat, MAX_RECENT, PanelKind,
@@ -471,11 +472,11 @@ impl DocQueries for Doc {
     }
 
     fn outside(&self) -> (Vec<PhraseId>, Vec<PhraseId>) {
-        Doc::outside(self)
+        Workspace::outside(self)
     }
 
     fn sign_state(&self) -> SignState {
-        Doc::sign_state(self)
+        Workspace::sign_state(self)
     }
 }
 
