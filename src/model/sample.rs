@@ -8,21 +8,14 @@
 //! All Fernhollow data is invented: the garden centre, its shop tags and its shoppers.
 
 use std::collections::{BTreeMap, HashMap};
-use std::fs;
 use std::path::{Path, PathBuf};
 
-use ndarray::{Array2, Array3};
-use ndarray_npy::WriteNpyExt;
 use rand::{Rng, SeedableRng};
 use rand_xoshiro::Xoshiro256PlusPlus;
 
-use super::fsutil;
 use super::gaussian::Gaussians;
 use super::phrase::{PhraseRecord, PhraseTable, id_from_label};
-use super::project::{
-    EmbeddingsRef, FORMAT_NAME, FORMAT_VERSION, MANIFEST_NAME, Manifest, ProjectWriter, Scale,
-    UserRecord,
-};
+use super::project::{MANIFEST_NAME, ProjectWriter, UserRecord};
 use super::tree::TreeFile;
 
 /// Dimension of the demo embeddings.
@@ -1147,8 +1140,8 @@ pub fn synthetic_gaussians(spec: &SyntheticSpec) -> (PhraseTable, Gaussians, Tre
 
 /// Write a synthetic project (see [`synthetic_gaussians`]) with its true tree as tree.json.
 ///
-/// Diagonal data goes through [`ProjectWriter`]; full covariance writes `covariances.npy`
-/// (n × d × d, float64).
+/// Diagonal data is written with [`ProjectWriter::write`]; full covariance with
+/// [`ProjectWriter::write_full_covariance`] (`covariances.npy`, n × d × d, float64).
 pub fn write_synthetic(dir: &Path, spec: &SyntheticSpec) -> std::io::Result<()> {
     let raw = synthetic_raw(spec);
     let (phrases, tree) = synthetic_tables(&raw);
@@ -1171,53 +1164,23 @@ pub fn write_synthetic(dir: &Path, spec: &SyntheticSpec) -> std::io::Result<()> 
         .write(dir);
     }
     let (means, covs) = rotate(&raw, spec.seed);
-    fs::create_dir_all(dir)?;
-    let manifest = Manifest {
-        format: FORMAT_NAME.into(),
-        version: FORMAT_VERSION,
-        name,
-        phrases: "phrases.json".into(),
-        embeddings: EmbeddingsRef::Npy {
-            means: "means.npy".into(),
-            variances: None,
-            covariances: Some("covariances.npy".into()),
-        },
-        scale: Scale::Variance,
-        variance_floor: None,
-        users: None,
-        tree: Some("tree.json".into()),
-        overrides: Some("overrides.json".into()),
-        audit: None,
-        limits: None,
-    };
-    fsutil::atomic_write(
-        &dir.join(MANIFEST_NAME),
-        &fsutil::to_json_pretty(&manifest),
-        false,
-    )?;
-    fsutil::atomic_write(
-        &dir.join("phrases.json"),
-        &fsutil::to_json_pretty(&phrases.records()),
-        false,
-    )?;
     let m32: Vec<f32> = means.iter().map(|&x| x as f32).collect();
-    let m = Array2::from_shape_vec((raw.n, raw.d), m32).map_err(std::io::Error::other)?;
-    let mut buf = Vec::new();
-    m.write_npy(&mut buf).map_err(std::io::Error::other)?;
-    fsutil::atomic_write(&dir.join("means.npy"), &buf, false)?;
-    let c = Array3::from_shape_vec((raw.n, raw.d, raw.d), covs).map_err(std::io::Error::other)?;
-    let mut buf = Vec::new();
-    c.write_npy(&mut buf).map_err(std::io::Error::other)?;
-    fsutil::atomic_write(&dir.join("covariances.npy"), &buf, false)?;
-    fsutil::atomic_write(
-        &dir.join("tree.json"),
-        &fsutil::to_json_pretty(&tree),
-        false,
-    )
+    ProjectWriter {
+        name: &name,
+        phrases: &phrases,
+        dim: raw.d,
+        means: &m32,
+        variances: &[],
+        users: &[],
+        tree: Some(&tree),
+    }
+    .write_full_covariance(dir, &covs)
 }
 
 #[cfg(test)]
 mod tests {
+    use std::fs;
+
     use super::*;
     use crate::model::Project;
 
