@@ -74,3 +74,37 @@ pub struct BuiltTree {
     /// The report (`build-report.json`).
     pub report: BuildReport,
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::model::fsutil::to_json_pretty;
+
+    #[test]
+    fn a_report_written_with_the_old_parameter_names_still_loads() {
+        let report = BuildReport {
+            format: REPORT_FORMAT.into(),
+            version: REPORT_VERSION,
+            params: BuildParams {
+                kmeans_restarts: 5,
+                elbow_restarts: 2,
+                max_iterations: 70,
+                ..BuildParams::default()
+            },
+            phrases: 3,
+            dim: 2,
+            root: "a".into(),
+            depth: 1,
+            nodes: Vec::new(),
+        };
+        let new = String::from_utf8(to_json_pretty(&report)).unwrap();
+        assert!(new.contains("\"kmeans_restarts\": 5"), "{new}");
+        let old = new
+            .replace("\"kmeans_restarts\"", "\"n_init\"")
+            .replace("\"elbow_restarts\"", "\"elbow_n_init\"")
+            .replace("\"max_iterations\"", "\"max_iter\"");
+        assert_ne!(old, new);
+        let back: BuildReport = serde_json::from_str(&old).unwrap();
+        assert_eq!(back, report);
+    }
+}
