@@ -1,12 +1,10 @@
-//! Inner loops over diagonal Gaussians: the audit's, in `f32`, and the builder's
-//! similarity sums (exact in `f64`, screening in `f32`).
+//! Inner loops over diagonal Gaussians: the audit's, in `f32` (this paragraph), and at the
+//! end of the file the builder's similarity sums (exact in `f64`, screening in `f32`).
 //!
-//! Each audit kernel is written once as plain Rust and compiled twice: for the baseline target and,
+//! Each kernel is written once as plain Rust and compiled twice: for the baseline target and,
 //! on x86-64 processors that have it, with AVX2 enabled (chosen at run time). Only the
 //! vector width differs: no fused multiply-add is enabled, so both versions perform the same
-//! IEEE operations in the same order and give bit-identical results. The builder's sums
-//! are written with `lane_sum!`: interleaved accumulators the compiler vectorises for
-//! the baseline target.
+//! IEEE operations in the same order and give bit-identical results.
 
 /// Σₖ (vc[k] + (mx[k] − mc[k])²) / vx[k], the data term of KL(c ‖ x).
 ///
@@ -173,6 +171,9 @@ pub(crate) fn mahalanobis_rows(
 }
 
 // ---- the builder's similarity sums ----------------------------------------------------
+//
+// Written with `lane_sum!`: interleaved accumulators that the compiler vectorises for the
+// baseline target (no run-time dispatch).
 
 /// Natural logarithm of a positive, finite, normal f64 without a library call, so that the
 /// similarity loops vectorise: x = 2ᵉ·m with m ∈ [√½, √2), ln m = 2 atanh((m − 1)/(m + 1))
