@@ -313,7 +313,7 @@ fn a_running_build_can_be_cancelled() {
     // exact representatives over the whole table make the first split take a while
     if let Some(treewright::gui::dialogs::Dialog::Build(b)) = &mut h.state_mut().dialog {
         b.params.exact_limit = 1_000_000;
-        b.params.n_init = 20;
+        b.params.kmeans_restarts = 20;
     }
     h.get_by_label("Start build").click();
     // the click lands in the next frame, the frames after show the running build (the

@@ -136,7 +136,7 @@ impl BuildDialog {
                     });
                 ui.end_row();
                 let l = ui.label("k-means restarts");
-                ui.add(egui::DragValue::new(&mut p.n_init).range(1..=50))
+                ui.add(egui::DragValue::new(&mut p.kmeans_restarts).range(1..=50))
                     .labelled_by(l.id);
                 ui.end_row();
                 let l = ui.label("Knee sensitivity S");
