@@ -181,7 +181,7 @@ fn edit_apply_signoff_verify_export() {
         ),
         (
             vec!["edit", p, "review", "fern", "great", "--author", "ines"],
-            "approved, needs-work",
+            "approved, to-fix",
         ),
     ] {
         let o = tw(&args);

@@ -382,7 +382,7 @@ fn rename_with_f2_and_review_from_the_context_menu() {
         .unwrap()
         .click_secondary();
     h.run();
-    h.get_by_label("Mark needs work…").click();
+    h.get_by_label("Mark to fix…").click();
     h.run();
     h.event(egui::Event::Text("too broad for a shop tag".into()));
     h.run();
@@ -391,7 +391,7 @@ fn rename_with_f2_and_review_from_the_context_menu() {
     let eff = h.state().doc.eff.as_ref().unwrap();
     assert_eq!(
         eff.review[gifts as usize],
-        treewright::model::edit::ReviewStatus::NeedsWork
+        treewright::model::edit::ReviewStatus::ToFix
     );
     assert_eq!(
         eff.review_comment[gifts as usize],

@@ -15,10 +15,9 @@ use treewright::gui::context::{Action, Central, PanelKind};
 use treewright::gui::{App, Settings};
 use treewright::model::sample::write_demo;
 
-/// Files of `src/gui` that are not panels or dialogs: the shell itself, the module root
-/// that declares it, and the document (which reads `app::ExportFormat` until the export
-/// format moves to the model).
-const SHELL: [&str; 3] = ["app.rs", "mod.rs", "doc.rs"];
+/// Files of `src/gui` that are not panels or dialogs: the shell itself and the module root
+/// that declares it.
+const SHELL: [&str; 2] = ["app.rs", "mod.rs"];
 
 /// The source without comments (line comments, doc comments, block comments) and without
 /// the contents of string literals, so that prose and messages never count as imports.

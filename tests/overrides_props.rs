@@ -86,7 +86,7 @@ fn make_edit(n: usize, (kind, a, b, c, s): (u8, usize, usize, usize, u8)) -> Edi
             node: id(a),
             status: [
                 ReviewStatus::Approved,
-                ReviewStatus::NeedsWork,
+                ReviewStatus::ToFix,
                 ReviewStatus::Unreviewed,
             ][s as usize],
             comment: String::new(),

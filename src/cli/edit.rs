@@ -92,11 +92,11 @@ pub enum EditOp {
         #[command(flatten)]
         meta: Meta,
     },
-    /// Record a review decision: approved, needs-work or unreviewed.
+    /// Record a review decision: approved, to-fix or unreviewed.
     Review {
         /// Node id or label.
         node: String,
-        /// approved | needs-work | unreviewed.
+        /// approved | to-fix | unreviewed (needs-work is read as to-fix).
         status: String,
         /// Reviewer's comment.
         #[arg(long)]
@@ -183,7 +183,7 @@ pub fn run(args: EditArgs) -> Result<(), CliError> {
         } => {
             let st = ReviewStatus::parse(&status).ok_or_else(|| {
                 CliError::bad_input(format!(
-                    "review status \"{status}\": expected approved, needs-work or unreviewed"
+                    "review status \"{status}\": expected approved, to-fix or unreviewed"
                 ))
             })?;
             (

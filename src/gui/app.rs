@@ -9,8 +9,8 @@ use crate::model::edit::Edit;
 use crate::model::workspace::Workspace;
 
 pub use super::context::{
-    AUTOSAVE_EVERY, Action, Area, Central, DialogRequest, ExportFormat, MAX_RECENT, PanelKind,
-    PickerKind, SETTINGS_KEY, Settings, ViewCtx,
+    AUTOSAVE_EVERY, Action, Area, Central, DialogRequest, MAX_RECENT, PanelKind, PickerKind,
+    SETTINGS_KEY, Settings, ViewCtx,
 };
 use super::context::{DocQueries, Panel, SignState};
 use super::dialogs::{self, Dialog};
@@ -107,11 +107,8 @@ impl App {
     pub fn preselect(&mut self, id: &str) -> Result<(), String> {
         let p = self
             .doc
-            .project
-            .phrases
-            .get(id)
-            .or_else(|| self.doc.project.phrases.find(id))
-            .ok_or_else(|| format!("--select: no phrase with id or label \"{id}\""))?;
+            .resolve_row(id)
+            .map_err(|_| format!("--select: no phrase with id or label \"{id}\""))?;
         self.apply(Action::Reveal(p));
         Ok(())
     }

@@ -38,7 +38,7 @@ pub fn review(status: ReviewStatus) -> Option<(RichText, &'static str)> {
     match status {
         ReviewStatus::Unreviewed => None,
         ReviewStatus::Approved => Some((pill("OK", SKY), "Approved by a reviewer")),
-        ReviewStatus::NeedsWork => Some((pill("FIX", YELLOW), "A reviewer asked for changes")),
+        ReviewStatus::ToFix => Some((pill("FIX", YELLOW), "A reviewer asked for changes")),
     }
 }
 

@@ -114,7 +114,7 @@ pub enum Action {
     /// Write an export of the effective tree.
     Export {
         /// File format.
-        format: ExportFormat,
+        format: crate::model::export::Format,
         /// Output file.
         path: PathBuf,
         /// SKOS base IRI.
@@ -132,28 +132,6 @@ pub enum Action {
     SaveAndQuit,
     /// Close the window, dropping unsaved edits and the recovery file.
     DiscardAndQuit,
-}
-
-/// Export file formats of the workbench (`app::ExportFormat` re-exports it).
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum ExportFormat {
-    /// SKOS concept scheme in Turtle.
-    Skos,
-    /// One row per node.
-    Csv,
-    /// The effective tree as JSON.
-    Json,
-}
-
-impl ExportFormat {
-    /// File extension.
-    pub fn extension(self) -> &'static str {
-        match self {
-            ExportFormat::Skos => "ttl",
-            ExportFormat::Csv => "csv",
-            ExportFormat::Json => "json",
-        }
-    }
 }
 
 /// Every panel of the window; each has one [`Panel`] implementation that the app draws.

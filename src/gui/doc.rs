@@ -17,8 +17,6 @@ use crate::model::overrides::{OverrideError, OverrideLayer};
 use crate::model::tree::TreeFile;
 use crate::model::{AuditMode, Project, Workspace, WorkspaceError};
 
-use super::app::ExportFormat;
-
 pub use crate::model::workspace::{BACKGROUND_AUDIT_FROM, SignState, severity_index};
 
 /// The open project with its edits applied (see the module documentation).
@@ -129,16 +127,11 @@ impl Doc {
     /// Write an export of the effective tree to `path` (folders are created).
     pub fn export(
         &self,
-        format: ExportFormat,
+        format: Format,
         path: &Path,
         base_iri: &str,
         scheme_label: &str,
     ) -> Result<(), String> {
-        let format = match format {
-            ExportFormat::Skos => Format::Skos,
-            ExportFormat::Csv => Format::Csv,
-            ExportFormat::Json => Format::Json,
-        };
         Ok(self.ws.export_to(format, path, base_iri, scheme_label)?)
     }
 

@@ -560,10 +560,10 @@ fn context_menu(ui: &mut egui::Ui, ctx: &ViewCtx, p: PhraseId, actions: &mut Vec
         )));
         ui.close();
     }
-    if ui.button("Mark needs work…").clicked() {
+    if ui.button("Mark to fix…").clicked() {
         actions.push(Action::Dialog(DialogRequest::Review(
             p,
-            ReviewStatus::NeedsWork,
+            ReviewStatus::ToFix,
         )));
         ui.close();
     }

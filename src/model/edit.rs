@@ -15,8 +15,10 @@ pub enum ReviewStatus {
     Unreviewed,
     /// A reviewer accepted it as it is.
     Approved,
-    /// A reviewer wants it changed.
-    NeedsWork,
+    /// A reviewer wants it changed (written `to-fix`; the earlier spelling `needs-work` is
+    /// still read).
+    #[serde(alias = "needs-work")]
+    ToFix,
 }
 
 impl ReviewStatus {
@@ -25,16 +27,16 @@ impl ReviewStatus {
         match self {
             ReviewStatus::Unreviewed => "unreviewed",
             ReviewStatus::Approved => "approved",
-            ReviewStatus::NeedsWork => "needs-work",
+            ReviewStatus::ToFix => "to-fix",
         }
     }
 
-    /// Parse `approved`, `needs-work` or `unreviewed`.
+    /// Parse `approved`, `to-fix` or `unreviewed` (also the earlier `needs-work`).
     pub fn parse(s: &str) -> Option<Self> {
         match s {
             "unreviewed" => Some(ReviewStatus::Unreviewed),
             "approved" => Some(ReviewStatus::Approved),
-            "needs-work" | "needs_work" => Some(ReviewStatus::NeedsWork),
+            "to-fix" | "to_fix" | "needs-work" | "needs_work" => Some(ReviewStatus::ToFix),
             _ => None,
         }
     }
@@ -183,9 +185,15 @@ mod tests {
             r#"{"op":"merge","sources":["a","b"],"into":"c","author":"ana","time":"2026-12-02T10:00:00Z"}"#
         );
         assert_eq!(serde_json::from_str::<EditRecord>(&s).unwrap(), r);
-        assert_eq!(
-            ReviewStatus::parse("needs-work"),
-            Some(ReviewStatus::NeedsWork)
+        assert_eq!(ReviewStatus::parse("to-fix"), Some(ReviewStatus::ToFix));
+        assert_eq!(ReviewStatus::parse("needs-work"), Some(ReviewStatus::ToFix));
+        // files written before the rename still load; new files use the new spelling
+        let old = r#"{"op":"review","node":"a","status":"needs-work","author":"ana","time":"2026-12-02T10:00:00Z"}"#;
+        let rec: EditRecord = serde_json::from_str(old).unwrap();
+        assert!(
+            serde_json::to_string(&rec)
+                .unwrap()
+                .contains(r#""status":"to-fix""#)
         );
     }
 }

@@ -6,18 +6,19 @@ use crate::model::Project;
 
 use egui::{Id, Modal};
 
-use super::super::context::{Action, ExportFormat, ViewCtx};
+use super::super::context::{Action, ViewCtx};
 use super::{DialogOut, ok_cancel};
+use crate::model::export::Format;
 
 /// State of the export dialog.
 pub struct ExportDialog {
-    format: ExportFormat,
+    format: Format,
     path: String,
     base_iri: String,
     scheme_label: String,
 }
 
-fn default_path(project: &Project, f: ExportFormat) -> String {
+fn default_path(project: &Project, f: Format) -> String {
     project
         .dir
         .join("exports")
@@ -36,8 +37,8 @@ impl ExportDialog {
             .map(|c| if c.is_ascii_alphanumeric() { c } else { '-' })
             .collect();
         ExportDialog {
-            format: ExportFormat::Skos,
-            path: default_path(view.project, ExportFormat::Skos),
+            format: Format::Skos,
+            path: default_path(view.project, Format::Skos),
             base_iri: format!("https://example.org/{}/", slug.trim_matches('-')),
             scheme_label: name,
         }
@@ -52,9 +53,9 @@ impl ExportDialog {
             let before = self.format;
             ui.horizontal(|ui| {
                 ui.label("Format:");
-                ui.radio_value(&mut self.format, ExportFormat::Skos, "SKOS (Turtle)");
-                ui.radio_value(&mut self.format, ExportFormat::Csv, "CSV");
-                ui.radio_value(&mut self.format, ExportFormat::Json, "JSON");
+                ui.radio_value(&mut self.format, Format::Skos, "SKOS (Turtle)");
+                ui.radio_value(&mut self.format, Format::Csv, "CSV");
+                ui.radio_value(&mut self.format, Format::Json, "JSON");
             });
             if before != self.format && self.path == default_path(view.project, before) {
                 self.path = default_path(view.project, self.format);
@@ -79,7 +80,7 @@ impl ExportDialog {
                         }
                     });
                     ui.end_row();
-                    if self.format == ExportFormat::Skos {
+                    if self.format == Format::Skos {
                         ui.label("Base IRI:");
                         ui.add(
                             egui::TextEdit::singleline(&mut self.base_iri).hint_text("base IRI"),

@@ -1,4 +1,4 @@
-//! Record a review decision (approved / needs work) with a comment.
+//! Record a review decision (approved / to fix) with a comment.
 
 use egui::{Id, Modal};
 
@@ -46,7 +46,7 @@ impl ReviewDialog {
             ui.heading(format!("Review \"{label}\""));
             ui.horizontal(|ui| {
                 ui.radio_value(&mut self.status, ReviewStatus::Approved, "Approved");
-                ui.radio_value(&mut self.status, ReviewStatus::NeedsWork, "Needs work");
+                ui.radio_value(&mut self.status, ReviewStatus::ToFix, "To fix");
                 ui.radio_value(&mut self.status, ReviewStatus::Unreviewed, "Unreviewed");
             });
             ui.label("Comment:");
@@ -61,9 +61,9 @@ impl ReviewDialog {
                 self.focused = true;
             }
             let needs_comment =
-                self.status == ReviewStatus::NeedsWork && self.comment.trim().is_empty();
+                self.status == ReviewStatus::ToFix && self.comment.trim().is_empty();
             if needs_comment {
-                ui.label("Say what needs work so the curator knows what to change.");
+                ui.label("Say what is to fix so the curator knows what to change.");
             }
             let (ok, cancel) = ok_cancel(ui, "Record review", !needs_comment);
             if ok {

@@ -31,7 +31,9 @@ impl SignoffDialog {
         };
         let errors = view.open_findings(Severity::Error);
         let warnings = view.open_findings(Severity::Warning) - errors;
-        let all_open = view.open_findings(Severity::Info);
+        // recorded with the sign-off: warnings and errors, as `treewright signoff` counts them
+        let counted = errors + warnings;
+        let infos = view.open_findings(Severity::Info) - counted;
         let unreviewed = view.unreviewed;
         let resp = Modal::new(Id::unique("signoff-dialog")).show(ctx, |ui| {
             ui.set_width(440.0);
@@ -40,8 +42,7 @@ impl SignoffDialog {
             egui::Grid::new("signoff-grid").num_columns(2).show(ui, |ui| {
                 ui.label("Open findings:");
                 ui.label(format!(
-                    "{all_open} ({errors} error, {warnings} warning, {} info)",
-                    all_open - errors - warnings
+                    "{counted} ({errors} error, {warnings} warning; {infos} info not counted)"
                 ));
                 ui.end_row();
                 ui.label("Unreviewed nodes:");
@@ -75,7 +76,7 @@ impl SignoffDialog {
             let edit = Edit::Signoff {
                 reviewer: reviewer.clone(),
                 tree_hash: hash.clone(),
-                open_findings: all_open,
+                open_findings: counted,
                 unreviewed,
             };
             let check = if reviewer.is_empty() {
