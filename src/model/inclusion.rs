@@ -2,7 +2,7 @@
 //! contains it, chosen for the whole tree at once.
 //!
 //! 1. **Candidates.** A phrase p is a candidate parent of c when it is broader by the
-//!    generality margin: ln det Σp ≥ ln det Σc + [`InclusionParams::generality_margin`] (a
+//!    generality margin: ln det Σp > ln det Σc + [`InclusionParams::generality_margin`] (a
 //!    negative margin also admits slightly narrower parents; the arborescence then resolves
 //!    the cycles this allows). Each candidate edge costs
 //!    `cost(c, p) = D(c ‖ p) + breadth_weight · (ln det Σp − ln det Σc)`, D being the
@@ -77,17 +77,30 @@ impl InclusionCost {
     }
 }
 
+/// How the root is chosen.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum InclusionRoot {
+    /// The broadest phrase (largest ln det Σ; equal: the lower row).
+    Broadest,
+    /// Among the [`InclusionParams::broad_pool`] broadest phrases, the one that covers the
+    /// others best: the lowest mean divergence D(c ‖ root) over every phrase c (a sample of
+    /// at most 4096 evenly spaced rows above that size).
+    BestCover,
+}
+
 /// Everything that steers an inclusion build. Check with [`InclusionParams::check`].
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct InclusionParams {
     /// Candidate parents kept per phrase (the cheapest). ≥ 1.
     pub candidates_per_node: usize,
-    /// A candidate parent must have ln det Σ ≥ the child's + this (nats). Finite; may be
+    /// A candidate parent must have ln det Σ > the child's + this (nats). Finite; may be
     /// negative (admits slightly narrower parents).
     pub generality_margin: f64,
     /// Extra weight on the parent's breadth, ln det Σp − ln det Σc, in the cost (0 = the
-    /// divergence alone; larger prefers the tightest container). Finite, ≥ 0.
+    /// divergence alone; positive prefers the tightest container, negative a broader one).
+    /// Finite, > −0.5 (KL itself weighs the breadth by 0.5).
     pub breadth_weight: f64,
     /// Deepest allowed node (root = 0), 1 ..= 64; None = no limit.
     pub max_depth: Option<usize>,
@@ -107,6 +120,8 @@ pub struct InclusionParams {
     pub index_iterations: usize,
     /// Rounds of the refinement pass (0 = off).
     pub refine_rounds: usize,
+    /// How the root is chosen.
+    pub root: InclusionRoot,
     /// Seed of the index's initial centroids (the only random choice).
     pub seed: u64,
 }
@@ -126,6 +141,7 @@ impl Default for InclusionParams {
             broad_pool: 32,
             index_iterations: 6,
             refine_rounds: 4,
+            root: InclusionRoot::BestCover,
             seed: 0,
         }
     }
@@ -178,10 +194,10 @@ impl InclusionParams {
             "must be a finite number",
         )?;
         rule(
-            p.breadth_weight.is_finite() && p.breadth_weight >= 0.0,
+            p.breadth_weight.is_finite() && p.breadth_weight > -0.5,
             "breadth_weight",
             p.breadth_weight.to_string(),
-            "must be a finite number ≥ 0",
+            "must be a finite number > −0.5",
         )?;
         if let Some(d) = p.max_depth {
             rule(
@@ -393,6 +409,41 @@ impl Scorer<'_> {
             (InclusionCost::Bhattacharyya, _) => bhattacharyya_distance(&g.get(c), &g.get(p)),
         };
         base + self.breadth * (ldp - ldc)
+    }
+}
+
+/// The root's local index: see [`InclusionRoot`]. Only phrases without a fixed parent
+/// qualify; None when there is none.
+fn choose_root(
+    members: &[u32],
+    fixed_parent: &[Option<u32>],
+    by_breadth: &dyn Fn(&u32, &u32) -> std::cmp::Ordering,
+    params: &InclusionParams,
+    scorer: &Scorer,
+) -> Option<usize> {
+    let mut free: Vec<usize> = (0..members.len())
+        .filter(|&i| fixed_parent[i].is_none())
+        .collect();
+    free.sort_by(|&a, &b| by_breadth(&members[a], &members[b]));
+    match params.root {
+        InclusionRoot::Broadest => free.first().copied(),
+        InclusionRoot::BestCover => {
+            let pool = &free[..free.len().min(params.broad_pool.max(1))];
+            let step = members.len().div_ceil(4096).max(1);
+            let sample: Vec<usize> = (0..members.len()).step_by(step).collect();
+            let score = |r: usize| -> f64 {
+                sample
+                    .iter()
+                    .filter(|&&c| c != r)
+                    .map(|&c| scorer.cost(members[c] as usize, members[r] as usize))
+                    .sum::<f64>()
+            };
+            let scores: Vec<f64> = pool.par_iter().map(|&r| score(r)).collect();
+            pool.iter()
+                .zip(&scores)
+                .min_by(|a, b| a.1.partial_cmp(b.1).unwrap_or(std::cmp::Ordering::Equal))
+                .map(|(&r, _)| r)
+        }
     }
 }
 
@@ -613,17 +664,15 @@ pub fn build_inclusion(
             .unwrap_or(std::cmp::Ordering::Equal)
             .then(a.cmp(b))
     };
-    let root_local = (0..m)
-        .filter(|&i| fixed_parent[i].is_none())
-        .min_by(|&a, &b| by_breadth(&members[a], &members[b]))
-        .ok_or_else(|| InclusionError::FixedCycle(phrases.id(members[0]).to_string()))?;
-    let root = members[root_local];
     let scorer = Scorer {
         g,
         cost: params.cost,
         breadth: params.breadth_weight,
         d: g.dim() as f64,
     };
+    let root_local = choose_root(&members, &fixed_parent, &by_breadth, params, &scorer)
+        .ok_or_else(|| InclusionError::FixedCycle(phrases.id(members[0]).to_string()))?;
+    let root = members[root_local];
     let k = params.candidates_per_node;
     let margin = params.generality_margin;
     let mut stats = InclusionStats::default();
@@ -664,14 +713,14 @@ pub fn build_inclusion(
         let floor = ld[c] + margin;
         let consider = |top: &mut Vec<Cand>, p: u32| {
             let pu = p as usize;
-            if pu != c && pu != root as usize && ld[pu] >= floor {
+            if pu != c && pu != root as usize && ld[pu] > floor {
                 push_top(top, k, (scorer.cost(c, pu), p));
             }
         };
         match &index {
             None => {
                 for &p in &order {
-                    if ld[p as usize] < floor {
+                    if ld[p as usize] <= floor {
                         break;
                     }
                     consider(&mut top, p);
@@ -680,7 +729,7 @@ pub fn build_inclusion(
             Some(ix) => {
                 for cell in ix.nearest(g.mean(c), params.probe) {
                     for &p in &ix.cells[cell as usize] {
-                        if ld[p as usize] < floor {
+                        if ld[p as usize] <= floor {
                             break;
                         }
                         consider(&mut top, p);
