@@ -263,6 +263,7 @@ fn unlimited_inclusion_equals_the_cheapest_broader_parent() {
         &[],
         InclusionParams {
             root: InclusionRoot::Broadest,
+            generality_margin: 0.0,
             candidates_per_node: 3,
             ..InclusionParams::default()
         },

@@ -38,6 +38,13 @@
 //!    already optimal for this additive cost, so the pass moves nothing then.
 //!
 //! Same input and parameters give identical output on any thread count.
+//!
+//! **Defaults** (KL cost, margin 1 nat, no breadth weight, root by best cover, 8 candidates)
+//! were chosen by ancestor-pair F1 averaged over the eight real check sets of
+//! `benches/real/` from a small grid (cost KL / Bhattacharyya, margin −10 … 4, breadth
+//! weight −0.3 … 1, root broadest / best cover; `tests/inclusion_real.rs`, test `grid`). There
+//! was no held-out set, and apart from the root choice the differences between the better
+//! grid points are small (±0.01 F1 on average).
 
 use std::collections::BTreeMap;
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
@@ -133,7 +140,7 @@ impl Default for InclusionParams {
     fn default() -> Self {
         InclusionParams {
             candidates_per_node: 8,
-            generality_margin: 0.0,
+            generality_margin: 1.0,
             breadth_weight: 0.0,
             max_depth: None,
             max_fanout: None,
