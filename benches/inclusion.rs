@@ -54,7 +54,9 @@ fn reset_hwm() {
 
 fn bench_size(c: &mut Criterion, n: usize) {
     let (phrases, g, truth) = synthetic_gaussians(&spec(n));
-    let params = InclusionParams::default().check().expect("defaults are valid");
+    let params = InclusionParams::default()
+        .check()
+        .expect("defaults are valid");
     let cancel = AtomicBool::new(false);
     reset_hwm();
     let before = vm_hwm_kb();
