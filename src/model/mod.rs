@@ -1,6 +1,7 @@
 //! Pure data and maths: phrases, Gaussians, trees, projects and everything computed from
 //! them. Nothing in here knows about egui.
 
+pub mod arborescence;
 pub mod audit;
 pub mod builder;
 pub mod diff;
@@ -9,6 +10,7 @@ pub mod effective;
 pub mod export;
 pub mod fsutil;
 pub mod gaussian;
+pub mod inclusion;
 pub mod info;
 mod kernels;
 pub mod kmeans;
