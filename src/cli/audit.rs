@@ -1,5 +1,8 @@
 //! `treewright audit PROJECT [--format text|json|csv|md] [--out FILE] [--fail-on warning|error]
-//! [--rule RULE...]`.
+//! [--rule RULE...] [--known-errors FILE]`.
+//!
+//! With `--known-errors FILE` the output is the audit measured against that list
+//! ([`evaluate`](crate::model::audit::evaluate)) instead of the report: text or JSON.
 
 use std::fmt::Write as _;
 use std::io::Write as _;
@@ -10,6 +13,7 @@ use serde::Serialize;
 
 use super::CliError;
 use super::edit::Session;
+use crate::model::audit::evaluate::{evaluate, read_known_errors};
 use crate::model::audit::{AuditConfig, AuditReport, Finding, RULES, Severity, audit};
 use crate::model::edit::{Edit, EditRecord};
 use crate::model::effective::EffectiveTree;
@@ -56,6 +60,11 @@ pub struct AuditArgs {
     /// Only these rules (repeatable).
     #[arg(long = "rule", value_name = "RULE", num_args = 1..)]
     pub rules: Vec<String>,
+    /// Measure the audit against a JSON list of known errors
+    /// (`{"node", "true_parent"?, "kind"?, "duplicate_of"?}`) and print the figures
+    /// (text, or JSON with `--format json`) instead of the report.
+    #[arg(long, value_name = "FILE")]
+    pub known_errors: Option<PathBuf>,
 }
 
 /// The sign-off state of the effective tree.
@@ -469,6 +478,9 @@ pub fn run(args: &AuditArgs) -> Result<(), CliError> {
     let cfg = AuditConfig::of_project(project).map_err(CliError::bad_input)?;
     let (eff, problems) = session.effective();
     let report = audit(&project.gaussians, &project.phrases, &eff, &problems, &cfg);
+    if let Some(path) = &args.known_errors {
+        return run_evaluation(args, path, &project.phrases, &report);
+    }
     let findings: Vec<&Finding> = report
         .findings
         .iter()
@@ -525,4 +537,43 @@ pub fn run(args: &AuditArgs) -> Result<(), CliError> {
         }
     }
     Ok(())
+}
+
+/// `--known-errors`: measure the report and print the figures.
+fn run_evaluation(
+    args: &AuditArgs,
+    path: &std::path::Path,
+    phrases: &PhraseTable,
+    report: &AuditReport,
+) -> Result<(), CliError> {
+    let known = read_known_errors(path, phrases).map_err(CliError::bad_input)?;
+    let ev = evaluate(report, phrases, &known);
+    let text = match args.format {
+        Format::Text => ev.text(),
+        Format::Json => {
+            let mut s = serde_json::to_string_pretty(&ev)
+                .map_err(|e| CliError::bad_input(format!("cannot serialise: {e}")))?;
+            s.push('\n');
+            s
+        }
+        Format::Csv | Format::Md => {
+            return Err(CliError::bad_input(
+                "--known-errors: the figures are printed as text or json (--format)",
+            ));
+        }
+    };
+    match &args.out {
+        Some(p) => atomic_write_with(p, false, |w| w.write_all(text.as_bytes())).map_err(|e| {
+            CliError::bad_input(format!("{}: cannot write the figures: {e}", p.display()))
+        }),
+        None => {
+            let mut w = std::io::stdout().lock();
+            match w.write_all(text.as_bytes()).and_then(|()| w.flush()) {
+                Err(e) if e.kind() != std::io::ErrorKind::BrokenPipe => Err(CliError::bad_input(
+                    format!("cannot write the figures to standard output: {e}"),
+                )),
+                _ => Ok(()),
+            }
+        }
+    }
 }

@@ -73,6 +73,7 @@ use super::stats::Stats;
 
 mod auditor;
 mod config;
+pub mod evaluate;
 mod rules;
 mod search;
 
