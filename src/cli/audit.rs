@@ -133,6 +133,7 @@ struct JsonSuggestion<'a> {
 
 #[derive(Serialize)]
 struct JsonFinding<'a> {
+    confidence: f64,
     explanation: &'a str,
     label: &'a str,
     node: &'a str,
@@ -188,6 +189,7 @@ impl Serialize for JsonFindings<'_, '_> {
         let mut seq = ser.serialize_seq(Some(view.findings.len()))?;
         for f in &view.findings {
             seq.serialize_element(&JsonFinding {
+                confidence: f.confidence,
                 explanation: &f.explanation,
                 label: view.eff.label(f.node),
                 node: view.phrases.id(f.node),
@@ -295,6 +297,7 @@ impl View<'_> {
             "label",
             "score",
             "threshold",
+            "confidence",
             "accepted",
             "action",
             "target",
@@ -312,6 +315,7 @@ impl View<'_> {
                 self.eff.label(f.node),
                 &format!("{:.6}", f.score),
                 &format!("{:.6}", f.threshold),
+                &format!("{:.4}", f.confidence),
                 if f.accepted { "true" } else { "false" },
                 action,
                 target,
@@ -427,19 +431,20 @@ impl View<'_> {
         } else {
             let _ = writeln!(
                 s,
-                "| # | severity | rule | node | score | threshold | explanation | suggestion |"
+                "| # | severity | rule | node | score | threshold | confidence | explanation | suggestion |"
             );
-            let _ = writeln!(s, "|---:|---|---|---|---:|---:|---|---|");
+            let _ = writeln!(s, "|---:|---|---|---|---:|---:|---:|---|---|");
             for (i, f) in open.iter().take(TOP).enumerate() {
                 let _ = writeln!(
                     s,
-                    "| {} | {} | {} | {} | {:.4} | {:.4} | {} | {} |",
+                    "| {} | {} | {} | {} | {:.4} | {:.4} | {:.2} | {} | {} |",
                     i + 1,
                     f.severity.as_str(),
                     f.rule,
                     esc(self.phrases.id(f.node)),
                     f.score,
                     f.threshold,
+                    f.confidence,
                     esc(&f.explanation),
                     esc(&Self::suggestion_text(f))
                 );

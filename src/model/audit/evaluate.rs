@@ -434,6 +434,7 @@ mod tests {
             other: None,
             score: 1.0,
             threshold: 0.5,
+            confidence: 0.5,
             explanation: String::new(),
             suggestion: Some(Suggestion {
                 action: "reparent".into(),
