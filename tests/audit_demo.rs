@@ -99,12 +99,15 @@ fn fail_on_error_passes_after_the_suggested_fixes() {
             "label",
             "score",
             "threshold",
+            "confidence",
             "explanation",
             "suggestion",
         ] {
             assert!(f.get(k).is_some(), "{k} missing in {f}");
         }
-        assert_eq!(f.as_object().unwrap().len(), 8);
+        assert_eq!(f.as_object().unwrap().len(), 9);
+        let c = f["confidence"].as_f64().unwrap();
+        assert!((0.0..=1.0).contains(&c), "{f}");
     }
     assert!(v["summary"]["open_errors"].as_u64().unwrap() >= 1);
     let fail = run(&["audit", d, "--fail-on", "error", "--format", "md"]);

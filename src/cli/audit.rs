@@ -1,5 +1,8 @@
 //! `treewright audit PROJECT [--format text|json|csv|md] [--out FILE] [--fail-on warning|error]
-//! [--rule RULE...]`.
+//! [--rule RULE...] [--known-errors FILE]`.
+//!
+//! With `--known-errors FILE` the output is the audit measured against that list
+//! ([`evaluate`](crate::model::audit::evaluate)) instead of the report: text or JSON.
 
 use std::fmt::Write as _;
 use std::io::Write as _;
@@ -10,6 +13,7 @@ use serde::Serialize;
 
 use super::CliError;
 use crate::model::Workspace;
+use crate::model::audit::evaluate::{evaluate, read_known_errors};
 use crate::model::audit::{AuditConfig, AuditReport, Finding, RULES, Severity};
 use crate::model::edit::{Edit, EditRecord};
 use crate::model::effective::EffectiveTree;
@@ -56,6 +60,11 @@ pub struct AuditArgs {
     /// Only these rules (repeatable).
     #[arg(long = "rule", value_name = "RULE", num_args = 1..)]
     pub rules: Vec<String>,
+    /// Measure the audit against a JSON list of known errors
+    /// (`{"node", "true_parent"?, "kind"?, "duplicate_of"?}`) and print the figures
+    /// (text, or JSON with `--format json`) instead of the report.
+    #[arg(long, value_name = "FILE")]
+    pub known_errors: Option<PathBuf>,
 }
 
 /// The sign-off state of the effective tree.
@@ -124,6 +133,7 @@ struct JsonSuggestion<'a> {
 
 #[derive(Serialize)]
 struct JsonFinding<'a> {
+    confidence: f64,
     explanation: &'a str,
     label: &'a str,
     node: &'a str,
@@ -179,6 +189,7 @@ impl Serialize for JsonFindings<'_, '_> {
         let mut seq = ser.serialize_seq(Some(view.findings.len()))?;
         for f in &view.findings {
             seq.serialize_element(&JsonFinding {
+                confidence: f.confidence,
                 explanation: &f.explanation,
                 label: view.eff.label(f.node),
                 node: view.phrases.id(f.node),
@@ -286,6 +297,7 @@ impl View<'_> {
             "label",
             "score",
             "threshold",
+            "confidence",
             "accepted",
             "action",
             "target",
@@ -303,6 +315,7 @@ impl View<'_> {
                 self.eff.label(f.node),
                 &format!("{:.6}", f.score),
                 &format!("{:.6}", f.threshold),
+                &format!("{:.4}", f.confidence),
                 if f.accepted { "true" } else { "false" },
                 action,
                 target,
@@ -418,19 +431,20 @@ impl View<'_> {
         } else {
             let _ = writeln!(
                 s,
-                "| # | severity | rule | node | score | threshold | explanation | suggestion |"
+                "| # | severity | rule | node | score | threshold | confidence | explanation | suggestion |"
             );
-            let _ = writeln!(s, "|---:|---|---|---|---:|---:|---|---|");
+            let _ = writeln!(s, "|---:|---|---|---|---:|---:|---:|---|---|");
             for (i, f) in open.iter().take(TOP).enumerate() {
                 let _ = writeln!(
                     s,
-                    "| {} | {} | {} | {} | {:.4} | {:.4} | {} | {} |",
+                    "| {} | {} | {} | {} | {:.4} | {:.4} | {:.2} | {} | {} |",
                     i + 1,
                     f.severity.as_str(),
                     f.rule,
                     esc(self.phrases.id(f.node)),
                     f.score,
                     f.threshold,
+                    f.confidence,
                     esc(&f.explanation),
                     esc(&Self::suggestion_text(f))
                 );
@@ -469,6 +483,9 @@ pub fn run(args: &AuditArgs) -> Result<(), CliError> {
     let cfg = ws.audit_config()?;
     let eff = ws.effective()?;
     let report = ws.audit_now()?;
+    if let Some(path) = &args.known_errors {
+        return run_evaluation(args, path, &project.phrases, &report);
+    }
     let findings: Vec<&Finding> = report
         .findings
         .iter()
@@ -525,4 +542,43 @@ pub fn run(args: &AuditArgs) -> Result<(), CliError> {
         }
     }
     Ok(())
+}
+
+/// `--known-errors`: measure the report and print the figures.
+fn run_evaluation(
+    args: &AuditArgs,
+    path: &std::path::Path,
+    phrases: &PhraseTable,
+    report: &AuditReport,
+) -> Result<(), CliError> {
+    let known = read_known_errors(path, phrases).map_err(CliError::bad_input)?;
+    let ev = evaluate(report, phrases, &known);
+    let text = match args.format {
+        Format::Text => ev.text(),
+        Format::Json => {
+            let mut s = serde_json::to_string_pretty(&ev)
+                .map_err(|e| CliError::bad_input(format!("cannot serialise: {e}")))?;
+            s.push('\n');
+            s
+        }
+        Format::Csv | Format::Md => {
+            return Err(CliError::bad_input(
+                "--known-errors: the figures are printed as text or json (--format)",
+            ));
+        }
+    };
+    match &args.out {
+        Some(p) => atomic_write_with(p, false, |w| w.write_all(text.as_bytes())).map_err(|e| {
+            CliError::bad_input(format!("{}: cannot write the figures: {e}", p.display()))
+        }),
+        None => {
+            let mut w = std::io::stdout().lock();
+            match w.write_all(text.as_bytes()).and_then(|()| w.flush()) {
+                Err(e) if e.kind() != std::io::ErrorKind::BrokenPipe => Err(CliError::bad_input(
+                    format!("cannot write the figures to standard output: {e}"),
+                )),
+                _ => Ok(()),
+            }
+        }
+    }
 }

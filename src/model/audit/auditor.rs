@@ -53,7 +53,7 @@ pub struct Auditor {
     pub(super) cfg: AuditConfig,
     pub(super) engine: StatsEngine,
     pub(super) index: CandidateIndex,
-    placement: Vec<Placement>,
+    pub(super) placement: Vec<Placement>,
     snapshot: Snapshot,
     pub(super) report: AuditReport,
 }

@@ -12,9 +12,9 @@
 //! # Rules (defaults in [`AuditConfig`])
 //! | rule | severity | fires when | suggestion |
 //! |---|---|---|---|
-//! | `inverted-generality` | error | ln det Σ(child) − ln det Σ(parent) > `inversion_margin` | reparent to the best broader node |
-//! | `weak-inclusion` | warning | containment in the parent < `containment_min` | reparent to the best broader node, else review |
-//! | `better-parent` | error | a node broader than the child by more than `better_parent_broader` nats, not its descendant, has KL(child ‖ it) lower than KL(child ‖ parent) by more than max(`better_parent_margin`, `better_parent_ratio` · KL(child ‖ parent)) and contains the child at least as well as the parent, up to `better_parent_containment_slack` | reparent to it |
+//! | `inverted-generality` | by confidence | ln det Σ(child) − ln det Σ(parent) > `inversion_margin` | reparent to the best broader node |
+//! | `weak-inclusion` | by confidence | containment in the parent < `containment_min` | reparent to the best broader node, else review |
+//! | `better-parent` | by confidence | a node broader than the child by more than `better_parent_broader` nats, not its descendant, has KL(child ‖ it) lower than KL(child ‖ parent) by more than max(`better_parent_margin`, `better_parent_ratio` · KL(child ‖ parent)) and contains the child at least as well as the parent, up to `better_parent_containment_slack` | reparent to it |
 //! | `near-duplicate` | warning | BC ≥ `duplicate_bc_min` and abs(Δ ln det Σ) ≤ `duplicate_generality_margin` | merge the smaller subtree into the larger |
 //! | `coverage-gap` | warning | a node with ≥ 2 children whose children cover less than t = min(`coverage_min`, `coverage_relative` × the median coverage of such nodes) of it, by more than two standard errors at t (√(t (1 − t) / N)) | review |
 //! | `single-child-chain` | info | a chain of ≥ `single_child_chain_min` nodes with exactly one child (reported at its top) | review |
@@ -23,14 +23,19 @@
 //! | `stale-edit` | warning | an override edit that could not be applied (reported on the root) | review the override layer |
 //! | `unreviewed` | info | nodes not yet reviewed (one finding on the root, score = their share) | review |
 //!
-//! Severities can be changed per rule (`severity` in the config). A finding whose node is
+//! The severity of the three placement rules follows the finding's confidence
+//! ([`confidence`]): `error` when the false-discovery rate q ≤ 0.01, `warning` when q ≤ 0.05,
+//! else `info` ("consider"); on projects too small to test, their defaults (error, warning,
+//! error). Severities can be changed per rule (`severity` in the config; a configured
+//! severity is used as is). A finding whose node is
 //! reviewed as approved stays in the list marked `accepted`; so do the placement findings
 //! (`inverted-generality`, `weak-inclusion`, `better-parent`) of a pinned node, which get no
 //! reparent edit. Merged-away and excluded phrases are not nodes and are not audited.
 //!
 //! # Ranking
-//! Open findings first, then by severity (error first), then by how far past the threshold
-//! the score is, relative to the threshold: |score − threshold| / max(|threshold|, 0.05);
+//! Open findings first, then by severity (error first), then by confidence (highest first),
+//! then by the p-value behind it (lowest first), then by how far past the threshold the
+//! score is, relative to the threshold: |score − threshold| / max(|threshold|, 0.05);
 //! ties by rule, node row and partner row, so the order is deterministic.
 //!
 //! # Candidate pruning (`better-parent`, `near-duplicate`, `unplaced`)
@@ -72,7 +77,9 @@ use super::phrase::PhraseTable;
 use super::stats::Stats;
 
 mod auditor;
+pub mod confidence;
 mod config;
+pub mod evaluate;
 mod rules;
 mod search;
 
@@ -173,6 +180,10 @@ pub struct Finding {
     pub score: f64,
     /// The threshold it was compared with.
     pub threshold: f64,
+    /// How sure the finding is, in [0, 1]: for the placement rules 1 − the
+    /// false-discovery rate of the node's outlier test ([`confidence`]), for the other rules
+    /// (and projects too small to test) 1.
+    pub confidence: f64,
     /// One line for a person.
     pub explanation: String,
     /// Suggested fix.
@@ -289,6 +300,8 @@ fn assemble_with(
         }
     }
     let (cov_thr, unreviewed) = (ctx.coverage_threshold, ctx.unreviewed);
+    let conf = &ctx.confidence;
+    let p_of = |f: &Finding| conf.p_value_of(f.rule, f.node);
     let rule_pos = |r: &str| Rule::from_id(r).map_or(RULES.len(), Rule::position);
     // the keys end in (node, other) and, for findings that share those (several stale
     // edits on the root), the explanation, so the order is total and an in-place unstable
@@ -297,6 +310,8 @@ fn assemble_with(
         a.accepted
             .cmp(&b.accepted)
             .then(b.severity.cmp(&a.severity))
+            .then(b.confidence.total_cmp(&a.confidence))
+            .then_with(|| p_of(a).total_cmp(&p_of(b)))
             .then(b.excess().total_cmp(&a.excess()))
             .then(rule_pos(a.rule).cmp(&rule_pos(b.rule)))
             .then(a.node.cmp(&b.node))

@@ -638,8 +638,52 @@ fn update_equals_a_full_recompute() {
         })
         .collect();
     let stats = fresh.engine.compute(&g, &eff2);
-    let want = assemble(&g, &nest.phrases, &eff2, &[], &fresh.cfg, stats, &placement);
-    assert_eq!(r2, want);
+    let want = assemble(
+        &g,
+        &nest.phrases,
+        &eff2,
+        &[],
+        &fresh.cfg,
+        stats.clone(),
+        &placement,
+    );
+    // the update keeps the candidate searches of nodes no edit touched (module
+    // documentation), and the confidences read every node's search: given the auditor's own
+    // searches the update equals a full assemble exactly
+    let same_search = assemble(
+        &g,
+        &nest.phrases,
+        &eff2,
+        &[],
+        &fresh.cfg,
+        stats,
+        &auditor.placement,
+    );
+    assert_eq!(r2, same_search);
+    // against fresh searches everywhere, the findings agree except for the confidences
+    // (and the severities that follow them)
+    let strip = |r: &AuditReport| -> Vec<Finding> {
+        let mut v: Vec<Finding> = r
+            .findings
+            .iter()
+            .map(|f| Finding {
+                confidence: 0.0,
+                severity: Severity::Info,
+                ..f.clone()
+            })
+            .collect();
+        v.sort_by(|a, b| {
+            (a.rule, a.node, a.other, &a.explanation).cmp(&(
+                b.rule,
+                b.node,
+                b.other,
+                &b.explanation,
+            ))
+        });
+        v
+    };
+    assert_eq!(strip(&r2), strip(&want));
+    assert_eq!(r2.stats, want.stats);
 }
 
 #[test]

@@ -19,6 +19,7 @@ use crate::model::gaussian::PhraseId;
 use crate::model::phrase::PhraseTable;
 use crate::model::stats::Stats;
 
+use super::confidence::{self, Confidences};
 use super::search::Placement;
 
 mod better_parent;
@@ -122,17 +123,15 @@ impl Rule {
     /// Whether the findings of a node depend only on that node's own figures (parent and
     /// child statistics, candidate search, review, pin, labels of it and its partner), so
     /// the incremental re-audit may keep them for nodes an edit did not touch. Pairs
-    /// (`near-duplicate`), tree-relative thresholds (`coverage-gap`) and tree-wide rules are
+    /// (`near-duplicate`), tree-relative thresholds (`coverage-gap`), the placement rules
+    /// (their confidence is relative to the whole tree's scores) and tree-wide rules are
     /// not node-local.
     pub const fn node_local(self) -> bool {
+        // the placement rules are not: their confidence (and so severity) depends on the
+        // distribution of every node's scores
         matches!(
             self,
-            Rule::Unplaced
-                | Rule::InvertedGenerality
-                | Rule::WeakInclusion
-                | Rule::BetterParent
-                | Rule::WideFanout
-                | Rule::SingleChildChain
+            Rule::Unplaced | Rule::WideFanout | Rule::SingleChildChain
         )
     }
 
@@ -202,9 +201,19 @@ impl Rule {
         suggestion: Suggestion,
         accepted: bool,
     ) -> Finding {
+        let tested = match self {
+            Rule::BetterParent | Rule::WeakInclusion => ctx.confidence.misplaced[node as usize],
+            Rule::InvertedGenerality => ctx.confidence.inverted[node as usize],
+            _ => None,
+        };
+        let severity = match tested {
+            Some(c) if !ctx.cfg.severity.contains_key(self.id()) => confidence::level(c),
+            _ => ctx.cfg.severity_of(self.id()),
+        };
         Finding {
             rule: self.id(),
-            severity: ctx.cfg.severity_of(self.id()),
+            severity,
+            confidence: tested.unwrap_or(1.0),
             node,
             other,
             score,
@@ -235,6 +244,8 @@ pub(super) struct Ctx<'a> {
     pub coverage_threshold: f64,
     /// Nodes of the tree whose review status is unreviewed.
     pub unreviewed: usize,
+    /// Confidence of the placement findings per node.
+    pub confidence: Confidences,
 }
 
 impl<'a> Ctx<'a> {
@@ -262,6 +273,7 @@ impl<'a> Ctx<'a> {
             placement,
             coverage_threshold: Ctx::coverage_threshold_of(eff, cfg, stats),
             unreviewed,
+            confidence: Confidences::of(eff, stats, placement),
         }
     }
 
