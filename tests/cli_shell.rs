@@ -217,7 +217,16 @@ fn every_subcommand_fails_as_the_readme_table_says() {
         code: 2,
         stdout_empty: true,
     });
-    // a check failed (exit 1)
+    // a check failed (exit 1); the demo has open warnings (its README lists the planted flaws)
+    let demo = tmp.path().join("demo").display().to_string();
+    let o = tw(&["sample", "--out", &demo]);
+    assert_eq!(o.status.code(), Some(0), "{}", err(&o));
+    rows.push(Failure {
+        verb: "audit",
+        args: s(&["audit", &demo, "--fail-on", "warning"]),
+        code: 1,
+        stdout_empty: false, // the report is still written
+    });
     rows.push(Failure {
         verb: "verify",
         args: s(&["verify", &p]),
