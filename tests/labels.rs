@@ -213,5 +213,44 @@ fn a_hand_edited_rename_with_a_control_character_is_skipped_not_exported() {
     assert!(said.contains("skipped edit #0 (rename)"), "{said}");
     assert!(said.contains("U+0007"), "{said}");
     let labels = exported_labels(d.path(), "succulent");
-    assert_eq!(labels, ["succulent", "succulent"], "no rename in the JSON export");
+    assert_eq!(
+        labels,
+        ["succulent", "succulent"],
+        "no rename in the JSON export"
+    );
+}
+
+#[test]
+fn the_scheme_label_and_the_project_name_follow_the_same_rule() {
+    let d = common::project();
+    let p = d.path().to_str().unwrap();
+    let ttl = d.path().join("out.ttl");
+    let t = ttl.to_str().unwrap();
+    let o = tw(&[
+        "export",
+        p,
+        "--format",
+        "skos",
+        "--out",
+        t,
+        "--scheme-label",
+        "Fern\u{7}hollow",
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(err(&o).contains("--scheme-label: the label holds the control character U+0007"));
+    assert!(!ttl.exists());
+    let manifest = d.path().join("project.json");
+    let text = std::fs::read_to_string(&manifest).unwrap();
+    std::fs::write(
+        &manifest,
+        text.replace("Fernhollow test", "Fernhollow\\ttest"),
+    )
+    .unwrap();
+    let o = tw(&["info", p]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(
+        err(&o).contains("project.json") && err(&o).contains("U+0009"),
+        "{}",
+        err(&o)
+    );
 }

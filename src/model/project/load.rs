@@ -73,7 +73,7 @@ impl Project {
             (dir, path.to_path_buf())
         };
         let mfile = manifest_path.display().to_string();
-        let manifest: Manifest = read_json(&manifest_path)?;
+        let mut manifest: Manifest = read_json(&manifest_path)?;
         if manifest.format != FORMAT_NAME {
             return Err(LoadError::invalid(
                 &mfile,
@@ -90,6 +90,15 @@ impl Project {
                     manifest.version
                 ),
             ));
+        }
+        // the project name is the default label of the SKOS concept scheme: same label rule
+        let name = match label::clean(&manifest.name) {
+            Ok(l) if l != manifest.name.as_str() => Some(l.into_owned()),
+            Ok(_) | Err(LabelError::Empty) => None,
+            Err(e) => return Err(LoadError::invalid(&mfile, "name", e.to_string())),
+        };
+        if let Some(name) = name {
+            manifest.name = name;
         }
         let floor = manifest.variance_floor.unwrap_or(DEFAULT_VARIANCE_FLOOR);
         if !(floor.is_finite() && floor >= 0.0) {
