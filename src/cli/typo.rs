@@ -129,6 +129,21 @@ mod tests {
     }
 
     #[test]
+    fn an_existing_path_wins_and_a_missing_one_is_refused() {
+        let d = tempfile::tempdir().unwrap();
+        let folder = d.path().join("audti");
+        let f = folder.to_str().unwrap();
+        let e = check_first_word(&line(&[f])).unwrap_err();
+        assert_eq!(e.code, 2);
+        assert_eq!(e.message, format!("{f}: no such project folder or file"));
+        std::fs::create_dir(&folder).unwrap();
+        assert!(check_first_word(&line(&[f])).is_ok());
+        // the crate root has no `audti`, so the bare word is a typo
+        let e = check_first_word(&line(&["audti"])).unwrap_err();
+        assert_eq!(e.message, "unknown command 'audti' — did you mean 'audit'?");
+    }
+
+    #[test]
     fn commands_and_no_arguments_pass() {
         assert!(check_first_word(&line(&["audit", "x"])).is_ok());
         assert!(check_first_word(&line(&["help"])).is_ok());
