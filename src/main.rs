@@ -6,7 +6,12 @@ use clap::Parser;
 use treewright::cli::{self, Cli};
 
 fn main() -> ExitCode {
-    let args = Cli::parse();
+    let argv: Vec<std::ffi::OsString> = std::env::args_os().collect();
+    if let Err(e) = cli::typo::check_first_word(&argv) {
+        eprintln!("treewright: {}", e.message);
+        return ExitCode::from(e.code);
+    }
+    let args = Cli::parse_from(argv);
     match args.command {
         Some(command) => cli::run(command),
         None => treewright::gui::run(args.project, args.select),

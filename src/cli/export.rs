@@ -60,10 +60,13 @@ pub fn run(args: &ExportArgs) -> Result<(), CliError> {
             )));
         }
     }
-    let label = args
-        .scheme_label
-        .clone()
-        .unwrap_or_else(|| ws.project.manifest.name.clone());
+    let label = match &args.scheme_label {
+        // the label rule of every other label (src/model/label.rs); the project name was
+        // checked when the project loaded
+        Some(l) => crate::model::label::clean_owned(l)
+            .map_err(|e| CliError::bad_input(format!("--scheme-label: {e}")))?,
+        None => ws.project.manifest.name.clone(),
+    };
     let text = ws.export(args.format, &args.base_iri, &label)?;
     atomic_write(&args.out, text.as_bytes(), false)
         .map_err(|e| CliError::bad_input(format!("{}: {e}", args.out.display())))?;

@@ -11,14 +11,17 @@ use clap::{Parser, Subcommand};
 pub mod apply;
 pub mod audit;
 pub mod build;
+pub mod completions;
 pub mod diff;
 pub mod edit;
 pub mod export;
 pub mod info;
+pub mod manpage;
 pub mod progress;
 pub mod sample;
 pub mod signoff;
 pub mod suggest;
+pub mod typo;
 pub mod undo;
 pub mod verify;
 
@@ -75,6 +78,10 @@ pub enum Command {
     Sample(sample::SampleArgs),
     /// Regenerate the machine-built tree from the embeddings (divisive clustering).
     Build(build::BuildArgs),
+    /// Print a shell completion script (bash, zsh, fish, powershell, elvish).
+    Completions(completions::CompletionsArgs),
+    /// Print the manual page (roff), or write one page per subcommand with --dir.
+    Manpage(manpage::ManpageArgs),
 }
 
 /// A failed subcommand: the message to print and the exit code.
@@ -136,6 +143,8 @@ pub fn run(command: Command) -> ExitCode {
         Command::Suggest(a) => suggest::run(&a),
         Command::Sample(a) => sample::run(&a),
         Command::Build(a) => build::run(&a),
+        Command::Completions(a) => completions::run(&a),
+        Command::Manpage(a) => manpage::run(&a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

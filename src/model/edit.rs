@@ -115,6 +115,25 @@ pub enum Edit {
 }
 
 impl Edit {
+    /// The edit as it should be stored: a rename's label passed through the label rule
+    /// ([`crate::model::label::clean`]: trimmed, NFC). A label the rule refuses is left as
+    /// given, for the edit check to refuse with its reason.
+    pub fn normalized(self) -> Edit {
+        match self {
+            Edit::Rename { node, label } => {
+                let cleaned = match crate::model::label::clean(&label) {
+                    Ok(l) if l != label.as_str() => Some(l.into_owned()),
+                    _ => None,
+                };
+                Edit::Rename {
+                    node,
+                    label: cleaned.unwrap_or(label),
+                }
+            }
+            e => e,
+        }
+    }
+
     /// The operation name as stored in the file (`reparent`, `merge`, ...).
     pub fn op(&self) -> &'static str {
         match self {

@@ -15,6 +15,7 @@ pub mod info;
 mod kernels;
 pub mod kmeans;
 pub mod kneedle;
+pub mod label;
 pub mod lock;
 pub mod overrides;
 pub mod phrase;

@@ -623,10 +623,19 @@ fn validate(s: &impl View, phrases: &PhraseTable, edit: &Edit) -> Result<Plan, E
         }
         Edit::Rename { node, label } => {
             let x = lookup(phrases, node)?;
-            let label = label.trim();
-            if label.is_empty() {
-                return Err(EditRefusal::EmptyLabel);
-            }
+            let label = match crate::model::label::clean(label) {
+                Ok(l) => l,
+                Err(crate::model::label::LabelError::Empty) => {
+                    return Err(EditRefusal::EmptyLabel);
+                }
+                Err(why) => {
+                    return Err(EditRefusal::BadLabel {
+                        node: own(node),
+                        why,
+                    });
+                }
+            };
+            let label = label.as_ref();
             if s.label(x) == label {
                 return Err(EditRefusal::SameLabel {
                     node: own(node),

@@ -150,6 +150,15 @@ pub enum EditRefusal {
     /// A rename to an empty label.
     #[error("the new label is empty")]
     EmptyLabel,
+    /// A rename to a label the label rule refuses (a control character); see
+    /// [`crate::model::label`].
+    #[error("rename of \"{node}\": {why}")]
+    BadLabel {
+        /// The node.
+        node: String,
+        /// What is wrong with the label.
+        why: crate::model::label::LabelError,
+    },
     /// A rename to the label the node already has.
     #[error("\"{node}\" is already labelled \"{label}\"")]
     SameLabel {

@@ -506,6 +506,7 @@ impl Workspace {
         author: &str,
         note: Option<String>,
     ) -> Result<usize, WorkspaceError> {
+        let edit = edit.normalized();
         self.check_edit(&edit)?;
         self.layer.push(overrides::record(edit, author, note));
         self.refresh();
@@ -524,6 +525,7 @@ impl Workspace {
         author: &str,
         note: Option<String>,
     ) -> Result<usize, WorkspaceError> {
+        let edit = edit.normalized();
         self.check_edit(&edit)?;
         let path = self.overrides_path();
         let lock = self.lock()?;

@@ -13,6 +13,7 @@ use super::read::{read_json, read_json_limited, resolve_inside};
 use super::tree_file::load_tree_limited;
 use crate::model::fsutil;
 use crate::model::gaussian::{DEFAULT_VARIANCE_FLOOR, Gaussians, OwnedGaussian};
+use crate::model::label::{self, LabelError};
 use crate::model::phrase::{PhraseError, PhraseRecord, PhraseTable};
 use crate::model::tree::Tree;
 
@@ -72,7 +73,7 @@ impl Project {
             (dir, path.to_path_buf())
         };
         let mfile = manifest_path.display().to_string();
-        let manifest: Manifest = read_json(&manifest_path)?;
+        let mut manifest: Manifest = read_json(&manifest_path)?;
         if manifest.format != FORMAT_NAME {
             return Err(LoadError::invalid(
                 &mfile,
@@ -89,6 +90,15 @@ impl Project {
                     manifest.version
                 ),
             ));
+        }
+        // the project name is the default label of the SKOS concept scheme: same label rule
+        let name = match label::clean(&manifest.name) {
+            Ok(l) if l != manifest.name.as_str() => Some(l.into_owned()),
+            Ok(_) | Err(LabelError::Empty) => None,
+            Err(e) => return Err(LoadError::invalid(&mfile, "name", e.to_string())),
+        };
+        if let Some(name) = name {
+            manifest.name = name;
         }
         let floor = manifest.variance_floor.unwrap_or(DEFAULT_VARIANCE_FLOOR);
         if !(floor.is_finite() && floor >= 0.0) {
@@ -116,6 +126,7 @@ impl Project {
                 ),
             ));
         }
+        let records = clean_phrase_labels(records, &pfile)?;
         let phrases = PhraseTable::from_record_vec(records).map_err(|e| match &e {
             PhraseError::DuplicateId { id, second, .. } => {
                 LoadError::invalid(&pfile, format!("row {second} id \"{id}\""), e.to_string())
@@ -225,11 +236,41 @@ fn load_users(path: &Path, d: usize, limits: &Limits) -> Result<Vec<UserProfile>
                 e.to_string().replacen("row 0: ", "", 1),
             )
         })?;
+        let label = match label::clean(&r.label) {
+            Ok(l) => l.into_owned(),
+            Err(e) => return Err(LoadError::invalid(&file, field, e.to_string())),
+        };
         out.push(UserProfile {
             id: r.id,
-            label: r.label,
+            label,
             gaussian: g,
         });
     }
     Ok(out)
+}
+
+/// Apply the label rule ([`label::clean`]) to every phrase record: labels are trimmed and
+/// normalised to NFC, a control character is refused naming the file, row and phrase. An
+/// empty label is left for [`PhraseTable::from_record_vec`] to refuse with its own message.
+fn clean_phrase_labels(
+    mut records: Vec<PhraseRecord>,
+    file: &str,
+) -> Result<Vec<PhraseRecord>, LoadError> {
+    for (row, r) in records.iter_mut().enumerate() {
+        let cleaned = match label::clean(&r.label) {
+            Ok(l) if l != r.label.as_str() => Some(l.into_owned()),
+            Ok(_) | Err(LabelError::Empty) => None,
+            Err(e) => {
+                let field = match &r.id {
+                    Some(id) => format!("row {row} label (phrase \"{id}\")"),
+                    None => format!("row {row} label"),
+                };
+                return Err(LoadError::invalid(file, field, e.to_string()));
+            }
+        };
+        if let Some(l) = cleaned {
+            r.label = l;
+        }
+    }
+    Ok(records)
 }
