@@ -398,6 +398,12 @@ pub fn diff(old: &SignedTree, new: &SignedTree, is_phrase: &dyn Fn(&str) -> bool
     out
 }
 
+#[derive(PartialEq)]
+enum Aspect {
+    Role(Role),
+    Label(String),
+}
+
 /// A change with what caused it.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize)]
 pub struct CausedChange {
@@ -586,37 +592,53 @@ pub fn since_signoff(
     };
     let is_phrase = |id: &str| phrases.get(id).is_some();
     let changes = diff(&signed, &now, &is_phrase);
-    let watched: BTreeSet<String> = changes.iter().map(|c| c.node().to_string()).collect();
-    // which edits since the sign-off changed each watched phrase
-    let mut by_edit: BTreeMap<String, Vec<usize>> = BTreeMap::new();
+    // a change is about a phrase's role, or (a rename) about its label
+    let aspect = |t: &SignedTree, c: &Change| {
+        let e = t.entries.get(c.node());
+        match c {
+            Change::Renamed { .. } => e.map(|e| Aspect::Label(e.label.clone())),
+            _ => e.map(|e| Aspect::Role(e.role.clone())),
+        }
+    };
+    let differs = |a: &SignedTree, b: &SignedTree, c: &Change| aspect(a, c) != aspect(b, c);
+    // which edits since the sign-off changed each change's aspect
+    let mut by_edit: Vec<Vec<usize>> = vec![Vec::new(); changes.len()];
     if replay != now {
         let mut prev = replay.clone();
         for j in index + 1..edits.len() {
             let cur = state(j + 1);
-            for id in &watched {
-                if prev.entries.get(id) != cur.entries.get(id) {
-                    by_edit.entry(id.clone()).or_default().push(j);
+            for (k, c) in changes.iter().enumerate() {
+                if differs(&prev, &cur, c) {
+                    by_edit[k].push(j);
                 }
             }
             prev = cur;
         }
     }
+    let nodes_changed = changes
+        .iter()
+        .map(Change::node)
+        .collect::<BTreeSet<&str>>()
+        .len();
     let base_differs = signed != replay;
     let caused = changes
-        .into_iter()
-        .map(|change| {
-            let id = change.node();
+        .iter()
+        .zip(by_edit)
+        .map(|(change, steps)| {
             let mut causes = Vec::new();
-            if signed.entries.get(id) != replay.entries.get(id) {
+            if differs(&signed, &replay, change) {
                 causes.push(base_note.to_string());
             }
-            for &j in by_edit.get(id).map(Vec::as_slice).unwrap_or(&[]) {
+            for j in steps {
                 causes.push(format!("edit #{j} ({})", describe_edit(&edits[j].edit)));
             }
             if causes.is_empty() {
                 causes.push("cause not known".to_string());
             }
-            CausedChange { change, causes }
+            CausedChange {
+                change: change.clone(),
+                causes,
+            }
         })
         .collect();
     Ok(SinceSignoff {
@@ -625,7 +647,7 @@ pub fn since_signoff(
         complete: source != SignedSource::Missing,
         base_changed: (base_differs || source == SignedSource::Missing)
             .then(|| base_note.to_string()),
-        nodes_changed: watched.len(),
+        nodes_changed,
         changes: caused,
     })
 }
