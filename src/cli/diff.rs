@@ -1,5 +1,6 @@
-//! `treewright diff PROJECT [--against OTHER_TREE]`: base vs effective tree, or what a
-//! re-trained tree changes for the override layer.
+//! `treewright diff PROJECT [--against OTHER_TREE | --against-signoff [INDEX]]`: base vs
+//! effective tree, what a re-trained tree changes for the override layer, or the tree a
+//! sign-off signed against the effective tree.
 
 use std::path::PathBuf;
 
@@ -19,6 +20,10 @@ pub struct DiffArgs {
     /// A re-trained tree file (JSON, the tree.json schema) to compare against.
     #[arg(long)]
     pub against: Option<PathBuf>,
+    /// Compare the tree signed by a sign-off (the edit index; the latest when omitted)
+    /// with the current effective tree, each change with its causes.
+    #[arg(long, value_name = "INDEX", conflicts_with = "against")]
+    pub against_signoff: Option<Option<usize>>,
     /// Print JSON instead of text.
     #[arg(long)]
     pub json: bool,
@@ -29,6 +34,19 @@ pub fn run(args: &DiffArgs) -> Result<(), CliError> {
     let ws = Workspace::open(&args.project)?;
     let phrases = &ws.project.phrases;
     let base = ws.base()?;
+    if let Some(index) = args.against_signoff {
+        let since = ws.since_signoff(index)?;
+        if args.json {
+            println!(
+                "{}",
+                serde_json::to_string_pretty(&since).map_err(CliError::bad_input)?
+            );
+        } else {
+            println!("signed tree (edit #{}) -> effective tree", since.index);
+            print!("{}", super::verify::render_since(&since));
+        }
+        return Ok(());
+    }
     let Some(other) = &args.against else {
         let changes = base_vs_effective(base, phrases, ws.effective()?);
         if args.json {

@@ -7,6 +7,7 @@ use clap::Args;
 
 use super::CliError;
 use crate::model::Workspace;
+use crate::model::signed::{SignedSource, SinceSignoff};
 use crate::model::signoff::Verification;
 
 /// Arguments of `verify`.
@@ -34,13 +35,13 @@ pub fn render(v: &Verification) -> String {
             );
         }
         Verification::Changed {
-            index,
             by,
             signed,
             current,
             edits_since,
-            changes,
+            since,
         } => {
+            let index = since.index;
             let _ = writeln!(s, "changed since the sign-off by {by} (edit #{index})");
             let _ = writeln!(s, "  signed  {signed}");
             let _ = writeln!(s, "  current {current}");
@@ -55,13 +56,46 @@ pub fn render(v: &Verification) -> String {
                     let _ = writeln!(s, "  #{e}");
                 }
             }
-            if !changes.is_empty() {
-                let _ = writeln!(s, "tree changes:");
-                for c in changes {
-                    let _ = writeln!(s, "  {c}");
-                }
-            }
+            s.push_str(&render_since(since));
         }
+    }
+    s
+}
+
+/// Lines for the signed tree against the current one (shared with `diff --against-signoff`).
+pub fn render_since(since: &SinceSignoff) -> String {
+    use std::fmt::Write;
+    let mut s = String::new();
+    match since.signed_tree {
+        SignedSource::Snapshot => {}
+        SignedSource::Replayed => {
+            let _ = writeln!(
+                s,
+                "no snapshot of the signed tree; the edits up to the sign-off on today's base \
+                 tree give the signed hash, so they rebuild it exactly"
+            );
+        }
+        SignedSource::Missing => {
+            let _ = writeln!(
+                s,
+                "NOT COMPLETE: the snapshot of the signed tree is missing (signed before \
+                 snapshots were kept) and the edits up to the sign-off no longer give the \
+                 signed hash; listed below is only what the edits since the sign-off changed"
+            );
+        }
+    }
+    if let Some(b) = &since.base_changed {
+        let _ = writeln!(s, "base: {b}");
+    }
+    let _ = writeln!(
+        s,
+        "tree changes{} ({} nodes, {} changes):",
+        if since.complete { "" } else { " known" },
+        since.nodes_changed,
+        since.changes.len()
+    );
+    for c in &since.changes {
+        let _ = writeln!(s, "  {c}");
     }
     s
 }

@@ -23,6 +23,7 @@ pub mod project;
 pub mod projection;
 pub mod refusal;
 pub mod sample;
+pub mod signed;
 pub mod signoff;
 pub mod stats;
 pub mod suggest;

@@ -10,12 +10,12 @@
 use serde::Serialize;
 use sha2::{Digest, Sha256};
 
-use super::diff::{TreeChange, compare};
 use super::edit::{Edit, EditRecord};
 use super::effective::EffectiveTree;
 use super::gaussian::PhraseId;
 use super::overrides::apply;
 use super::phrase::PhraseTable;
+use super::signed::{SignedTree, SinceSignoff, SnapshotError, since_signoff};
 use super::tree::Tree;
 
 #[derive(Serialize)]
@@ -135,8 +135,6 @@ pub enum Verification {
     },
     /// The tree changed since the latest sign-off.
     Changed {
-        /// Index of the sign-off edit.
-        index: usize,
         /// Who signed off, and when (RFC 3339).
         by: String,
         /// Hash recorded by the sign-off.
@@ -145,9 +143,10 @@ pub enum Verification {
         current: String,
         /// `index: op` of each edit made after the sign-off.
         edits_since: Vec<String>,
-        /// Tree differences between the edits up to the sign-off and all edits, both on
-        /// the current base tree (empty when the base tree itself was re-trained).
-        changes: Vec<TreeChange>,
+        /// The signed tree against the current one: every change with its causes (see
+        /// [`SinceSignoff`]; its `index` is the sign-off's).
+        #[serde(flatten)]
+        since: SinceSignoff,
     },
 }
 
@@ -158,10 +157,26 @@ impl Verification {
     }
 }
 
-/// Check the latest sign-off of `edits` against the current effective tree.
+/// Check the latest sign-off of `edits` against the current effective tree, without a
+/// stored snapshot (the signed tree is rebuilt from the edits when they give its hash).
 pub fn verify(base: &Tree, phrases: &PhraseTable, edits: &[EditRecord]) -> Verification {
+    let note = "the base tree or the phrase table changed since the sign-off";
+    verify_with(base, phrases, edits, |_| Ok(None), note).unwrap_or(Verification::NoSignoff)
+}
+
+/// Check the latest sign-off of `edits` against the current effective tree. `snapshot`
+/// finds the stored signed tree by hash (`Ok(None)` when there is none; a tampered one is an
+/// error); `base_note` says what happened to the base tree, the cause given to changes the
+/// edits since the sign-off do not explain.
+pub fn verify_with(
+    base: &Tree,
+    phrases: &PhraseTable,
+    edits: &[EditRecord],
+    snapshot: impl Fn(&str) -> Result<Option<SignedTree>, SnapshotError>,
+    base_note: &str,
+) -> Result<Verification, SnapshotError> {
     let Some((index, r)) = latest_signoff(edits) else {
-        return Verification::NoSignoff;
+        return Ok(Verification::NoSignoff);
     };
     let (signed, by) = match &r.edit {
         Edit::Signoff {
@@ -174,26 +189,26 @@ pub fn verify(base: &Tree, phrases: &PhraseTable, edits: &[EditRecord]) -> Verif
     let (now, _) = apply(base, phrases, edits);
     let current = tree_hash(&now, phrases);
     if current == signed {
-        return Verification::Valid {
+        return Ok(Verification::Valid {
             index,
             by,
             hash: current,
-        };
+        });
     }
-    let (then, _) = apply(base, phrases, &edits[..index]);
+    let stored = snapshot(&signed)?;
+    let since = since_signoff(base, phrases, edits, index, stored, base_note)?;
     let edits_since = edits[index + 1..]
         .iter()
         .enumerate()
         .map(|(k, e)| format!("{}: {}", index + 1 + k, describe_edit(&e.edit)))
         .collect();
-    Verification::Changed {
-        index,
+    Ok(Verification::Changed {
         by,
         signed,
         current,
         edits_since,
-        changes: compare(&then, &now, phrases),
-    }
+        since,
+    })
 }
 
 /// A one-line human description of an edit.
@@ -306,14 +321,19 @@ mod tests {
         }));
         match verify(&base, &t, &edits) {
             Verification::Changed {
-                index,
-                edits_since,
-                changes,
-                ..
+                edits_since, since, ..
             } => {
-                assert_eq!(index, 1);
+                assert_eq!(since.index, 1);
                 assert_eq!(edits_since, vec!["2: exclude fern"]);
-                assert_eq!(changes.len(), 2, "{changes:?}");
+                // fern excluded; moss, its child, moves up to the root
+                assert_eq!(since.changes.len(), 2, "{:?}", since.changes);
+                assert!(since.complete);
+                assert!(
+                    since
+                        .changes
+                        .iter()
+                        .all(|c| c.causes == ["edit #2 (exclude fern)"])
+                );
             }
             v => panic!("{v:?}"),
         }

@@ -29,6 +29,7 @@ use super::lock::{LockError, ProjectLock};
 use super::overrides::{self, OverrideError, OverrideLayer};
 use super::project::{LoadError, MANIFEST_NAME};
 use super::refusal::EditRefusal;
+use super::signed::{self as signed_tree, BaseAtSignoff, SinceSignoff, SnapshotError};
 use super::signoff::{self, Verification, latest_signoff, tree_hash};
 use super::tree::TreeFile;
 use super::{PhraseId, Project, Tree};
@@ -121,6 +122,17 @@ pub enum WorkspaceError {
     /// The export could not be produced.
     #[error(transparent)]
     Export(#[from] ExportError),
+    /// A sign-off snapshot could not be written, or was refused on load.
+    #[error(transparent)]
+    Snapshot(#[from] SnapshotError),
+    /// No sign-off to compare with.
+    #[error("{file}: no sign-off{at}")]
+    NoSignoff {
+        /// The override file.
+        file: String,
+        /// `" at edit #N"` when a given index was asked for.
+        at: String,
+    },
 }
 
 impl From<WorkspaceError> for String {
@@ -508,6 +520,10 @@ impl Workspace {
     ) -> Result<usize, WorkspaceError> {
         let edit = edit.normalized();
         self.check_edit(&edit)?;
+        if matches!(edit, Edit::Signoff { .. }) {
+            let lock = self.lock()?;
+            self.keep_signed_tree(&edit, &lock)?;
+        }
         self.layer.push(overrides::record(edit, author, note));
         self.refresh();
         Ok(self.layer.edits.len() - 1)
@@ -538,6 +554,7 @@ impl Workspace {
             }
             self.check_edit(&edit)?;
         }
+        self.keep_signed_tree(&edit, &lock)?;
         self.layer.push(overrides::record(edit, author, note));
         self.layer.save_locked(&path, &lock)?;
         drop(lock);
@@ -710,13 +727,113 @@ impl Workspace {
         }
     }
 
-    /// The latest sign-off checked against the current effective tree, with what changed.
+    /// The latest sign-off checked against the current effective tree, with every change
+    /// since the signed tree (read from its snapshot) and its causes.
     pub fn verify(&self) -> Result<Verification, WorkspaceError> {
-        Ok(signoff::verify(
+        let hash = latest_signoff(&self.layer.edits)
+            .and_then(|(_, r)| match &r.edit {
+                Edit::Signoff { tree_hash, .. } => Some(tree_hash.clone()),
+                _ => None,
+            })
+            .unwrap_or_default();
+        Ok(signoff::verify_with(
             self.base()?,
             &self.project.phrases,
             &self.layer.edits,
-        ))
+            |h| signed_tree::load_snapshot(&self.project.dir, h),
+            &self.base_note(&hash),
+        )?)
+    }
+
+    /// For a sign-off to be verified later: store the tree it signs (`signoffs/<hash>.json`)
+    /// and the base tree file's hash, atomically, under `lock`. A sign-off whose hash is not
+    /// the current tree's (built for another tree) stores nothing.
+    fn keep_signed_tree(&self, edit: &Edit, lock: &ProjectLock) -> Result<(), WorkspaceError> {
+        let (Edit::Signoff { tree_hash, .. }, Some(eff)) = (edit, &self.eff) else {
+            return Ok(());
+        };
+        let canon = signoff::canonical_tree(eff, &self.project.phrases);
+        if signoff::sha256_hex(canon.as_bytes()) != *tree_hash {
+            return Ok(());
+        }
+        let tree_path = self.project.tree_path();
+        let base = BaseAtSignoff {
+            tree_file: tree_path
+                .strip_prefix(&self.project.dir)
+                .unwrap_or(&tree_path)
+                .display()
+                .to_string(),
+            sha256: self.disk_tree.map(|d| hex(&d)).unwrap_or_default(),
+        };
+        signed_tree::write_snapshot(&self.project.dir, &canon, &base, lock)?;
+        Ok(())
+    }
+
+    /// What happened to the base tree since the sign-off of `hash`: the cause given to
+    /// changes the edits do not explain.
+    pub fn base_note(&self, hash: &str) -> String {
+        let now = self.disk_tree.map(|d| hex(&d)).unwrap_or_default();
+        match signed_tree::load_base_note(&self.project.dir, hash) {
+            Some(b) if b.sha256 == now => {
+                "the phrase table changed since the sign-off (the base tree file did not)".into()
+            }
+            Some(_) => {
+                let when = std::fs::metadata(self.project.tree_path())
+                    .and_then(|m| m.modified())
+                    .ok()
+                    .and_then(|t| t.duration_since(std::time::UNIX_EPOCH).ok())
+                    .map(|d| {
+                        let t = overrides::rfc3339_from_unix(d.as_secs() as i64);
+                        format!(" on {}", &t[..t.len().min(10)])
+                    })
+                    .unwrap_or_default();
+                let how = self
+                    .build_report
+                    .as_ref()
+                    .map(|r| {
+                        let sim = serde_json::to_value(r.params.similarity)
+                            .ok()
+                            .and_then(|v| v.as_str().map(str::to_string))
+                            .unwrap_or_default();
+                        format!(" (build, seed {}, similarity {sim})", r.params.seed)
+                    })
+                    .unwrap_or_default();
+                format!("base tree replaced{when}{how}")
+            }
+            None => "the base tree or the phrase table changed since the sign-off (this sign-off \
+                     recorded no base tree)"
+                .into(),
+        }
+    }
+
+    /// The signed tree of the sign-off at `index` (the latest when `None`) against the
+    /// current effective tree: every change and its causes.
+    pub fn since_signoff(&self, index: Option<usize>) -> Result<SinceSignoff, WorkspaceError> {
+        let edits = &self.layer.edits;
+        let found = match index {
+            None => latest_signoff(edits).map(|(i, _)| i),
+            Some(i) => edits
+                .get(i)
+                .filter(|r| matches!(r.edit, Edit::Signoff { .. }))
+                .map(|_| i),
+        };
+        let no = || WorkspaceError::NoSignoff {
+            file: self.overrides_path().display().to_string(),
+            at: index.map(|i| format!(" at edit #{i}")).unwrap_or_default(),
+        };
+        let i = found.ok_or_else(no)?;
+        let Edit::Signoff { tree_hash, .. } = &edits[i].edit else {
+            return Err(no());
+        };
+        let snapshot = signed_tree::load_snapshot(&self.project.dir, tree_hash)?;
+        Ok(signed_tree::since_signoff(
+            self.base()?,
+            &self.project.phrases,
+            edits,
+            i,
+            snapshot,
+            &self.base_note(tree_hash),
+        )?)
     }
 
     /// Phrases the user may see but that are outside the tree: (excluded, unplaced).
@@ -734,6 +851,10 @@ impl Workspace {
     pub fn edits(&self) -> &[EditRecord] {
         &self.layer.edits
     }
+}
+
+fn hex(d: &[u8; 32]) -> String {
+    d.iter().map(|b| format!("{b:02x}")).collect()
 }
 
 /// `build-report.json` beside the project's tree file.
