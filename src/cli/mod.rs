@@ -21,6 +21,8 @@ pub mod signoff;
 pub mod suggest;
 pub mod undo;
 pub mod verify;
+pub mod merge_edits;
+pub mod resolve;
 
 /// Exit code for "a check failed".
 pub const EXIT_CHECK_FAILED: u8 = 1;
@@ -75,6 +77,10 @@ pub enum Command {
     Sample(sample::SampleArgs),
     /// Regenerate the machine-built tree from the embeddings (divisive clustering).
     Build(build::BuildArgs),
+    /// Three-way merge of override files (BASE OURS THEIRS); a git merge driver.
+    MergeEdits(merge_edits::MergeEditsArgs),
+    /// Resolve a merge conflict of the project's override file to ours or theirs.
+    Resolve(resolve::ResolveArgs),
 }
 
 /// A failed subcommand: the message to print and the exit code.
@@ -136,6 +142,8 @@ pub fn run(command: Command) -> ExitCode {
         Command::Suggest(a) => suggest::run(&a),
         Command::Sample(a) => sample::run(&a),
         Command::Build(a) => build::run(&a),
+        Command::MergeEdits(a) => merge_edits::run(&a),
+        Command::Resolve(a) => resolve::run(&a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

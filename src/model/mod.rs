@@ -14,6 +14,7 @@ mod kernels;
 pub mod kmeans;
 pub mod kneedle;
 pub mod lock;
+pub mod merge;
 pub mod overrides;
 pub mod phrase;
 pub mod project;
