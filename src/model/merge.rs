@@ -490,6 +490,45 @@ pub fn merge(
                 };
             }
         }
+        // an edit of one side that only works after (or before) an edit of the other side
+        // about a phrase they share: those two are the conflict
+        for (mine, other) in [(Side::Ours, Side::Theirs), (Side::Theirs, Side::Ours)] {
+            let (m, o) = match mine {
+                Side::Ours => (&d.ours, &d.theirs),
+                Side::Theirs => (&d.theirs, &d.ours),
+            };
+            if !o.is_empty() || m.is_empty() {
+                continue;
+            }
+            let mine_recs: Vec<&&EditRecord> =
+                all_added.iter().filter(|r| m.contains(&key(r))).collect();
+            let of_other = || {
+                all_added
+                    .iter()
+                    .filter(|r| side_of(&key(r)) == Some(other))
+                    .filter(|r| !matches!(r.edit, Edit::Signoff { .. }))
+            };
+            let mut found: Vec<String> = of_other()
+                .filter(|r| mine_recs.iter().any(|x| shares_phrase(&x.edit, &r.edit)))
+                .map(|r| key(r))
+                .collect();
+            if found.is_empty() {
+                // no shared phrase (e.g. a move elsewhere in the subtree turned a cycle
+                // into a valid move): the other side's moves and removals are the cause
+                found = of_other()
+                    .filter(|r| {
+                        subjects(&r.edit)
+                            .iter()
+                            .any(|(_, c)| matches!(c, Cat::Place | Cat::Remove))
+                    })
+                    .map(|r| key(r))
+                    .collect();
+            }
+            match other {
+                Side::Ours => d.ours.extend(found),
+                Side::Theirs => d.theirs.extend(found),
+            }
+        }
         if d.ours.is_empty() || d.theirs.is_empty() {
             continue; // one side alone decides it; its reason shows elsewhere
         }
@@ -508,7 +547,14 @@ pub fn merge(
             .filter(|r| !in_conflict.contains(&key(r)))
             .cloned()
             .collect();
-        let newly: Vec<String> = failing(base_tree, phrases, &clean)
+        let clean_back: Vec<EditRecord> = backward
+            .iter()
+            .filter(|r| !in_conflict.contains(&key(r)))
+            .cloned()
+            .collect();
+        let mut newly = failing(base_tree, phrases, &clean);
+        newly.extend(failing(base_tree, phrases, &clean_back));
+        let newly: Vec<String> = newly
             .into_iter()
             .filter(|k| !fails_alone.contains(k) && side_of(k).is_some())
             .collect();
