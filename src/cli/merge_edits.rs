@@ -112,10 +112,16 @@ pub fn render(m: &MergeOutcome, out: &Path) -> String {
     if m.is_clean() {
         match &m.signed_by {
             Some(by) => {
-                let _ = writeln!(s, "signed off: the merged tree matches the sign-off by {by}");
+                let _ = writeln!(
+                    s,
+                    "signed off: the merged tree matches the sign-off by {by}"
+                );
             }
             None => {
-                let _ = writeln!(s, "not signed off: the merged tree matches no recorded sign-off");
+                let _ = writeln!(
+                    s,
+                    "not signed off: the merged tree matches no recorded sign-off"
+                );
             }
         }
     } else {

@@ -15,14 +15,14 @@ pub mod diff;
 pub mod edit;
 pub mod export;
 pub mod info;
+pub mod merge_edits;
 pub mod progress;
+pub mod resolve;
 pub mod sample;
 pub mod signoff;
 pub mod suggest;
 pub mod undo;
 pub mod verify;
-pub mod merge_edits;
-pub mod resolve;
 
 /// Exit code for "a check failed".
 pub const EXIT_CHECK_FAILED: u8 = 1;

@@ -75,7 +75,10 @@ pub fn run(args: &ResolveArgs) -> Result<(), CliError> {
         if let Some(tree) = &project.tree {
             let (_, problems) = apply(tree, &project.phrases, &edits);
             for p in &problems {
-                println!("  edit #{} ({}) does not apply: {}", p.index, p.op, p.reason);
+                println!(
+                    "  edit #{} ({}) does not apply: {}",
+                    p.index, p.op, p.reason
+                );
             }
             match merge::signed_by(tree, &project.phrases, &edits) {
                 Some(by) => println!("signed off: the tree matches the sign-off by {by}"),

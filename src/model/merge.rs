@@ -281,10 +281,7 @@ pub fn describe_node(eff: &EffectiveTree, phrases: &PhraseTable, p: PhraseId) ->
     } else {
         "not in the tree".to_string()
     };
-    format!(
-        "{id} \"{label}\": {place}, {}",
-        eff.review[i].as_str()
-    )
+    format!("{id} \"{label}\": {place}, {}", eff.review[i].as_str())
 }
 
 /// A comparable fingerprint of everything an effective tree says about every phrase
@@ -397,7 +394,8 @@ pub fn merge(
             for &(ct, rt) in tt {
                 let kind = match (co, ct) {
                     (Cat::Place, Cat::Place)
-                        if (so.parent, so.pinned, so.placed) != (st.parent, st.pinned, st.placed) =>
+                        if (so.parent, so.pinned, so.placed)
+                            != (st.parent, st.pinned, st.placed) =>
                     {
                         Some("placement")
                     }
@@ -445,7 +443,8 @@ pub fn merge(
             .collect();
         let mut d = Draft::default();
         d.kinds.insert("does-not-apply".into());
-        d.nodes.extend(r.edit.phrases().iter().map(|s| s.to_string()));
+        d.nodes
+            .extend(r.edit.phrases().iter().map(|s| s.to_string()));
         let (mine, theirs) = match side {
             Side::Ours => (&mut d.ours, &mut d.theirs),
             Side::Theirs => (&mut d.theirs, &mut d.ours),
@@ -480,9 +479,21 @@ pub fn merge(
         if drafts.iter().any(|d| d.nodes.contains(id)) {
             continue; // already a conflict about this phrase
         }
+        // the phrase and its ancestors (below the root) in either order's tree and in the
+        // base tree: an edit about any of them may be what moved it
+        let mut near: BTreeSet<&str> = BTreeSet::from([id]);
+        for t in [&eff_f.tree, &eff_b.tree, base_tree] {
+            let mut cur = t.parent(p);
+            while let Some(a) = cur {
+                if a != t.root() {
+                    near.insert(phrases.id(a));
+                }
+                cur = t.parent(a);
+            }
+        }
         let mut d = Draft::default();
         for r in &all_added {
-            if r.edit.phrases().contains(&id) {
+            if r.edit.phrases().iter().any(|x| near.contains(x)) {
                 match side_of(&key(r)) {
                     Some(Side::Ours) => d.ours.insert(key(r)),
                     Some(Side::Theirs) => d.theirs.insert(key(r)),
@@ -540,8 +551,10 @@ pub fn merge(
     // 4. join conflicts that share an edit; then edits that depended on a conflicting edit
     let mut joined = join(drafts);
     for _ in 0..8 {
-        let in_conflict: BTreeSet<&String> =
-            joined.iter().flat_map(|d| d.ours.iter().chain(&d.theirs)).collect();
+        let in_conflict: BTreeSet<&String> = joined
+            .iter()
+            .flat_map(|d| d.ours.iter().chain(&d.theirs))
+            .collect();
         let clean: Vec<EditRecord> = forward
             .iter()
             .filter(|r| !in_conflict.contains(&key(r)))
@@ -736,8 +749,8 @@ mod tests {
     use crate::model::edit::ReviewStatus;
 
     fn project() -> (PhraseTable, Tree) {
-        let t = PhraseTable::from_ids(&["root", "tools", "seeds", "rake", "spade", "bulbs"])
-            .unwrap();
+        let t =
+            PhraseTable::from_ids(&["root", "tools", "seeds", "rake", "spade", "bulbs"]).unwrap();
         let m: BTreeMap<String, String> = [
             ("tools", "root"),
             ("seeds", "root"),
@@ -813,7 +826,13 @@ mod tests {
     #[test]
     fn exclude_against_review_and_cycles_conflict() {
         let (t, tree) = project();
-        let o = vec![rec(Edit::Exclude { node: "spade".into() }, "ana", 1)];
+        let o = vec![rec(
+            Edit::Exclude {
+                node: "spade".into(),
+            },
+            "ana",
+            1,
+        )];
         let th = vec![rec(
             Edit::Review {
                 node: "spade".into(),
@@ -844,7 +863,11 @@ mod tests {
         let b = vec![rec(reparent("bulbs", "root"), "ana", 0)];
         let o: Vec<EditRecord> = Vec::new(); // ours undid it
         let (eff, _) = apply(&tree, &t, &b);
-        let sign = rec(super::super::signoff::signoff_edit(&eff, &t, "ben", 0), "ben", 3);
+        let sign = rec(
+            super::super::signoff::signoff_edit(&eff, &t, "ben", 0),
+            "ben",
+            3,
+        );
         let th = vec![b[0].clone(), sign.clone()];
         let m = merge(&tree, &t, &b, &o, &th);
         assert!(m.is_clean());
