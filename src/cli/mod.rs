@@ -17,7 +17,9 @@ pub mod edit;
 pub mod export;
 pub mod info;
 pub mod manpage;
+pub mod merge_edits;
 pub mod progress;
+pub mod resolve;
 pub mod sample;
 pub mod signoff;
 pub mod suggest;
@@ -82,6 +84,10 @@ pub enum Command {
     Completions(completions::CompletionsArgs),
     /// Print the manual page (roff), or write one page per subcommand with --dir.
     Manpage(manpage::ManpageArgs),
+    /// Three-way merge of override files (BASE OURS THEIRS); a git merge driver.
+    MergeEdits(merge_edits::MergeEditsArgs),
+    /// Resolve a merge conflict of the project's override file to ours or theirs.
+    Resolve(resolve::ResolveArgs),
 }
 
 /// A failed subcommand: the message to print and the exit code.
@@ -145,6 +151,8 @@ pub fn run(command: Command) -> ExitCode {
         Command::Build(a) => build::run(&a),
         Command::Completions(a) => completions::run(&a),
         Command::Manpage(a) => manpage::run(&a),
+        Command::MergeEdits(a) => merge_edits::run(&a),
+        Command::Resolve(a) => resolve::run(&a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

@@ -17,6 +17,7 @@ pub mod kmeans;
 pub mod kneedle;
 pub mod label;
 pub mod lock;
+pub mod merge;
 pub mod overrides;
 pub mod phrase;
 pub mod project;

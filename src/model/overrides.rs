@@ -20,6 +20,7 @@ use super::effective::{ApplyProblem, EffectiveTree};
 use super::fsutil;
 use super::gaussian::PhraseId;
 use super::lock::{LockError, ProjectLock};
+use super::merge::Conflict;
 use super::phrase::PhraseTable;
 pub use super::refusal::{EditRefusal, Role};
 use super::tree::Tree;
@@ -79,6 +80,18 @@ pub enum OverrideError {
     /// The project lock could not be taken (another writer held it too long).
     #[error(transparent)]
     Lock(#[from] LockError),
+    /// The file is the result of a merge with conflicts that are not resolved yet.
+    #[error(
+        "{file}: conflicts: {count} unresolved merge conflict(s) ({ids}); resolve each with `treewright resolve PROJECT ID ours|theirs` (or in the workbench) before using the file"
+    )]
+    Unresolved {
+        /// The file.
+        file: String,
+        /// How many conflicts.
+        count: usize,
+        /// Their ids, comma-separated.
+        ids: String,
+    },
 }
 
 /// The on-disk shape of `overrides.json`.
@@ -89,6 +102,10 @@ struct OverrideFile {
     version: u64,
     #[serde(default)]
     edits: Vec<EditRecord>,
+    /// Unresolved merge conflicts (absent from files without any, so those stay
+    /// byte-identical); the loader refuses a file that has some.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    conflicts: Vec<Conflict>,
 }
 
 /// Only the header, read first so an unknown version is reported as such even when the
@@ -149,8 +166,30 @@ impl Default for OverrideLayer {
     }
 }
 
-/// Parse override-file bytes, naming `file` in errors.
+/// Parse override-file bytes, naming `file` in errors. A file with unresolved merge
+/// conflicts is refused ([`OverrideError::Unresolved`]).
 pub fn parse_overrides(bytes: &[u8], file: &str) -> Result<Vec<EditRecord>, OverrideError> {
+    let (edits, conflicts) = parse_override_file(bytes, file)?;
+    if !conflicts.is_empty() {
+        return Err(OverrideError::Unresolved {
+            file: file.to_string(),
+            count: conflicts.len(),
+            ids: conflicts
+                .iter()
+                .map(|c| c.id.as_str())
+                .collect::<Vec<_>>()
+                .join(", "),
+        });
+    }
+    Ok(edits)
+}
+
+/// Parse override-file bytes with their `conflicts` section (empty for ordinary files):
+/// what `merge-edits` and `resolve` read.
+pub fn parse_override_file(
+    bytes: &[u8],
+    file: &str,
+) -> Result<(Vec<EditRecord>, Vec<Conflict>), OverrideError> {
     let corrupt = |e: serde_json::Error| OverrideError::Corrupt {
         file: file.to_string(),
         line: e.line(),
@@ -171,15 +210,22 @@ pub fn parse_overrides(bytes: &[u8], file: &str) -> Result<Vec<EditRecord>, Over
         });
     }
     let f: OverrideFile = serde_json::from_slice(bytes).map_err(corrupt)?;
-    Ok(f.edits)
+    Ok((f.edits, f.conflicts))
 }
 
 /// Serialise edits in the version-1 file format (pretty JSON, trailing newline).
 pub fn serialize_overrides(edits: &[EditRecord]) -> Vec<u8> {
+    serialize_override_file(edits, &[])
+}
+
+/// Serialise edits and unresolved conflicts (no `conflicts` key when there are none, so
+/// the bytes equal [`serialize_overrides`]'s).
+pub fn serialize_override_file(edits: &[EditRecord], conflicts: &[Conflict]) -> Vec<u8> {
     let f = OverrideFile {
         format: OVERRIDES_FORMAT.to_string(),
         version: u64::from(OVERRIDES_VERSION),
         edits: edits.to_vec(),
+        conflicts: conflicts.to_vec(),
     };
     fsutil::to_json_pretty(&f)
 }
@@ -241,6 +287,31 @@ impl OverrideLayer {
     /// counts as what it was: missing).
     pub fn changed_on_disk(&self, path: &Path) -> Result<bool, OverrideError> {
         Ok(Fingerprint::of_file(path)? != self.disk)
+    }
+
+    /// The edits as they were last loaded or saved: the common ancestor when the file on
+    /// disk changed meanwhile (see [`super::merge`]).
+    pub fn saved_edits(&self) -> &[EditRecord] {
+        &self.saved
+    }
+
+    /// Read the file on disk as the new reference point for saving and return its edits
+    /// (the other side of a merge); the layer's own edits are left as they are. After the
+    /// caller puts the merged edits in [`OverrideLayer::edits`], [`OverrideLayer::save`]
+    /// writes them unless the file changed yet again. A file with unresolved conflicts is
+    /// refused.
+    pub fn take_disk(&mut self, path: &Path) -> Result<Vec<EditRecord>, OverrideError> {
+        let file = path.display().to_string();
+        let (edits, disk) = match std::fs::read(path) {
+            Ok(b) => (parse_overrides(&b, &file)?, Fingerprint::of_bytes(&b)),
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
+                (Vec::new(), Fingerprint::Missing)
+            }
+            Err(source) => return Err(OverrideError::Io { file, source }),
+        };
+        self.disk = disk;
+        self.saved = edits.clone();
+        Ok(edits)
     }
 
     /// Append an edit; clears the redo stack.
