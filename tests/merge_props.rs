@@ -76,7 +76,7 @@ fn make(n: usize, (kind, a, b, s): Raw, who: &str, k: usize) -> EditRecord {
             node: id(a),
             status: [
                 ReviewStatus::Approved,
-                ReviewStatus::NeedsWork,
+                ReviewStatus::ToFix,
                 ReviewStatus::Unreviewed,
             ][s as usize],
             comment: String::new(),
