@@ -1,5 +1,6 @@
-//! `treewright build PROJECT [--out FILE] [--report FILE] [--seed N] [--max-depth N]
-//! [--k-max N] [--min-cluster N] [--similarity elk|bhattacharyya|kl] [--with-variance W]`:
+//! `treewright build PROJECT [--method divisive|inclusion] [--out FILE] [--report FILE]
+//! [--seed N] [--max-depth N] [--k-max N] [--min-cluster N]
+//! [--similarity elk|bhattacharyya|kl] [--with-variance W] [--max-fanout N]`:
 //! regenerate the machine-built tree from the embeddings.
 //!
 //! The tree goes to the project's tree file unless `--out` says otherwise; the file it
@@ -15,7 +16,8 @@ use clap::Args;
 
 use super::CliError;
 use super::progress;
-use crate::model::builder::{BuildParams, BuildProgress, BuiltTree, build};
+use crate::model::builder::{BuildMethod, BuildParams, BuildProgress, BuiltTree, build};
+use crate::model::inclusion::{InclusionParams, InclusionProgress, build_inclusion};
 use crate::model::fsutil;
 use crate::model::overrides::OverrideLayer;
 use crate::model::project::Project;
@@ -27,6 +29,11 @@ use crate::model::{AuditMode, PhraseTable, Similarity, Workspace};
 pub struct BuildArgs {
     /// Project folder or its project.json.
     pub project: PathBuf,
+    /// divisive: k-means on the means, top-down (the published recipe); inclusion: each
+    /// phrase under the broader phrase that contains it best, chosen for the whole tree at
+    /// once (minimum-cost arborescence over KL costs).
+    #[arg(long, value_name = "METHOD", default_value = "divisive", value_parser = parse_method)]
+    pub method: BuildMethod,
     /// Where to write the tree (default: the project's tree file). `.csv` writes a
     /// `child,parent` edge list, anything else JSON.
     #[arg(long, value_name = "FILE")]
@@ -52,6 +59,13 @@ pub struct BuildArgs {
     /// Weight of ln σ² in the k-means features (default 0: means only).
     #[arg(long, value_name = "W")]
     pub with_variance: Option<f64>,
+    /// Inclusion method only: most children per node (default: no limit).
+    #[arg(long, value_name = "N")]
+    pub max_fanout: Option<usize>,
+}
+
+fn parse_method(s: &str) -> Result<BuildMethod, String> {
+    s.parse()
 }
 
 fn parse_similarity(s: &str) -> Result<Similarity, String> {
@@ -68,6 +82,7 @@ fn parse_similarity(s: &str) -> Result<Similarity, String> {
 impl BuildArgs {
     /// The build parameters: the defaults with every given option applied.
     pub fn params(&self) -> BuildParams {
+        // (the divisive parameters; see `inclusion_params` for the other method)
         let d = BuildParams::default();
         BuildParams {
             seed: self.seed.unwrap_or(d.seed),
@@ -78,6 +93,32 @@ impl BuildArgs {
             with_variance: self.with_variance.unwrap_or(d.with_variance),
             ..d
         }
+    }
+}
+
+impl BuildArgs {
+    /// The inclusion build's parameters: the defaults with `--seed`, `--max-depth` and
+    /// `--max-fanout` applied. Options of the divisive method are refused here, so that a
+    /// flag never silently does nothing.
+    pub fn inclusion_params(&self) -> Result<InclusionParams, CliError> {
+        let divisive_only = [
+            ("--k-max", self.k_max.is_some()),
+            ("--min-cluster", self.min_cluster.is_some()),
+            ("--similarity", self.similarity.is_some()),
+            ("--with-variance", self.with_variance.is_some()),
+        ];
+        if let Some((flag, _)) = divisive_only.iter().find(|(_, given)| *given) {
+            return Err(CliError::bad_input(format!(
+                "{flag} applies to the divisive method only (--method divisive)"
+            )));
+        }
+        let d = InclusionParams::default();
+        Ok(InclusionParams {
+            seed: self.seed.unwrap_or(d.seed),
+            max_depth: self.max_depth.or(d.max_depth),
+            max_fanout: self.max_fanout.or(d.max_fanout),
+            ..d
+        })
     }
 }
 
@@ -96,6 +137,19 @@ fn write(path: &Path, bytes: &[u8], backup: bool) -> Result<(), CliError> {
 pub fn run(args: &BuildArgs) -> Result<(), CliError> {
     let params = args.params();
     params.validate().map_err(CliError::bad_input)?;
+    if args.method == BuildMethod::Divisive && args.max_fanout.is_some() {
+        return Err(CliError::bad_input(
+            "--max-fanout applies to the inclusion method only (--method inclusion)",
+        ));
+    }
+    let inclusion = match args.method {
+        BuildMethod::Inclusion => Some(
+            args.inclusion_params()?
+                .check()
+                .map_err(CliError::bad_input)?,
+        ),
+        BuildMethod::Divisive => None,
+    };
     let project = Project::load(&args.project)?;
     let out = args.out.clone().unwrap_or_else(|| project.tree_path());
     let report_path = args.report.clone().unwrap_or_else(|| {
@@ -106,7 +160,10 @@ pub fn run(args: &BuildArgs) -> Result<(), CliError> {
     // the edits play no part in installing a base tree; the workspace remembers what the
     // tree file and the manifest looked like before the build
     let mut ws = Workspace::from_project(project, OverrideLayer::new(), AuditMode::Off)?;
-    let built = run_build(&ws.project.gaussians, &ws.project.phrases, &params)?;
+    let built = match &inclusion {
+        Some(p) => run_inclusion(&ws.project.gaussians, &ws.project.phrases, p)?,
+        None => run_build(&ws.project.gaussians, &ws.project.phrases, &params)?,
+    };
 
     if args.out.is_none() {
         ws.set_base_reporting(&built.tree_file, Some((&built.report, &report_path)))?;
@@ -123,7 +180,7 @@ pub fn run(args: &BuildArgs) -> Result<(), CliError> {
         "built a tree of {} phrases (depth {}, {} internal nodes, root \"{}\")",
         built.report.phrases,
         built.report.depth,
-        built.report.nodes.len(),
+        internal_nodes(&built),
         built.report.root
     );
     let _ = writeln!(o, "tree    {}", out.display());
@@ -142,4 +199,34 @@ fn run_build(
     let result = build(g, phrases, None, params, &on_progress, &cancel);
     bar.finish_and_clear();
     result.map_err(CliError::bad_input)
+}
+
+/// Nodes with children.
+fn internal_nodes(built: &BuiltTree) -> usize {
+    match built.report.method {
+        BuildMethod::Divisive => built.report.nodes.len(),
+        BuildMethod::Inclusion => {
+            let parents: std::collections::BTreeSet<&str> =
+                built.tree_file.parent.values().map(String::as_str).collect();
+            parents.len()
+        }
+    }
+}
+
+fn run_inclusion(
+    g: &crate::model::Gaussians,
+    phrases: &PhraseTable,
+    params: &crate::model::inclusion::CheckedInclusionParams,
+) -> Result<BuiltTree, CliError> {
+    let bar = progress::bar(phrases.len() as u64, "building");
+    let cancel = AtomicBool::new(false);
+    let on_progress = |p: InclusionProgress| {
+        bar.set_length(p.total as u64);
+        bar.set_position(p.done as u64);
+    };
+    let result = build_inclusion(g, phrases, None, &[], params, &on_progress, &cancel);
+    bar.finish_and_clear();
+    Ok(result
+        .map_err(CliError::bad_input)?
+        .into_built(g, phrases, params))
 }

@@ -932,3 +932,45 @@ pub fn build_inclusion(
         stats,
     })
 }
+
+impl InclusionTree {
+    /// The tree and a `build-report.json` for it (method `inclusion`, each phrase's parent
+    /// cost and runner-up recorded), in the form the divisive builder returns, so that the
+    /// CLI and the workbench install either the same way.
+    pub fn into_built(
+        self,
+        g: &Gaussians,
+        phrases: &PhraseTable,
+        params: &CheckedInclusionParams,
+    ) -> super::builder::BuiltTree {
+        use super::builder::{
+            BuildMethod, BuildParams, BuildReport, BuiltTree, InclusionReport, REPORT_FORMAT,
+            REPORT_VERSION,
+        };
+        let placed = self.nodes.len() + 1;
+        BuiltTree {
+            report: BuildReport {
+                format: REPORT_FORMAT.to_string(),
+                version: REPORT_VERSION,
+                method: BuildMethod::Inclusion,
+                // the divisive parameters play no part; the seed and depth limit are shared
+                params: BuildParams {
+                    seed: params.seed,
+                    ..BuildParams::default()
+                },
+                phrases: placed,
+                dim: g.dim(),
+                root: phrases.id(self.root).to_string(),
+                depth: self.depth,
+                nodes: Vec::new(),
+                inclusion: Some(InclusionReport {
+                    params: params.params().clone(),
+                    total_cost: self.total_cost,
+                    stats: self.stats,
+                    nodes: self.nodes,
+                }),
+            },
+            tree_file: self.tree_file,
+        }
+    }
+}

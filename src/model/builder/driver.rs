@@ -210,12 +210,14 @@ pub fn build(
         report: BuildReport {
             format: REPORT_FORMAT.to_string(),
             version: REPORT_VERSION,
+            method: super::report::BuildMethod::Divisive,
             params: params.clone().into_inner(),
             phrases: total,
             dim: g.dim(),
             root: phrases.id(sub.root).to_string(),
             depth: sub.depth,
             nodes: sub.reports,
+            inclusion: None,
         },
     })
 }

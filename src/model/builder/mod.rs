@@ -47,7 +47,9 @@ use crate::model::kneedle::KneedleError;
 pub use driver::build;
 pub use params::{BuildParams, CheckedBuildParams, MAX_DEPTH_LIMIT, ParamError};
 pub use partition::feature_rows;
-pub use report::{BuildReport, BuiltTree, NodeReport, REPORT_FORMAT, REPORT_VERSION};
+pub use report::{
+    BuildMethod, BuildReport, BuiltTree, InclusionReport, NodeReport, REPORT_FORMAT, REPORT_VERSION,
+};
 pub use representative::{Representative, exact_scores, representative};
 
 /// Progress of a running build.
