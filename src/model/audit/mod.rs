@@ -6,6 +6,10 @@
 //!   [`StatsConfig`](crate::model::stats::StatsConfig));
 //! - `rules/mod.rs`: the [`Rule`] enum (id, default severity, scope, node-locality, config
 //!   keys) and the context rules read; `rules/<rule>.rs`: one function per rule, with its tests;
+//! - `confidence.rs`: the confidence of the placement findings (robust outlier tests over
+//!   the project's own scores, Benjamini–Hochberg) and the severity that follows it;
+//! - `evaluate.rs`: the audit measured against a known-errors file (`--known-errors`);
+//! - `calibrate.rs`: logistic calibration of the confidence from the reviewer's decisions;
 //! - `search.rs`: the candidate search; `auditor.rs`: [`Auditor`] and the incremental
 //!   re-audit; `tests.rs`: tests across rules (acceptance figures, incremental = full).
 //!
