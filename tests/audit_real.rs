@@ -120,3 +120,156 @@ fn known_errors_flag_prints_the_same_figures() {
         "{err}"
     );
 }
+
+/// A reviewer who decides the top 50 placement findings from the truth file: a known error
+/// gets its fix (reparent to the true parent), anything else is approved as is. The audit of
+/// the edited tree is calibrated on those decisions. Checked: every decision is found with
+/// its features, the calibration fits and says how many decisions it used, and no finding
+/// is removed. Printed (`--nocapture`), not asserted: the precision of the remaining flagged
+/// set and the AP / P@20 of the remaining ranked list before and after. On these sets the
+/// calibration does NOT yet raise them consistently (see the branch report of issue 13):
+/// the decisions all lie at the top of the ranking, and the fit extrapolates to the tail.
+#[test]
+fn calibration_on_fifty_simulated_decisions_keeps_every_finding() {
+    use std::collections::HashSet;
+    use treewright::model::audit::calibrate::{Calibration, decisions};
+    use treewright::model::audit::evaluate::is_placement_rule;
+    use treewright::model::audit::{AuditReport, Severity};
+    use treewright::model::edit::{Edit, EditRecord, ReviewStatus};
+    use treewright::model::overrides::apply;
+
+    for name in [
+        "icd10cm-circulatory-own-text",
+        "wordnet-bird-own-text",
+        "wordnet-clothing-own-text",
+        "wordnet-structure-own-text",
+        "icd10cm-circulatory-fitted",
+        "wordnet-clothing-fitted",
+    ] {
+        let dir = set_dir(name);
+        let p = Project::load(&dir).unwrap();
+        let base = p.tree.clone().unwrap();
+        let eff0 = EffectiveTree::from_base(&base, &p.phrases);
+        let cfg = AuditConfig::default();
+        let r0 = audit(&p.gaussians, &p.phrases, &eff0, &[], &cfg);
+        let known = read_known_errors(&dir.join("known-errors.json"), &p.phrases).unwrap();
+        let truth: std::collections::HashMap<_, _> =
+            known.iter().map(|k| (k.node, k.true_parent)).collect();
+        let mut top = Vec::new();
+        let mut seen = HashSet::new();
+        for f in r0
+            .findings
+            .iter()
+            .filter(|f| !f.accepted && is_placement_rule(f.rule))
+        {
+            if seen.insert(f.node) {
+                top.push(f.node);
+            }
+            if top.len() == 50 {
+                break;
+            }
+        }
+        let record = |edit: Edit| EditRecord {
+            edit,
+            author: "simulated reviewer".into(),
+            time: "2026-01-01T00:00:00Z".into(),
+            note: None,
+        };
+        let edits: Vec<EditRecord> = top
+            .iter()
+            .map(|&n| {
+                let id = p.phrases.id(n).to_string();
+                match truth.get(&n) {
+                    Some(Some(tp)) => record(Edit::Reparent {
+                        node: id,
+                        parent: p.phrases.id(*tp).to_string(),
+                    }),
+                    _ => record(Edit::Review {
+                        node: id,
+                        status: ReviewStatus::Approved,
+                        comment: String::new(),
+                    }),
+                }
+            })
+            .collect();
+        let decided: HashSet<_> = top.iter().copied().collect();
+        let remaining_precision = |r: &AuditReport| {
+            let flagged: HashSet<_> = r
+                .findings
+                .iter()
+                .filter(|f| {
+                    !f.accepted
+                        && is_placement_rule(f.rule)
+                        && f.severity >= Severity::Warning
+                        && !decided.contains(&f.node)
+                })
+                .map(|f| f.node)
+                .collect();
+            let good = flagged.iter().filter(|n| truth.contains_key(n)).count();
+            (good as f64 / flagged.len().max(1) as f64, flagged.len())
+        };
+        let remaining_ap = |r: &AuditReport| {
+            let mut seen = HashSet::new();
+            let ranked: Vec<_> = r
+                .findings
+                .iter()
+                .filter(|f| !f.accepted && is_placement_rule(f.rule) && !decided.contains(&f.node))
+                .filter(|f| seen.insert(f.node))
+                .map(|f| f.node)
+                .collect();
+            let rel = known.iter().filter(|k| !decided.contains(&k.node)).count();
+            let hits: Vec<bool> = ranked.iter().map(|n| truth.contains_key(n)).collect();
+            let p20 = hits.iter().take(20).filter(|h| **h).count() as f64 / 20.0;
+            (
+                treewright::model::audit::evaluate::average_precision(&hits, rel).unwrap_or(0.0),
+                p20,
+            )
+        };
+        eprintln!(
+            "AP/P@20 of the remaining list: before {:?}",
+            remaining_ap(&r0)
+        );
+        let before = remaining_precision(&r0);
+        let (eff1, problems) = apply(&base, &p.phrases, &edits);
+        assert!(problems.is_empty(), "{problems:?}");
+        let mut r1 = audit(&p.gaussians, &p.phrases, &eff1, &[], &cfg);
+        let uncalibrated = remaining_precision(&r1);
+        eprintln!(
+            "AP/P@20 of the remaining list: edited uncalibrated {:?}",
+            remaining_ap(&r1)
+        );
+        let ds = decisions(&r0, &p.phrases, &edits);
+        assert_eq!(ds.len(), top.len());
+        let cal = Calibration::fit(&ds).expect("both kinds among the decisions");
+        assert_eq!(cal.decisions, ds.len());
+        assert!(
+            cal.describe()
+                .starts_with(&format!("calibrated on {} decisions", ds.len()))
+        );
+        let n_findings = r1.findings.len();
+        cal.apply(&mut r1, |_| false);
+        assert_eq!(r1.calibration.as_ref(), Some(&cal));
+        assert_eq!(
+            r1.findings.len(),
+            n_findings,
+            "a decision never deletes a finding"
+        );
+        let after = remaining_precision(&r1);
+        eprintln!(
+            "AP/P@20 of the remaining list: calibrated {:?}",
+            remaining_ap(&r1)
+        );
+        eprintln!(
+            "{name}: {} right of {}; remaining precision before {:.3} ({} flagged), \
+             edited uncalibrated {:.3} ({}), calibrated {:.3} ({})",
+            cal.right,
+            cal.decisions,
+            before.0,
+            before.1,
+            uncalibrated.0,
+            uncalibrated.1,
+            after.0,
+            after.1
+        );
+    }
+}

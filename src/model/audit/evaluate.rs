@@ -37,6 +37,11 @@ use crate::model::phrase::PhraseTable;
 /// The placement rules whose warnings and errors make up the flagged set.
 pub const PLACEMENT_RULES: [&str; 3] = [BETTER_PARENT, WEAK_INCLUSION, INVERTED_GENERALITY];
 
+/// One of [`PLACEMENT_RULES`].
+pub fn is_placement_rule(rule: &str) -> bool {
+    PLACEMENT_RULES.contains(&rule)
+}
+
 /// The kind word of a near-duplicate entry.
 pub const DUPLICATE_KIND: &str = "duplicate";
 
@@ -435,6 +440,7 @@ mod tests {
             score: 1.0,
             threshold: 0.5,
             confidence: 0.5,
+            evidence: 0.0,
             explanation: String::new(),
             suggestion: Some(Suggestion {
                 action: "reparent".into(),
@@ -458,6 +464,7 @@ mod tests {
             },
             coverage_threshold: 0.0,
             unreviewed: 0,
+            calibration: None,
         }
     }
 

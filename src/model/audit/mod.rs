@@ -6,6 +6,10 @@
 //!   [`StatsConfig`](crate::model::stats::StatsConfig));
 //! - `rules/mod.rs`: the [`Rule`] enum (id, default severity, scope, node-locality, config
 //!   keys) and the context rules read; `rules/<rule>.rs`: one function per rule, with its tests;
+//! - `confidence.rs`: the confidence of the placement findings (robust outlier tests over
+//!   the project's own scores, Benjamini–Hochberg) and the severity that follows it;
+//! - `evaluate.rs`: the audit measured against a known-errors file (`--known-errors`);
+//! - `calibrate.rs`: logistic calibration of the confidence from the reviewer's decisions;
 //! - `search.rs`: the candidate search; `auditor.rs`: [`Auditor`] and the incremental
 //!   re-audit; `tests.rs`: tests across rules (acceptance figures, incremental = full).
 //!
@@ -77,6 +81,7 @@ use super::phrase::PhraseTable;
 use super::stats::Stats;
 
 mod auditor;
+pub mod calibrate;
 pub mod confidence;
 mod config;
 pub mod evaluate;
@@ -184,6 +189,10 @@ pub struct Finding {
     /// false-discovery rate of the node's outlier test ([`confidence`]), for the other rules
     /// (and projects too small to test) 1.
     pub confidence: f64,
+    /// −log₁₀ of the p-value behind the confidence (0 for rules without a test); the
+    /// calibration's main feature. Not written to the reports.
+    #[serde(skip)]
+    pub evidence: f64,
     /// One line for a person.
     pub explanation: String,
     /// Suggested fix.
@@ -210,6 +219,9 @@ pub struct AuditReport {
     pub coverage_threshold: f64,
     /// Nodes of the tree not yet reviewed.
     pub unreviewed: usize,
+    /// The calibration from the reviewer's decisions in force, if any
+    /// ([`calibrate`]).
+    pub calibration: Option<calibrate::Calibration>,
 }
 
 impl AuditReport {
@@ -323,6 +335,7 @@ fn assemble_with(
         stats,
         coverage_threshold: cov_thr,
         unreviewed,
+        calibration: None,
     }
 }
 

@@ -661,13 +661,14 @@ fn update_equals_a_full_recompute() {
     );
     assert_eq!(r2, same_search);
     // against fresh searches everywhere, the findings agree except for the confidences
-    // (and the severities that follow them)
+    // and their p-values (and the severities that follow them)
     let strip = |r: &AuditReport| -> Vec<Finding> {
         let mut v: Vec<Finding> = r
             .findings
             .iter()
             .map(|f| Finding {
                 confidence: 0.0,
+                evidence: 0.0,
                 severity: Severity::Info,
                 ..f.clone()
             })

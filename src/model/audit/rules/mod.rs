@@ -214,6 +214,11 @@ impl Rule {
             rule: self.id(),
             severity,
             confidence: tested.unwrap_or(1.0),
+            evidence: -ctx
+                .confidence
+                .p_value_of(self.id(), node)
+                .max(1e-300)
+                .log10(),
             node,
             other,
             score,
