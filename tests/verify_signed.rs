@@ -441,3 +441,28 @@ fn a_project_signed_before_snapshots_is_handled_plainly() {
     );
     assert!(t.contains("tree changes known ("), "{t}");
 }
+
+#[test]
+fn a_sign_off_writes_no_snapshot_while_another_writer_holds_the_lock() {
+    use treewright::model::lock::ProjectLock;
+    let tmp = tempfile::tempdir().unwrap();
+    let p = demo(tmp.path());
+    let held = ProjectLock::acquire_within(Path::new(&p), std::time::Duration::ZERO).unwrap();
+    let o = Command::new(env!("CARGO_BIN_EXE_treewright"))
+        .args(["signoff", &p, "--reviewer", "rowan"])
+        .env("TREEWRIGHT_LOCK_WAIT", "0.2")
+        .output()
+        .unwrap();
+    assert!(!o.status.success(), "{}", text(&o));
+    assert!(!Path::new(&p).join("signoffs").exists());
+    drop(held);
+    ok(&["signoff", &p, "--reviewer", "rowan"]);
+    let names: Vec<String> = std::fs::read_dir(Path::new(&p).join("signoffs"))
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    // only the two files, no temporary left behind by the atomic writes
+    assert_eq!(names.len(), 2, "{names:?}");
+    let (code, _) = verify_json(&p);
+    assert_eq!(code, 0);
+}
