@@ -16,7 +16,7 @@ use treewright::model::PhraseTable;
 use treewright::model::edit::{Edit, EditRecord};
 use treewright::model::overrides::apply;
 use treewright::model::phrase::PhraseRecord;
-use treewright::model::signed::{SignedSource, SignedTree, since_signoff};
+use treewright::model::signed::{SignedSource, SignedTree, since_signoff, since_signoff_uncaused};
 use treewright::model::signoff::{canonical_tree, signoff_edit};
 use treewright::model::tree::Tree;
 
@@ -171,6 +171,12 @@ proptest! {
                 prop_assert!(c.causes.iter().all(|x| x.starts_with("edit #")), "{:?}", c);
             }
         }
+        // the status bar's count comes from the same list, without the causes
+        let quick = since_signoff_uncaused(&w.base, &w.phrases, &w.edits, index, Some(signed.clone()))
+            .unwrap();
+        let quick_changes: Vec<_> = quick.changes.iter().map(|c| c.change.clone()).collect();
+        prop_assert_eq!(&quick_changes, &changes);
+        prop_assert_eq!(quick.nodes_changed, since.nodes_changed);
         // without a snapshot and without a base change, the replay is exact too
         if !base_touched {
             let replayed = since_signoff(&w.base, &w.phrases, &w.edits, index, None, "base").unwrap();

@@ -761,11 +761,38 @@ impl Workspace {
             return Some(v.clone());
         }
         let v = self
-            .since_signoff(None)
+            .count_since_signoff()
             .map(|s| (s.nodes_changed, s.complete))
             .map_err(|e| e.to_string());
         *cache = Some((self.generation, v.clone()));
         Some(v)
+    }
+
+    fn count_since_signoff(&self) -> Result<SinceSignoff, WorkspaceError> {
+        let edits = &self.layer.edits;
+        let (i, hash) = match latest_signoff(edits) {
+            Some((i, r)) => match &r.edit {
+                Edit::Signoff { tree_hash, .. } => (i, tree_hash),
+                _ => return Err(self.no_signoff()),
+            },
+            None => return Err(self.no_signoff()),
+        };
+        let snapshot = signed_tree::load_snapshot(&self.project.dir, hash)?;
+        let phrases = &self.project.phrases;
+        Ok(signed_tree::since_signoff_uncaused(
+            self.base()?,
+            phrases,
+            edits,
+            i,
+            snapshot,
+        )?)
+    }
+
+    fn no_signoff(&self) -> WorkspaceError {
+        WorkspaceError::NoSignoff {
+            file: self.overrides_path().display().to_string(),
+            at: String::new(),
+        }
     }
 
     /// For a sign-off to be verified later: store the tree it signs (`signoffs/<hash>.json`)
