@@ -16,7 +16,7 @@ use treewright::model::PhraseTable;
 use treewright::model::edit::{Edit, EditRecord};
 use treewright::model::overrides::apply;
 use treewright::model::phrase::PhraseRecord;
-use treewright::model::signed::{SignedSource, SignedTree, since_signoff};
+use treewright::model::signed::{SignedSource, SignedTree, since_signoff, since_signoff_uncaused};
 use treewright::model::signoff::{canonical_tree, signoff_edit};
 use treewright::model::tree::Tree;
 
@@ -171,6 +171,12 @@ proptest! {
                 prop_assert!(c.causes.iter().all(|x| x.starts_with("edit #")), "{:?}", c);
             }
         }
+        // the status bar's count comes from the same list, without the causes
+        let quick = since_signoff_uncaused(&w.base, &w.phrases, &w.edits, index, Some(signed.clone()))
+            .unwrap();
+        let quick_changes: Vec<_> = quick.changes.iter().map(|c| c.change.clone()).collect();
+        prop_assert_eq!(&quick_changes, &changes);
+        prop_assert_eq!(quick.nodes_changed, since.nodes_changed);
         // without a snapshot and without a base change, the replay is exact too
         if !base_touched {
             let replayed = since_signoff(&w.base, &w.phrases, &w.edits, index, None, "base").unwrap();
@@ -440,4 +446,29 @@ fn a_project_signed_before_snapshots_is_handled_plainly() {
         "{t}"
     );
     assert!(t.contains("tree changes known ("), "{t}");
+}
+
+#[test]
+fn a_sign_off_writes_no_snapshot_while_another_writer_holds_the_lock() {
+    use treewright::model::lock::ProjectLock;
+    let tmp = tempfile::tempdir().unwrap();
+    let p = demo(tmp.path());
+    let held = ProjectLock::acquire_within(Path::new(&p), std::time::Duration::ZERO).unwrap();
+    let o = Command::new(env!("CARGO_BIN_EXE_treewright"))
+        .args(["signoff", &p, "--reviewer", "rowan"])
+        .env("TREEWRIGHT_LOCK_WAIT", "0.2")
+        .output()
+        .unwrap();
+    assert!(!o.status.success(), "{}", text(&o));
+    assert!(!Path::new(&p).join("signoffs").exists());
+    drop(held);
+    ok(&["signoff", &p, "--reviewer", "rowan"]);
+    let names: Vec<String> = std::fs::read_dir(Path::new(&p).join("signoffs"))
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    // only the two files, no temporary left behind by the atomic writes
+    assert_eq!(names.len(), 2, "{names:?}");
+    let (code, _) = verify_json(&p);
+    assert_eq!(code, 0);
 }

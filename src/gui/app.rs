@@ -475,6 +475,14 @@ impl DocQueries for Doc {
     fn sign_state(&self) -> SignState {
         Workspace::sign_state(self)
     }
+
+    fn changed_since_signoff(&self) -> Option<Result<(usize, bool), String>> {
+        Workspace::changed_since_signoff(self)
+    }
+
+    fn since_signoff(&self) -> Result<crate::model::signed::SinceSignoff, String> {
+        Workspace::since_signoff(self, None).map_err(|e| e.to_string())
+    }
 }
 
 /// What the views read this frame: the one place that turns the document into a [`ViewCtx`].

@@ -60,6 +60,8 @@ pub enum DialogRequest {
     Shortcuts,
     /// About treewright.
     About,
+    /// Compare trees, opened on the latest sign-off's tree.
+    SignedDiff,
 }
 
 /// Something a panel or dialog asks the shell to do. Views never change the document or
@@ -251,6 +253,15 @@ pub trait DocQueries {
     fn outside(&self) -> (Vec<PhraseId>, Vec<PhraseId>);
     /// Whether the latest sign-off matches the current tree.
     fn sign_state(&self) -> SignState;
+    /// Nodes changed since the latest sign-off's tree and whether that count is complete
+    /// (`None`: not known here).
+    fn changed_since_signoff(&self) -> Option<Result<(usize, bool), String>> {
+        None
+    }
+    /// The latest sign-off's tree against the effective tree, each change with its causes.
+    fn since_signoff(&self) -> Result<crate::model::signed::SinceSignoff, String> {
+        Err("not available".into())
+    }
 }
 
 /// What every view reads: the document's state for this frame, the selection and the

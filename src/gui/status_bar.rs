@@ -4,7 +4,7 @@
 use crate::model::audit::Severity;
 
 use super::badges;
-use super::context::{Action, Panel, PanelKind, SignState, ViewCtx, severity_index};
+use super::context::{Action, DialogRequest, Panel, PanelKind, SignState, ViewCtx, severity_index};
 
 /// The status bar (no state of its own).
 #[derive(Debug, Default)]
@@ -17,12 +17,13 @@ impl Panel for StatusBar {
 
     /// Draw the status bar; it asks for nothing.
     fn ui(&mut self, ui: &mut egui::Ui, view: &ViewCtx) -> Vec<Action> {
-        status(ui, view);
-        Vec::new()
+        let mut actions = Vec::new();
+        status(ui, view, &mut actions);
+        actions
     }
 }
 
-fn status(ui: &mut egui::Ui, view: &ViewCtx) {
+fn status(ui: &mut egui::Ui, view: &ViewCtx, actions: &mut Vec<Action>) {
     let message = view.message;
     ui.horizontal_wrapped(|ui| {
         ui.label(format!("{} phrases", view.project.phrases.len()));
@@ -78,6 +79,24 @@ fn status(ui: &mut egui::Ui, view: &ViewCtx) {
                     .on_hover_text(format!(
                         "{reviewer} signed an earlier tree; it changed since"
                     ));
+                let text = match view.queries.changed_since_signoff() {
+                    Some(Ok((n, true))) => {
+                        Some(format!("changed since sign-off: {n} nodes, see Compare trees"))
+                    }
+                    Some(Ok((n, false))) => Some(format!(
+                        "changed since sign-off: at least {n} nodes (signed tree not kept), see Compare trees"
+                    )),
+                    Some(Err(e)) => Some(format!("sign-off cannot be compared: {e}")),
+                    None => None,
+                };
+                if let Some(t) = text
+                    && ui
+                        .link(badges::plain(&t))
+                        .on_hover_text("Open Compare trees on the signed tree")
+                        .clicked()
+                {
+                    actions.push(Action::Dialog(DialogRequest::SignedDiff));
+                }
             }
         }
         if !view.problems.is_empty() {

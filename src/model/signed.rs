@@ -578,6 +578,32 @@ pub fn since_signoff(
     snapshot: Option<SignedTree>,
     base_note: &str,
 ) -> Result<SinceSignoff, SnapshotError> {
+    compare_with_signed(base, phrases, edits, index, snapshot, Some(base_note))
+}
+
+/// [`since_signoff`] without the causes (every `causes` list is empty): two applications
+/// of the edits instead of one per edit since the sign-off. For a count on every change of
+/// the tree (the workbench's status bar).
+pub fn since_signoff_uncaused(
+    base: &Tree,
+    phrases: &PhraseTable,
+    edits: &[EditRecord],
+    index: usize,
+    snapshot: Option<SignedTree>,
+) -> Result<SinceSignoff, SnapshotError> {
+    compare_with_signed(base, phrases, edits, index, snapshot, None)
+}
+
+fn compare_with_signed(
+    base: &Tree,
+    phrases: &PhraseTable,
+    edits: &[EditRecord],
+    index: usize,
+    snapshot: Option<SignedTree>,
+    base_note: Option<&str>,
+) -> Result<SinceSignoff, SnapshotError> {
+    let caused_wanted = base_note.is_some();
+    let base_note = base_note.unwrap_or_default();
     let Some(Edit::Signoff { tree_hash, .. }) = edits.get(index).map(|r| &r.edit) else {
         return Err(SnapshotError::NotASignoff { index });
     };
@@ -603,7 +629,7 @@ pub fn since_signoff(
     let differs = |a: &SignedTree, b: &SignedTree, c: &Change| aspect(a, c) != aspect(b, c);
     // which edits since the sign-off changed each change's aspect
     let mut by_edit: Vec<Vec<usize>> = vec![Vec::new(); changes.len()];
-    if replay != now {
+    if caused_wanted && replay != now {
         let mut prev = replay.clone();
         for j in index + 1..edits.len() {
             let cur = state(j + 1);
@@ -626,6 +652,12 @@ pub fn since_signoff(
         .zip(by_edit)
         .map(|(change, steps)| {
             let mut causes = Vec::new();
+            if !caused_wanted {
+                return CausedChange {
+                    change: change.clone(),
+                    causes,
+                };
+            }
             if differs(&signed, &replay, change) {
                 causes.push(base_note.to_string());
             }
@@ -645,7 +677,7 @@ pub fn since_signoff(
         index,
         signed_tree: source,
         complete: source != SignedSource::Missing,
-        base_changed: (base_differs || source == SignedSource::Missing)
+        base_changed: (caused_wanted && (base_differs || source == SignedSource::Missing))
             .then(|| base_note.to_string()),
         nodes_changed,
         changes: caused,

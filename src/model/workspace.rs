@@ -213,7 +213,12 @@ pub struct Workspace {
     unreviewed: usize,
     disk_tree: DiskPrint,
     disk_manifest: DiskPrint,
+    since_cache: std::sync::Mutex<Option<(u64, SinceSummary)>>,
 }
+
+/// How far the effective tree is from the latest sign-off's tree (for the workbench's
+/// status bar): `Ok((nodes changed, complete))`, or why it cannot be told.
+pub type SinceSummary = Result<(usize, bool), String>;
 
 impl Workspace {
     /// Open a project for the command line: it must have a tree; no auditor is kept.
@@ -276,6 +281,7 @@ impl Workspace {
             unreviewed: 0,
             disk_tree,
             disk_manifest,
+            since_cache: std::sync::Mutex::new(None),
         };
         ws.refresh();
         Ok(ws)
@@ -743,6 +749,52 @@ impl Workspace {
             |h| signed_tree::load_snapshot(&self.project.dir, h),
             &self.base_note(&hash),
         )?)
+    }
+
+    /// Nodes changed since the latest sign-off's tree (see [`SinceSummary`]); `None` when
+    /// there is no sign-off or no tree. Kept until the next change of the tree.
+    pub fn changed_since_signoff(&self) -> Option<SinceSummary> {
+        latest_signoff(&self.layer.edits)?;
+        self.eff.as_ref()?;
+        let mut cache = self.since_cache.lock().unwrap_or_else(|e| e.into_inner());
+        if let Some((g, v)) = cache.as_ref()
+            && *g == self.generation
+        {
+            return Some(v.clone());
+        }
+        let v = self
+            .count_since_signoff()
+            .map(|s| (s.nodes_changed, s.complete))
+            .map_err(|e| e.to_string());
+        *cache = Some((self.generation, v.clone()));
+        Some(v)
+    }
+
+    fn count_since_signoff(&self) -> Result<SinceSignoff, WorkspaceError> {
+        let edits = &self.layer.edits;
+        let (i, hash) = match latest_signoff(edits) {
+            Some((i, r)) => match &r.edit {
+                Edit::Signoff { tree_hash, .. } => (i, tree_hash),
+                _ => return Err(self.no_signoff()),
+            },
+            None => return Err(self.no_signoff()),
+        };
+        let snapshot = signed_tree::load_snapshot(&self.project.dir, hash)?;
+        let phrases = &self.project.phrases;
+        Ok(signed_tree::since_signoff_uncaused(
+            self.base()?,
+            phrases,
+            edits,
+            i,
+            snapshot,
+        )?)
+    }
+
+    fn no_signoff(&self) -> WorkspaceError {
+        WorkspaceError::NoSignoff {
+            file: self.overrides_path().display().to_string(),
+            at: String::new(),
+        }
     }
 
     /// For a sign-off to be verified later: store the tree it signs (`signoffs/<hash>.json`)

@@ -94,6 +94,10 @@ pub fn open(req: DialogRequest, view: &ViewCtx) -> Option<Dialog> {
         }
         DialogRequest::Shortcuts => Dialog::Shortcuts,
         DialogRequest::About => Dialog::About,
+        DialogRequest::SignedDiff => {
+            eff?;
+            Dialog::Diff(diff::DiffDialog::on_signoff(view))
+        }
     })
 }
 
