@@ -10,14 +10,28 @@ use std::process::{Command, Output};
 const BIN: &str = env!("CARGO_BIN_EXE_treewright");
 
 fn tw(dir: &Path, args: &[&str]) -> Output {
-    Command::new(BIN).current_dir(dir).args(args).output().unwrap()
+    Command::new(BIN)
+        .current_dir(dir)
+        .args(args)
+        .output()
+        .unwrap()
 }
 
 fn git(dir: &Path, args: &[&str]) -> Output {
     Command::new("git")
         .current_dir(dir)
-        .args(["-c", "user.name=Curator", "-c", "user.email=curator@fernhollow.test"])
-        .args(["-c", "init.defaultBranch=main", "-c", "commit.gpgsign=false"])
+        .args([
+            "-c",
+            "user.name=Curator",
+            "-c",
+            "user.email=curator@fernhollow.test",
+        ])
+        .args([
+            "-c",
+            "init.defaultBranch=main",
+            "-c",
+            "commit.gpgsign=false",
+        ])
         .args(args)
         .output()
         .unwrap()
@@ -48,9 +62,20 @@ fn git_merge_with_the_driver() {
     let d = tmp.path();
     ok(&tw(d, &["sample", "--out", "."]));
     ok(&git(d, &["init", "-q"]));
-    std::fs::write(d.join(".gitattributes"), "overrides.json merge=treewright-edits\n").unwrap();
+    std::fs::write(
+        d.join(".gitattributes"),
+        "overrides.json merge=treewright-edits\n",
+    )
+    .unwrap();
     std::fs::write(d.join(".gitignore"), "*.bak\n.treewright.lock\n").unwrap();
-    ok(&git(d, &["config", "merge.treewright-edits.name", "treewright override layers"]));
+    ok(&git(
+        d,
+        &[
+            "config",
+            "merge.treewright-edits.name",
+            "treewright override layers",
+        ],
+    ));
     ok(&git(
         d,
         &[
@@ -59,17 +84,42 @@ fn git_merge_with_the_driver() {
             &format!("{BIN} merge-edits %O %A %B --path %P"),
         ],
     ));
-    ok(&tw(d, &["edit", ".", "review", "aloe", "approved", "--author", "ana"]));
+    ok(&tw(
+        d,
+        &["edit", ".", "review", "aloe", "approved", "--author", "ana"],
+    ));
     ok(&git(d, &["add", "-A"]));
     ok(&git(d, &["commit", "-qm", "base"]));
 
     // two curators on separate branches of the tree
     ok(&git(d, &["checkout", "-qb", "ana"]));
-    ok(&tw(d, &["edit", ".", "reparent", "bird-netting", "wildlife-gardening", "--author", "ana"]));
+    ok(&tw(
+        d,
+        &[
+            "edit",
+            ".",
+            "reparent",
+            "bird-netting",
+            "wildlife-gardening",
+            "--author",
+            "ana",
+        ],
+    ));
     ok(&git(d, &["commit", "-qam", "ana moves bird netting"]));
     ok(&git(d, &["checkout", "-q", "main"]));
     ok(&git(d, &["checkout", "-qb", "ben"]));
-    ok(&tw(d, &["edit", ".", "rename", "bulb-planter", "Bulb planting tool", "--author", "ben"]));
+    ok(&tw(
+        d,
+        &[
+            "edit",
+            ".",
+            "rename",
+            "bulb-planter",
+            "Bulb planting tool",
+            "--author",
+            "ben",
+        ],
+    ));
     ok(&git(d, &["commit", "-qam", "ben renames the bulb planter"]));
     ok(&git(d, &["merge", "-q", "--no-edit", "ana"]));
     let edits: serde_json::Value =
@@ -80,16 +130,34 @@ fn git_merge_with_the_driver() {
         .iter()
         .map(|e| e["op"].as_str().unwrap())
         .collect();
-    assert_eq!(ops, ["review", "rename", "reparent"], "ours (ben) first, then theirs");
+    assert_eq!(
+        ops,
+        ["review", "rename", "reparent"],
+        "ours (ben) first, then theirs"
+    );
     assert!(edits.get("conflicts").is_none());
     assert_eq!(parent_of(d, "bird-netting"), "wildlife-gardening");
 
     // the same node placed under different parents: the merge stops with the report
     ok(&git(d, &["checkout", "-qb", "cara"]));
-    ok(&tw(d, &["edit", ".", "reparent", "aloe", "houseplants", "--author", "cara"]));
+    ok(&tw(
+        d,
+        &[
+            "edit",
+            ".",
+            "reparent",
+            "aloe",
+            "houseplants",
+            "--author",
+            "cara",
+        ],
+    ));
     ok(&git(d, &["commit", "-qam", "cara moves aloe"]));
     ok(&git(d, &["checkout", "-q", "ben"]));
-    ok(&tw(d, &["edit", ".", "reparent", "aloe", "shrubs", "--author", "ben"]));
+    ok(&tw(
+        d,
+        &["edit", ".", "reparent", "aloe", "shrubs", "--author", "ben"],
+    ));
     ok(&git(d, &["commit", "-qam", "ben moves aloe"]));
     let m = git(d, &["merge", "--no-edit", "cara"]);
     let report = format!(
@@ -98,13 +166,19 @@ fn git_merge_with_the_driver() {
         String::from_utf8_lossy(&m.stderr)
     );
     assert!(!m.status.success(), "{report}");
-    assert!(report.contains("conflict c1 (placement) on aloe"), "{report}");
+    assert!(
+        report.contains("conflict c1 (placement) on aloe"),
+        "{report}"
+    );
     assert!(report.contains("by cara"), "{report}");
     // the conflicted file is readable JSON and the loader refuses it with a clear message
     let info = tw(d, &["apply", ".", "--out", "eff.json"]);
     assert_eq!(info.status.code(), Some(2));
     let err = String::from_utf8_lossy(&info.stderr);
-    assert!(err.contains("unresolved merge conflict") && err.contains("c1"), "{err}");
+    assert!(
+        err.contains("unresolved merge conflict") && err.contains("c1"),
+        "{err}"
+    );
     let r = ok(&tw(d, &["resolve", ".", "c1", "theirs"]));
     assert!(r.contains("0 conflict(s) left"), "{r}");
     assert_eq!(parent_of(d, "aloe"), "houseplants");

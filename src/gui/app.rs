@@ -161,6 +161,19 @@ impl App {
                 None => self.notify("Nothing to redo"),
             },
             Action::Save => self.save(),
+            Action::FinishMerge(outcome, choices) => {
+                match self.doc.finish_merge(&outcome, &choices) {
+                    Ok(path) => {
+                        autosave::remove(&self.doc);
+                        self.autosaved_len = None;
+                        self.notify(format!(
+                            "Merged with the file on disk and saved {}",
+                            path.display()
+                        ));
+                    }
+                    Err(e) => self.fail(format!("Not merged: {e}")),
+                }
+            }
             Action::Open(path) => {
                 if self.is_dirty() {
                     self.fail("Save or undo your edits before opening another project");
@@ -302,7 +315,16 @@ impl App {
                 self.autosaved_len = None;
                 self.notify(format!("Saved {}", path.display()));
             }
-            Err(e) => self.fail(format!("Not saved: {e}")),
+            Err(e) => {
+                self.fail(format!("Not saved: {e}"));
+                // offer the way forward: merge with what the other writer saved
+                if self.doc.changed_on_disk()
+                    && let Ok(m) = self.doc.merge_with_disk()
+                {
+                    self.dialog =
+                        Some(Dialog::Merge(Box::new(dialogs::merge::MergeDialog::new(m))));
+                }
+            }
         }
     }
 

@@ -86,6 +86,11 @@ pub enum Action {
     Redo,
     /// Write the override file.
     Save,
+    /// Finish a merge with the file on disk: the conflicts resolved as chosen (by id).
+    FinishMerge(
+        Box<crate::model::merge::MergeOutcome>,
+        std::collections::BTreeMap<String, crate::model::merge::Side>,
+    ),
     /// Open a project folder.
     Open(PathBuf),
     /// Pick a project folder with the system dialog and open it.

@@ -115,6 +115,28 @@ impl Doc {
         }
     }
 
+    /// Whether the override file changed on disk since it was loaded or saved.
+    pub fn changed_on_disk(&self) -> bool {
+        self.ws
+            .layer
+            .changed_on_disk(&self.ws.overrides_path())
+            .unwrap_or(false)
+    }
+
+    /// Merge the unsaved edits with the file on disk; see [`Workspace::merge_with_disk`].
+    pub fn merge_with_disk(&self) -> Result<crate::model::merge::MergeOutcome, String> {
+        Ok(self.ws.merge_with_disk()?)
+    }
+
+    /// Finish a merge and save; see [`Workspace::finish_merge`].
+    pub fn finish_merge(
+        &mut self,
+        outcome: &crate::model::merge::MergeOutcome,
+        choices: &std::collections::BTreeMap<String, crate::model::merge::Side>,
+    ) -> Result<PathBuf, String> {
+        Ok(self.ws.finish_merge(outcome, choices)?)
+    }
+
     /// Replace the base tree (after a build); see [`Workspace::set_base`].
     pub fn set_base(
         &mut self,

@@ -599,6 +599,66 @@ impl Workspace {
         Ok(path)
     }
 
+    /// When [`Workspace::save`] was refused because the override file changed on disk:
+    /// merge this session's edits (ours) with the file on disk (theirs) over the edits as
+    /// last loaded or saved (the common ancestor), see [`super::merge`]. Nothing changes
+    /// until [`Workspace::finish_merge`].
+    pub fn merge_with_disk(&self) -> Result<super::merge::MergeOutcome, WorkspaceError> {
+        let path = self.overrides_path();
+        let theirs = match std::fs::read(&path) {
+            Ok(b) => overrides::parse_overrides(&b, &path.display().to_string())?,
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => Vec::new(),
+            Err(source) => {
+                return Err(WorkspaceError::Write {
+                    file: path.display().to_string(),
+                    source,
+                });
+            }
+        };
+        Ok(super::merge::merge(
+            self.base()?,
+            &self.project.phrases,
+            self.layer.saved_edits(),
+            &self.layer.edits,
+            &theirs,
+        ))
+    }
+
+    /// Finish a merge with the file on disk: `outcome` with every conflict resolved to the
+    /// side chosen in `choices` (by conflict id; an unchosen conflict keeps ours). Under the
+    /// project lock the file on disk is taken as the new reference point, the merged edits
+    /// replace this session's, and they are saved atomically; refused with "changed on disk"
+    /// when the file changed yet again since the merge was computed (merge again then).
+    pub fn finish_merge(
+        &mut self,
+        outcome: &super::merge::MergeOutcome,
+        choices: &std::collections::BTreeMap<String, super::merge::Side>,
+    ) -> Result<PathBuf, WorkspaceError> {
+        let path = self.overrides_path();
+        let lock = self.lock()?;
+        let fresh = self.merge_with_disk()?;
+        if fresh.edits != outcome.edits || fresh.conflicts != outcome.conflicts {
+            return Err(OverrideError::ChangedOnDisk {
+                file: path.display().to_string(),
+            }
+            .into());
+        }
+        let mut edits = outcome.edits.clone();
+        for c in &outcome.conflicts {
+            let side = choices
+                .get(&c.id)
+                .copied()
+                .unwrap_or(super::merge::Side::Ours);
+            edits.extend(c.side(side).iter().cloned());
+        }
+        self.layer.take_disk(&path)?;
+        self.layer.edits = edits;
+        self.layer.save_locked(&path, &lock)?;
+        drop(lock);
+        self.refresh();
+        Ok(path)
+    }
+
     /// Replace the base tree (after a build): under the project lock, write it to the
     /// project's tree file (the old one kept as `.bak`; `.csv` tree files get a
     /// `child,parent` list), make the manifest name the tree file, and write the build report

@@ -10,6 +10,7 @@ pub mod build;
 pub mod diff;
 pub mod export;
 pub mod help;
+pub mod merge;
 pub mod picker;
 pub mod rename;
 pub mod review;
@@ -67,6 +68,8 @@ pub enum Dialog {
     Recover(Recovery),
     /// Edits that no longer apply after a new base tree.
     Stale(Vec<String>),
+    /// Merge with the override file someone else saved.
+    Merge(Box<merge::MergeDialog>),
 }
 
 /// Make the dialog for a request (`None` when it does not apply, e.g. no tree).
@@ -130,6 +133,7 @@ impl Dialog {
             Dialog::ConfirmClose => session::confirm_close(ctx, view),
             Dialog::Recover(r) => session::recover(ctx, r),
             Dialog::Stale(list) => session::stale(ctx, list),
+            Dialog::Merge(d) => d.ui(ctx, view),
         }
     }
 }

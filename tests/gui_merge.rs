@@ -1,0 +1,57 @@
+//! The workbench's "Merge with the file on disk" dialog (issue 18), driven by labels with
+//! egui_kittest: a save refused because a script saved first opens the dialog, the curator
+//! keeps the other side for the conflict, and the merged layer is saved.
+
+use std::process::Command;
+
+use egui_kittest::Harness;
+use egui_kittest::kittest::Queryable;
+use treewright::gui::context::Action;
+use treewright::gui::{App, Settings};
+use treewright::model::edit::Edit;
+use treewright::model::overrides::parse_overrides;
+use treewright::model::sample::write_demo;
+
+#[test]
+fn refused_save_offers_the_merge_dialog() {
+    let t = tempfile::tempdir().unwrap();
+    let dir = t.path().join("demo");
+    write_demo(&dir).unwrap();
+    let mut doc = treewright::gui::Doc::open(&dir).unwrap();
+    doc.wait_for_audit();
+    let app = App::new(
+        doc,
+        Settings {
+            author: "win".into(),
+            ..Settings::default()
+        },
+    );
+    let mut h = Harness::builder()
+        .with_size([1280.0, 800.0])
+        .with_max_steps(12)
+        .build_ui_state(|ui, app: &mut App| app.ui(ui), app);
+    h.run();
+    h.state_mut().apply(Action::Edit(Edit::Reparent {
+        node: "aloe".into(),
+        parent: "shrubs".into(),
+    }));
+    let out = Command::new(env!("CARGO_BIN_EXE_treewright"))
+        .arg("edit")
+        .arg(&dir)
+        .args(["reparent", "aloe", "houseplants", "--author", "cli"])
+        .output()
+        .unwrap();
+    assert!(out.status.success());
+    h.state_mut().apply(Action::Save);
+    h.run();
+    h.get_by_label("Merge with the file on disk");
+    h.get_by_label_contains("Conflict c1 (placement) on aloe");
+    h.get_by_label("Keep theirs").click();
+    h.run();
+    h.get_by_label("Merge and save").click();
+    h.run();
+    let edits = parse_overrides(&std::fs::read(dir.join("overrides.json")).unwrap(), "o").unwrap();
+    assert_eq!(edits.len(), 1, "{edits:?}");
+    assert_eq!(edits[0].author, "cli");
+    assert!(h.query_by_label("Merge with the file on disk").is_none());
+}
