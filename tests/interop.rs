@@ -89,3 +89,80 @@ fn numpy_occurrence_matrix_and_ids() {
     assert_eq!((n, d), (81, 4));
     assert_eq!(ids.len(), n);
 }
+
+#[test]
+fn pandas_parquet_embeddings_match_by_id_and_can_supply_the_phrases() {
+    let reference = Project::load(
+        project(
+            r#"{"npz": "emb_savez_compressed.npz", "means": "mu", "variances": "var"}"#,
+            &["emb_savez_compressed.npz"],
+            None,
+        )
+        .path(),
+    )
+    .unwrap();
+    // phrases from phrases.json; table rows are in another order than the phrases
+    let a = project(
+        r#"{"parquet": "emb.parquet", "means": "mean", "variances": "var"}"#,
+        &["emb.parquet"],
+        None,
+    );
+    // phrases from the same table's id and label columns
+    let b = project(
+        r#"{"parquet": "emb.parquet", "id": "phrase_id", "label": "label", "means": "mean", "variances": "var"}"#,
+        &["emb.parquet"],
+        None,
+    );
+    let m = b.path().join("project.json");
+    let s = fs::read_to_string(&m)
+        .unwrap()
+        .replace("\"phrases.json\"", "\"emb.parquet\"");
+    fs::write(&m, s).unwrap();
+    let pa = Project::load(a.path()).unwrap();
+    let pb = Project::load(b.path()).unwrap();
+    for i in 0..5 {
+        assert_eq!(pa.gaussians.mean(i), reference.gaussians.mean(i));
+        assert_eq!(pa.gaussians.variances(i), reference.gaussians.variances(i));
+        let id = reference.phrases.id(i as u32);
+        let j = pb.phrases.get(id).unwrap() as usize;
+        assert_eq!(
+            pb.phrases.label(j as u32),
+            reference.phrases.label(i as u32)
+        );
+        assert_eq!(pb.gaussians.mean(j), reference.gaussians.mean(i));
+    }
+}
+
+#[test]
+fn parquet_errors_name_the_file_row_and_column() {
+    let d = project(
+        r#"{"parquet": "emb.parquet", "means": "mu", "variances": "var"}"#,
+        &["emb.parquet"],
+        None,
+    );
+    let e = Project::load(d.path()).unwrap_err().to_string();
+    assert!(
+        e.contains("emb.parquet: column \"mu\": no such column (the table has: phrase_id, label, mean, var)"),
+        "{e}"
+    );
+    let d = project(
+        r#"{"parquet": "emb.parquet", "id": "label", "means": "mean", "variances": "var"}"#,
+        &["emb.parquet"],
+        None,
+    );
+    let e = Project::load(d.path()).unwrap_err().to_string();
+    assert!(
+        e.contains("emb.parquet: row 0 column \"label\": \"peat free compost\" is not a phrase id"),
+        "{e}"
+    );
+    let d = project(
+        r#"{"parquet": "emb.parquet", "means": "mean", "variances": "label"}"#,
+        &["emb.parquet"],
+        None,
+    );
+    let e = Project::load(d.path()).unwrap_err().to_string();
+    assert!(
+        e.contains("row 0 column \"label\": expected a list of floats"),
+        "{e}"
+    );
+}

@@ -119,6 +119,25 @@ pub(super) fn load_embeddings(
             limits,
             &mfile,
         ),
+        EmbeddingsRef::Parquet {
+            parquet,
+            id,
+            means,
+            variances,
+            ..
+        } => {
+            let path = resolve_inside(dir, parquet, "embeddings.parquet")?;
+            let file = path.display().to_string();
+            let id = id.as_deref().unwrap_or(super::parquet::DEFAULT_ID_COLUMN);
+            let (d, mvals, mut vvals) =
+                super::parquet::embeddings_by_id(&path, id, means, variances, phrases, limits)?;
+            check_dim(&file, d, limits)?;
+            check_finite_named(&file, phrases, &mvals, d, "mean")?;
+            check_finite_named(&file, phrases, &vvals, d, "variance")?;
+            apply_scale(&mut vvals, manifest.scale);
+            Gaussians::from_diagonal(n, d, mvals, vvals, floor)
+                .map_err(|e| gauss_err(&file, phrases, e))
+        }
         EmbeddingsRef::Npz {
             npz,
             means,
