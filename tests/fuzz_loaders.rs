@@ -10,7 +10,7 @@ use treewright::model::overrides::parse_overrides;
 use treewright::model::phrase::PhraseRecord;
 use treewright::model::project::{
     EmbeddingsJson, Limits, Manifest, UserRecord, parse_json, parse_npy2, parse_npy3, parse_npz2,
-    parse_skos_tree, parse_tree_csv,
+    parse_parquet_columns, parse_skos_tree, parse_tree_csv,
 };
 use treewright::model::tree::TreeFile;
 
@@ -75,6 +75,13 @@ fn parse_all(bytes: &[u8]) {
     let _ = parse_npz2(bytes, "mu", "emb.npz", &Limits::default());
     let table = treewright::model::PhraseTable::from_ids(&["a", "b", "c"]).unwrap();
     let _ = parse_skos_tree(bytes, "taxonomy.ttl", &table);
+    let _ = parse_parquet_columns(
+        bytes.to_vec(),
+        "emb.parquet",
+        &["phrase_id", "label"],
+        &["mean", "var"],
+        &Limits::default(),
+    );
 }
 
 #[test]
@@ -94,6 +101,7 @@ fn mutated_valid_inputs_never_panic() {
         valid_npz(false),
         valid_npz(true),
         VALID_TTL.as_bytes().to_vec(),
+        std::fs::read("tests/data/interop/emb.parquet").unwrap(),
         MANIFEST.as_bytes().to_vec(),
         br#"[{"id": "a", "label": "a"}, {"label": "b c"}]"#.to_vec(),
         br#"{"root": "a", "parent": {"b": "a"}}"#.to_vec(),

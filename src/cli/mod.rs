@@ -14,6 +14,7 @@ pub mod build;
 pub mod diff;
 pub mod edit;
 pub mod export;
+pub mod fit;
 pub mod info;
 pub mod progress;
 pub mod sample;
@@ -75,6 +76,8 @@ pub enum Command {
     Sample(sample::SampleArgs),
     /// Regenerate the machine-built tree from the embeddings (divisive clustering).
     Build(build::BuildArgs),
+    /// Fit one Gaussian per phrase from occurrence vectors and write a new project.
+    Fit(fit::FitArgs),
 }
 
 /// A failed subcommand: the message to print and the exit code.
@@ -136,6 +139,7 @@ pub fn run(command: Command) -> ExitCode {
         Command::Suggest(a) => suggest::run(&a),
         Command::Sample(a) => sample::run(&a),
         Command::Build(a) => build::run(&a),
+        Command::Fit(a) => fit::run(&a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
