@@ -16,6 +16,7 @@ mod npy;
 mod parquet;
 mod read;
 mod skos_tree;
+mod taxonomy_import;
 mod tree_file;
 mod writer;
 
@@ -32,6 +33,7 @@ pub use parquet::{
 };
 pub use read::{parse_json, read_json, resolve_inside};
 pub use skos_tree::{SkosReport, SkosTree, is_skos_path, load_skos_tree, parse_skos_tree};
+pub use taxonomy_import::TAXONOMY_FILE;
 pub use tree_file::{load_tree, parse_tree_csv};
 pub use writer::ProjectWriter;
 
