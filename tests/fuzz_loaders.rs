@@ -299,3 +299,36 @@ fn npz_entries_claiming_a_huge_unpacked_size_are_refused() {
     assert!(e.contains("emb.npz[mu]"), "{e}");
     assert!(big < BOUND, "largest allocation {big} bytes");
 }
+
+#[test]
+fn mutated_parquet_tables_never_over_allocate() {
+    let seed = std::fs::read("tests/data/interop/emb.parquet").unwrap();
+    let strategy = (
+        proptest::collection::vec((any::<usize>(), any::<u8>()), 1..6),
+        any::<usize>(),
+        any::<bool>(),
+    );
+    runner()
+        .run(&strategy, |(flips, cut, truncate)| {
+            let mut b = seed.clone();
+            for (pos, val) in flips {
+                let i = pos % b.len();
+                b[i] = val;
+            }
+            if truncate {
+                b.truncate(cut % (b.len() + 1));
+            }
+            let big = largest_request(|| {
+                let _ = parse_parquet_columns(
+                    b,
+                    "emb.parquet",
+                    &["phrase_id", "label"],
+                    &["mean", "var"],
+                    &Limits::default(),
+                );
+            });
+            prop_assert!(big < BOUND, "largest allocation {} bytes", big);
+            Ok(())
+        })
+        .unwrap();
+}

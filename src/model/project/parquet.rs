@@ -57,15 +57,28 @@ pub fn read_parquet_columns(
     limits: &Limits,
     max_rows: Option<usize>,
 ) -> Result<ParquetColumns, LoadError> {
-    let reader = open(path, limits)?;
-    columns_from(
-        &reader,
-        &path.display().to_string(),
-        strings,
-        lists,
-        limits,
-        max_rows,
-    )
+    let file = path.display().to_string();
+    guard(&file, || {
+        let reader = open(path, limits)?;
+        columns_from(&reader, &file, strings, lists, limits, max_rows)
+    })
+}
+
+/// Run a Parquet read, turning a panic inside the `parquet` crate (it asserts on some
+/// malformed metadata, found by tests/fuzz_loaders.rs) into a load error naming the file.
+fn guard<T>(file: &str, f: impl FnOnce() -> Result<T, LoadError>) -> Result<T, LoadError> {
+    std::panic::catch_unwind(std::panic::AssertUnwindSafe(f)).unwrap_or_else(|p| {
+        let why = p
+            .downcast_ref::<&str>()
+            .map(|s| s.to_string())
+            .or_else(|| p.downcast_ref::<String>().cloned())
+            .unwrap_or_else(|| "malformed metadata".into());
+        Err(LoadError::invalid(
+            file,
+            "parquet",
+            format!("not a usable Parquet file: {why}"),
+        ))
+    })
 }
 
 /// Parse Parquet bytes (for tests and fuzzing).
@@ -76,10 +89,12 @@ pub fn parse_parquet_columns(
     lists: &[&str],
     limits: &Limits,
 ) -> Result<ParquetColumns, LoadError> {
-    let reader = SerializedFileReader::new(bytes::Bytes::from(bytes)).map_err(|e| {
-        LoadError::invalid(file, "parquet", format!("not a usable Parquet file: {e}"))
-    })?;
-    columns_from(&reader, file, strings, lists, limits, None)
+    guard(file, || {
+        let reader = SerializedFileReader::new(bytes::Bytes::from(bytes)).map_err(|e| {
+            LoadError::invalid(file, "parquet", format!("not a usable Parquet file: {e}"))
+        })?;
+        columns_from(&reader, file, strings, lists, limits, None)
+    })
 }
 
 fn columns_from<R: FileReader>(
