@@ -221,3 +221,51 @@ proptest! {
         prop_assert!(back.report.several_broader.is_empty());
     }
 }
+
+#[test]
+fn cli_diff_against_a_skos_taxonomy_lists_matches_and_moves() {
+    let d = common::project();
+    let ttl = d.path().join("tax.ttl");
+    std::fs::write(
+        &ttl,
+        format!(
+            "{PREFIX}
+ex:a skos:notation \"plants\" .
+ex:s skos:prefLabel \"Shade Loving\" ; skos:broader ex:a .
+ex:b skos:prefLabel \"succulent\" ; skos:broader ex:s , ex:a .
+ex:x skos:prefLabel \"Bulbs\" ; skos:broader ex:a .
+"
+        ),
+    )
+    .unwrap();
+    let o = std::process::Command::new(env!("CARGO_BIN_EXE_treewright"))
+        .arg("diff")
+        .arg(d.path())
+        .arg("--against")
+        .arg(&ttl)
+        .output()
+        .unwrap();
+    let out = String::from_utf8_lossy(&o.stdout);
+    assert!(
+        o.status.success(),
+        "{out}{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    assert!(out.contains("4 concepts, 3 matched to phrases"), "{out}");
+    assert!(
+        out.contains("concepts matching no phrase (1):\n  <http://example.org/t/x> (\"Bulbs\")"),
+        "{out}"
+    );
+    assert!(out.contains("phrases matching no concept (0)"), "{out}");
+    assert!(
+        out.contains("concepts with several broader concepts (1):"),
+        "{out}"
+    );
+    // the project's tree has succulent under plants; the taxonomy under shade-loving
+    assert!(
+        out.contains(
+            "effective tree against the taxonomy (1):\n  moved     succulent: shade-loving → plants"
+        ),
+        "{out}"
+    );
+}
