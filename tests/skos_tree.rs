@@ -269,3 +269,27 @@ ex:x skos:prefLabel \"Bulbs\" ; skos:broader ex:a .
         "{out}"
     );
 }
+
+#[test]
+fn build_never_writes_over_a_skos_taxonomy() {
+    let d = common::project();
+    let ttl = d.path().join("taxonomy.ttl");
+    let text = format!(
+        "{PREFIX}ex:a skos:notation \"plants\" .\nex:b skos:notation \"succulent\" ; skos:broader ex:a .\n"
+    );
+    std::fs::write(&ttl, &text).unwrap();
+    let m = d.path().join("project.json");
+    let s = std::fs::read_to_string(&m)
+        .unwrap()
+        .replace("\"tree.json\"", "\"taxonomy.ttl\"");
+    std::fs::write(&m, s).unwrap();
+    let o = std::process::Command::new(env!("CARGO_BIN_EXE_treewright"))
+        .arg("build")
+        .arg(d.path())
+        .output()
+        .unwrap();
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(!o.status.success());
+    assert!(err.contains("is a SKOS taxonomy"), "{err}");
+    assert_eq!(std::fs::read_to_string(&ttl).unwrap(), text);
+}
