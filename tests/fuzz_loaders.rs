@@ -75,6 +75,7 @@ fn parse_all(bytes: &[u8]) {
     let _ = parse_npz2(bytes, "mu", "emb.npz", &Limits::default());
     let table = treewright::model::PhraseTable::from_ids(&["a", "b", "c"]).unwrap();
     let _ = parse_skos_tree(bytes, "taxonomy.ttl", &table);
+    let _ = parse_skos_tree(bytes, "taxonomy.rdf", &table);
     let _ = parse_parquet_columns(
         bytes.to_vec(),
         "emb.parquet",
@@ -102,6 +103,7 @@ fn mutated_valid_inputs_never_panic() {
         valid_npz(true),
         VALID_TTL.as_bytes().to_vec(),
         std::fs::read("tests/data/interop/emb.parquet").unwrap(),
+        std::fs::read("tests/data/interop/taxonomy.rdf").unwrap(),
         MANIFEST.as_bytes().to_vec(),
         br#"[{"id": "a", "label": "a"}, {"label": "b c"}]"#.to_vec(),
         br#"{"root": "a", "parent": {"b": "a"}}"#.to_vec(),

@@ -166,3 +166,22 @@ fn parquet_errors_name_the_file_row_and_column() {
         "{e}"
     );
 }
+
+#[test]
+fn rdflib_rdf_xml_taxonomy_reads_as_the_same_tree() {
+    let d = project(
+        r#"{"npz": "emb_savez.npz", "means": "mu", "variances": "var"}"#,
+        &["emb_savez.npz", "taxonomy.ttl"],
+        Some("taxonomy.rdf"),
+    );
+    let p = Project::load(d.path()).unwrap();
+    let from_xml = p.tree.as_ref().unwrap().to_file(&p.phrases);
+    let from_ttl = load_skos_tree(
+        &d.path().join("taxonomy.ttl"),
+        &p.phrases,
+        &Default::default(),
+    )
+    .unwrap();
+    assert_eq!(from_xml, from_ttl.tree);
+    assert_eq!(from_xml.parent["peat-free-compost"], "compost");
+}

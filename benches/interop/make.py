@@ -83,6 +83,7 @@ concept("soil", "Soil and compost", broader="root")
 concept("compost", "Compost", broader="soil")
 concept("peatfree", "Peat-free compost", notation="peat-free-compost", broader="compost")
 g.serialize(os.path.join(OUT, "taxonomy.ttl"), format="turtle")
+g.serialize(os.path.join(OUT, "taxonomy.rdf"), format="xml")
 
 # --- occurrence vectors: Parquet (phrase_id, vector) and .npy + ids JSON ---
 counts = {"plants": 40, "succulent": 25, "shade-loving": 3, "peat-free-compost": 12, "compost": 1}

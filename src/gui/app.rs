@@ -215,8 +215,8 @@ impl App {
             Action::OpenDemo => self.apply(Action::Open(crate::model::sample::demo_dir())),
             Action::BrowseTaxonomy => {
                 if let Some(file) = rfd::FileDialog::new()
-                    .set_title("Import a SKOS taxonomy (Turtle) as the tree")
-                    .add_filter("SKOS Turtle", &["ttl"])
+                    .set_title("Import a SKOS taxonomy as the tree")
+                    .add_filter("SKOS (Turtle, RDF/XML)", &["ttl", "rdf", "owl"])
                     .pick_file()
                 {
                     self.apply(Action::ImportTaxonomy(file));

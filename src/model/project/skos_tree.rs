@@ -1,4 +1,4 @@
-//! A hand-made taxonomy in SKOS (Turtle) read as the project's tree.
+//! A hand-made taxonomy in SKOS (Turtle or RDF/XML) read as the project's tree.
 //!
 //! Concepts are matched to phrases by `skos:notation` (the phrase id), then by
 //! `skos:prefLabel`, then by `skos:altLabel` (labels compared ignoring case and runs of white
@@ -22,10 +22,21 @@ use crate::model::gaussian::PhraseId;
 use crate::model::phrase::PhraseTable;
 use crate::model::tree::TreeFile;
 
-/// Whether `path` names a SKOS file this build reads (by extension: `.ttl`).
+/// Whether `path` names a SKOS file this build reads (by extension: `.ttl` for Turtle,
+/// `.rdf` or `.owl` for RDF/XML).
 pub fn is_skos_path(path: &Path) -> bool {
-    path.extension()
-        .is_some_and(|e| e.eq_ignore_ascii_case("ttl"))
+    path.extension().is_some_and(|e| {
+        ["ttl", "rdf", "owl"]
+            .iter()
+            .any(|x| e.eq_ignore_ascii_case(x))
+    })
+}
+
+/// Whether `file` is read as RDF/XML (by extension `.rdf` or `.owl`; otherwise Turtle).
+fn is_rdf_xml(file: &str) -> bool {
+    Path::new(file)
+        .extension()
+        .is_some_and(|e| e.eq_ignore_ascii_case("rdf") || e.eq_ignore_ascii_case("owl"))
 }
 
 /// What reading a SKOS taxonomy against the phrase table found.
@@ -96,7 +107,8 @@ pub fn load_skos_tree(
     parse_skos_tree(&bytes, &path.display().to_string(), phrases)
 }
 
-/// Parse SKOS Turtle bytes (naming `file` in errors) as a tree over `phrases`.
+/// Parse SKOS bytes (naming `file` in errors) as a tree over `phrases`: RDF/XML when
+/// `file` ends in `.rdf` or `.owl`, Turtle otherwise.
 pub fn parse_skos_tree(
     bytes: &[u8],
     file: &str,
@@ -116,8 +128,26 @@ pub fn parse_skos_tree(
     // labels of any subject, attached to concepts afterwards
     let mut props: HashMap<String, (Vec<String>, Vec<String>, Vec<String>)> = HashMap::new();
     let mut edges: Vec<(usize, usize)> = Vec::new(); // (narrower, broader), document order
-    for t in TurtleParser::new().for_slice(bytes) {
-        let t = t.map_err(|e| LoadError::invalid(file, "turtle", e.to_string()))?;
+    let triples: Box<dyn Iterator<Item = Result<oxrdf::Triple, String>>> = if is_rdf_xml(file) {
+        Box::new(
+            oxrdfxml::RdfXmlParser::new()
+                .for_slice(bytes)
+                .map(|t| t.map_err(|e| e.to_string())),
+        )
+    } else {
+        Box::new(
+            TurtleParser::new()
+                .for_slice(bytes)
+                .map(|t| t.map_err(|e| e.to_string())),
+        )
+    };
+    let syntax = if is_rdf_xml(file) {
+        "rdf/xml"
+    } else {
+        "turtle"
+    };
+    for t in triples {
+        let t = t.map_err(|e| LoadError::invalid(file, syntax, e))?;
         let s = subject_key(&t.subject);
         let p = t.predicate.as_ref();
         if p == oxrdf::vocab::rdf::TYPE && t.object == Term::from(skos::CONCEPT.into_owned()) {

@@ -8,20 +8,31 @@ use super::manifest::MANIFEST_NAME;
 use super::skos_tree::{SkosReport, load_skos_tree};
 use crate::model::fsutil;
 
-/// The file name an imported taxonomy gets inside the project folder.
+/// The file name an imported Turtle taxonomy gets inside the project folder.
 pub const TAXONOMY_FILE: &str = "taxonomy.ttl";
+/// The file name an imported RDF/XML taxonomy gets inside the project folder.
+pub const TAXONOMY_FILE_RDF_XML: &str = "taxonomy.rdf";
 
 impl Project {
-    /// Make the SKOS Turtle file `src` the project's tree: it is read against the phrases
-    /// first (nothing changes when it cannot be used), copied into the project folder as
-    /// `taxonomy.ttl` (an earlier `taxonomy.ttl` kept as `taxonomy.ttl.bak`), and named as
+    /// Make the SKOS file `src` (Turtle, or RDF/XML for `.rdf`/`.owl`) the project's tree: it
+    /// is read against the phrases first (nothing changes when it cannot be used), copied
+    /// into the project folder as `taxonomy.ttl` or `taxonomy.rdf` (an earlier one kept as
+    /// `.bak`), and named as
     /// `tree` in `project.json` (the previous manifest, which names the previous tree file,
     /// kept as `project.json.bak`; the previous tree file itself is left in place). Returns
     /// what matched. Reload the project afterwards to use the new tree.
     pub fn import_taxonomy(&mut self, src: &Path) -> Result<SkosReport, LoadError> {
         let limits = self.manifest.limits.unwrap_or_default();
         let skos = load_skos_tree(src, &self.phrases, &limits)?;
-        let dest = self.dir.join(TAXONOMY_FILE);
+        let xml = src
+            .extension()
+            .is_some_and(|e| e.eq_ignore_ascii_case("rdf") || e.eq_ignore_ascii_case("owl"));
+        let name = if xml {
+            TAXONOMY_FILE_RDF_XML
+        } else {
+            TAXONOMY_FILE
+        };
+        let dest = self.dir.join(name);
         let dfile = dest.display().to_string();
         let io = |file: &str| {
             let file = file.to_string();
@@ -32,9 +43,9 @@ impl Project {
         if !same {
             fsutil::atomic_write(&dest, &bytes, true).map_err(io(&dfile))?;
         }
-        if self.manifest.tree.as_deref() != Some(TAXONOMY_FILE) {
+        if self.manifest.tree.as_deref() != Some(name) {
             let mut manifest = self.manifest.clone();
-            manifest.tree = Some(TAXONOMY_FILE.to_string());
+            manifest.tree = Some(name.to_string());
             let mpath = self.dir.join(MANIFEST_NAME);
             fsutil::atomic_write(&mpath, &fsutil::to_json_pretty(&manifest), true)
                 .map_err(io(&mpath.display().to_string()))?;
