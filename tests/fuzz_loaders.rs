@@ -9,7 +9,8 @@ use proptest::test_runner::{Config, RngAlgorithm, TestRng, TestRunner};
 use treewright::model::overrides::parse_overrides;
 use treewright::model::phrase::PhraseRecord;
 use treewright::model::project::{
-    EmbeddingsJson, Manifest, UserRecord, parse_json, parse_npy2, parse_npy3, parse_tree_csv,
+    EmbeddingsJson, Limits, Manifest, UserRecord, parse_json, parse_npy2, parse_npy3, parse_npz2,
+    parse_parquet_columns, parse_skos_tree, parse_tree_csv,
 };
 use treewright::model::tree::TreeFile;
 
@@ -38,6 +39,25 @@ fn valid_npy() -> Vec<u8> {
     buf
 }
 
+fn valid_npz(compressed: bool) -> Vec<u8> {
+    let a = Array2::<f32>::from_shape_fn((3, 2), |(i, j)| (i * 2 + j) as f32 * 0.5);
+    let mut cur = std::io::Cursor::new(Vec::new());
+    let mut w = if compressed {
+        ndarray_npy::NpzWriter::new_compressed(&mut cur)
+    } else {
+        ndarray_npy::NpzWriter::new(&mut cur)
+    };
+    w.add_array("mu", &a).unwrap();
+    w.finish().unwrap();
+    cur.into_inner()
+}
+
+const VALID_TTL: &str = "@prefix skos: <http://www.w3.org/2004/02/skos/core#> .
+<http://x/a> a skos:Concept ; skos:notation \"a\" ; skos:narrower <http://x/b> .
+<http://x/b> skos:prefLabel \"B\"@en ; skos:broader <http://x/a> .
+<http://x/c> skos:altLabel \"c\" ; skos:broader <http://x/b> .
+";
+
 const MANIFEST: &str = r#"{"format": "treewright-project", "version": 1, "name": "x",
  "phrases": "phrases.json", "embeddings": {"means": "m.npy", "variances": "v.npy"}}"#;
 
@@ -52,6 +72,17 @@ fn parse_all(bytes: &[u8]) {
     let _ = parse_npy2(bytes, "means.npy");
     let _ = parse_npy3(bytes, "covariances.npy");
     let _ = parse_overrides(bytes, "overrides.json");
+    let _ = parse_npz2(bytes, "mu", "emb.npz", &Limits::default());
+    let table = treewright::model::PhraseTable::from_ids(&["a", "b", "c"]).unwrap();
+    let _ = parse_skos_tree(bytes, "taxonomy.ttl", &table);
+    let _ = parse_skos_tree(bytes, "taxonomy.rdf", &table);
+    let _ = parse_parquet_columns(
+        bytes.to_vec(),
+        "emb.parquet",
+        &["phrase_id", "label"],
+        &["mean", "var"],
+        &Limits::default(),
+    );
 }
 
 #[test]
@@ -68,6 +99,11 @@ fn arbitrary_bytes_never_panic() {
 fn mutated_valid_inputs_never_panic() {
     let seeds: Vec<Vec<u8>> = vec![
         valid_npy(),
+        valid_npz(false),
+        valid_npz(true),
+        VALID_TTL.as_bytes().to_vec(),
+        std::fs::read("tests/data/interop/emb.parquet").unwrap(),
+        std::fs::read("tests/data/interop/taxonomy.rdf").unwrap(),
         MANIFEST.as_bytes().to_vec(),
         br#"[{"id": "a", "label": "a"}, {"label": "b c"}]"#.to_vec(),
         br#"{"root": "a", "parent": {"b": "a"}}"#.to_vec(),
@@ -126,6 +162,174 @@ fn npy_headers_claiming_huge_shapes_are_refused() {
             let r = parse_npy2(&npy, "means.npy");
             let fits = (a as u128) * (b as u128) * 8 == tail as u128;
             prop_assert_eq!(r.is_ok(), fits);
+            Ok(())
+        })
+        .unwrap();
+}
+
+// ---- allocation bound for the .npz reader ----
+//
+// A global allocator that remembers, per thread, the largest single allocation request:
+// a header that makes a reader reserve memory for values the input does not hold shows up
+// as one huge request.
+
+use std::alloc::{GlobalAlloc, Layout, System};
+use std::cell::Cell;
+
+struct LargestRequest;
+
+thread_local! {
+    static LARGEST: Cell<usize> = const { Cell::new(0) };
+}
+
+fn note(size: usize) {
+    let _ = LARGEST.try_with(|c| {
+        if size > c.get() {
+            c.set(size)
+        }
+    });
+}
+
+// SAFETY: every call is forwarded unchanged to the system allocator; `note` only records a
+// number in a const-initialised thread-local (no allocation, no panic).
+unsafe impl GlobalAlloc for LargestRequest {
+    unsafe fn alloc(&self, l: Layout) -> *mut u8 {
+        note(l.size());
+        unsafe { System.alloc(l) }
+    }
+    unsafe fn alloc_zeroed(&self, l: Layout) -> *mut u8 {
+        note(l.size());
+        unsafe { System.alloc_zeroed(l) }
+    }
+    unsafe fn dealloc(&self, p: *mut u8, l: Layout) {
+        unsafe { System.dealloc(p, l) }
+    }
+    unsafe fn realloc(&self, p: *mut u8, l: Layout, new: usize) -> *mut u8 {
+        note(new);
+        unsafe { System.realloc(p, l, new) }
+    }
+}
+
+#[global_allocator]
+static ALLOC: LargestRequest = LargestRequest;
+
+/// The largest single allocation `f` makes on this thread.
+fn largest_request(f: impl FnOnce()) -> usize {
+    LARGEST.with(|c| c.set(0));
+    f();
+    LARGEST.with(Cell::get)
+}
+
+/// An `.npz` (stored, not compressed) whose member `mu.npy` has a header claiming
+/// `rows × 4` float64 values but holds only 16 bytes of data.
+fn npz_claiming_rows(rows: u64) -> Vec<u8> {
+    let header = format!("{{'descr': '<f8', 'fortran_order': False, 'shape': ({rows}, 4), }}");
+    let mut h = header.into_bytes();
+    while (10 + h.len() + 1) % 64 != 0 {
+        h.push(b' ');
+    }
+    h.push(b'\n');
+    let mut npy = b"\x93NUMPY\x01\x00".to_vec();
+    npy.extend_from_slice(&(h.len() as u16).to_le_bytes());
+    npy.extend_from_slice(&h);
+    npy.extend(std::iter::repeat_n(0u8, 16));
+    let mut cur = std::io::Cursor::new(Vec::new());
+    let mut z = zip::ZipWriter::new(&mut cur);
+    z.start_file(
+        "mu.npy",
+        zip::write::SimpleFileOptions::default().compression_method(zip::CompressionMethod::Stored),
+    )
+    .unwrap();
+    std::io::Write::write_all(&mut z, &npy).unwrap();
+    z.finish().unwrap();
+    cur.into_inner()
+}
+
+/// Bound on any single allocation while refusing a hostile archive (the member copy is
+/// capped at 16 MiB of reserve; the rest are small buffers).
+const BOUND: usize = 32 << 20;
+
+#[test]
+fn npz_member_headers_claiming_huge_shapes_are_refused_without_allocating() {
+    let strategy = 1u64 << 22..1u64 << 40;
+    runner()
+        .run(&strategy, |rows| {
+            let bytes = npz_claiming_rows(rows);
+            let mut r = None;
+            let big = largest_request(|| {
+                r = Some(parse_npz2(&bytes, "mu", "emb.npz", &Limits::default()));
+            });
+            let e = r.unwrap().unwrap_err().to_string();
+            prop_assert!(
+                e.contains("emb.npz[mu]") && e.contains("truncated"),
+                "{}",
+                e
+            );
+            prop_assert!(big < BOUND, "largest allocation {} bytes", big);
+            Ok(())
+        })
+        .unwrap();
+}
+
+/// The broken twin: ndarray-npy's own `NpzReader::by_name` sizes its buffer from the
+/// member's header, so the same archive makes it request ~1 GiB — the measure above does
+/// see over-allocation when it happens.
+#[test]
+fn broken_twin_naive_npz_reader_over_allocates() {
+    let bytes = npz_claiming_rows(1 << 25); // 2^25 × 4 × 8 bytes = 1 GiB claimed
+    let big = largest_request(|| {
+        let mut z = ndarray_npy::NpzReader::new(std::io::Cursor::new(&bytes)).unwrap();
+        let r = z.by_name::<ndarray::OwnedRepr<f64>, ndarray::Ix2>("mu");
+        assert!(r.is_err());
+    });
+    assert!(big >= 1 << 30, "largest allocation {big} bytes");
+}
+
+#[test]
+fn npz_entries_claiming_a_huge_unpacked_size_are_refused() {
+    let mut bytes = valid_npz(false);
+    // patch the uncompressed size in the central directory header (PK\x01\x02, offset 24)
+    let cd = bytes.windows(4).position(|w| w == b"PK\x01\x02").unwrap();
+    bytes[cd + 24..cd + 28].copy_from_slice(&u32::MAX.to_le_bytes());
+    let limits = Limits {
+        max_file_mb: 1,
+        ..Limits::default()
+    };
+    let mut r = None;
+    let big = largest_request(|| r = Some(parse_npz2(&bytes, "mu", "emb.npz", &limits)));
+    let e = r.unwrap().unwrap_err().to_string();
+    assert!(e.contains("emb.npz[mu]"), "{e}");
+    assert!(big < BOUND, "largest allocation {big} bytes");
+}
+
+#[test]
+fn mutated_parquet_tables_never_over_allocate() {
+    let seed = std::fs::read("tests/data/interop/emb.parquet").unwrap();
+    let strategy = (
+        proptest::collection::vec((any::<usize>(), any::<u8>()), 1..6),
+        any::<usize>(),
+        any::<bool>(),
+    );
+    runner()
+        .run(&strategy, |(flips, cut, truncate)| {
+            let mut b = seed.clone();
+            for (pos, val) in flips {
+                let i = pos % b.len();
+                b[i] = val;
+            }
+            if truncate {
+                b.truncate(cut % (b.len() + 1));
+            }
+            let big = largest_request(|| {
+                let _ = parse_parquet_columns(
+                    b,
+                    "emb.parquet",
+                    &["phrase_id", "label"],
+                    &["mean", "var"],
+                    &Limits::default(),
+                );
+            });
+            prop_assert!(big < BOUND, "largest allocation {} bytes", big);
             Ok(())
         })
         .unwrap();

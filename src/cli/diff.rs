@@ -17,7 +17,8 @@ use crate::model::tree::TreeFile;
 pub struct DiffArgs {
     /// Project folder or its project.json.
     pub project: PathBuf,
-    /// A re-trained tree file (JSON, the tree.json schema) to compare against.
+    /// A re-trained tree file (JSON, the tree.json schema) to compare against; a SKOS
+    /// taxonomy (`.ttl`) is instead compared with the effective tree.
     #[arg(long)]
     pub against: Option<PathBuf>,
     /// Compare the tree signed by a sign-off (the edit index; the latest when omitted)
@@ -64,6 +65,9 @@ pub fn run(args: &DiffArgs) -> Result<(), CliError> {
         return Ok(());
     };
     let file = other.display().to_string();
+    if crate::model::project::is_skos_path(other) {
+        return against_skos(&ws, other, args.json);
+    }
     let tf: TreeFile = if other
         .extension()
         .is_some_and(|e| e.eq_ignore_ascii_case("csv"))
@@ -119,5 +123,53 @@ pub fn run(args: &DiffArgs) -> Result<(), CliError> {
     for p in &d.other_problems {
         println!("  #{} ({}): {}", p.index, p.op, p.reason);
     }
+    Ok(())
+}
+
+/// `diff --against taxonomy.ttl`: how the effective tree differs from a SKOS taxonomy read
+/// as a tree over the project's phrases (changes read "taxonomy → effective tree").
+fn against_skos(ws: &Workspace, path: &std::path::Path, json: bool) -> Result<(), CliError> {
+    let phrases = &ws.project.phrases;
+    let file = path.display().to_string();
+    let skos = crate::model::project::load_skos_tree(
+        path,
+        phrases,
+        &ws.project.manifest.limits.unwrap_or_default(),
+    )?;
+    let tree = crate::model::tree::Tree::from_id_map(phrases, &skos.tree.root, &skos.tree.parent)
+        .map_err(|e| CliError::bad_input(format!("{file}: tree: {e}")))?;
+    let changes = base_vs_effective(&tree, phrases, ws.effective()?);
+    if json {
+        let out = serde_json::json!({ "taxonomy": skos.report, "changes": changes });
+        println!(
+            "{}",
+            serde_json::to_string_pretty(&out).map_err(CliError::bad_input)?
+        );
+        return Ok(());
+    }
+    let r = &skos.report;
+    println!(
+        "taxonomy {file}: {} concepts, {} matched to phrases",
+        r.concepts, r.matched
+    );
+    let list = |name: &str, v: &[String]| {
+        println!(
+            "{name} ({}){}",
+            v.len(),
+            if v.is_empty() { "" } else { ":" }
+        );
+        for x in v {
+            println!("  {x}");
+        }
+    };
+    list("concepts matching no phrase", &r.unmatched_concepts);
+    list("phrases matching no concept", &r.unmatched_phrases);
+    list("concepts with several broader concepts", &r.several_broader);
+    list(
+        "concepts matching an already matched phrase",
+        &r.duplicate_matches,
+    );
+    let lines: Vec<String> = changes.iter().map(ToString::to_string).collect();
+    list("effective tree against the taxonomy", &lines);
     Ok(())
 }

@@ -15,6 +15,7 @@ pub mod completions;
 pub mod diff;
 pub mod edit;
 pub mod export;
+pub mod fit;
 pub mod info;
 pub mod manpage;
 pub mod merge_edits;
@@ -88,6 +89,8 @@ pub enum Command {
     MergeEdits(merge_edits::MergeEditsArgs),
     /// Resolve a merge conflict of the project's override file to ours or theirs.
     Resolve(resolve::ResolveArgs),
+    /// Fit one Gaussian per phrase from occurrence vectors and write a new project.
+    Fit(fit::FitArgs),
 }
 
 /// A failed subcommand: the message to print and the exit code.
@@ -153,6 +156,7 @@ pub fn run(command: Command) -> ExitCode {
         Command::Manpage(a) => manpage::run(&a),
         Command::MergeEdits(a) => merge_edits::run(&a),
         Command::Resolve(a) => resolve::run(&a),
+        Command::Fit(a) => fit::run(&a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

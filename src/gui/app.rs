@@ -131,6 +131,36 @@ impl App {
         *self = App::new(doc, settings);
     }
 
+    /// File ▸ Import taxonomy…: set a SKOS file as the tree (see
+    /// `Project::import_taxonomy`), then reopen the project so every view uses it.
+    fn import_taxonomy(&mut self, file: &std::path::Path) {
+        if self.is_dirty() {
+            self.fail("Save or undo your edits before importing a taxonomy");
+            return;
+        }
+        let mut project = self.doc.project.clone();
+        match project.import_taxonomy(file) {
+            Ok(r) => {
+                let dir = project.dir.clone();
+                match Doc::open(&dir) {
+                    Ok(doc) => {
+                        self.open_doc(doc);
+                        self.notify(format!(
+                            "Taxonomy in use as the tree: {} of {} concepts matched; {} concept(s) match no phrase, {} phrase(s) no concept, {} with several broader",
+                            r.matched,
+                            r.concepts,
+                            r.unmatched_concepts.len(),
+                            r.unmatched_phrases.len(),
+                            r.several_broader.len()
+                        ));
+                    }
+                    Err(e) => self.fail(e),
+                }
+            }
+            Err(e) => self.fail(e.to_string()),
+        }
+    }
+
     /// Apply one action.
     pub fn apply(&mut self, action: Action) {
         match action {
@@ -196,6 +226,16 @@ impl App {
                 }
             }
             Action::OpenDemo => self.apply(Action::Open(crate::model::sample::demo_dir())),
+            Action::BrowseTaxonomy => {
+                if let Some(file) = rfd::FileDialog::new()
+                    .set_title("Import a SKOS taxonomy as the tree")
+                    .add_filter("SKOS (Turtle, RDF/XML)", &["ttl", "rdf", "owl"])
+                    .pick_file()
+                {
+                    self.apply(Action::ImportTaxonomy(file));
+                }
+            }
+            Action::ImportTaxonomy(file) => self.import_taxonomy(&file),
             Action::Dialog(req) => {
                 let doc = &self.doc;
                 let view = view_ctx(doc, &self.settings, &self.selection, None, false);

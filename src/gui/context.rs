@@ -129,6 +129,10 @@ pub enum Action {
         /// SKOS concept-scheme label.
         scheme_label: String,
     },
+    /// Pick a SKOS taxonomy file with the system dialog and import it.
+    BrowseTaxonomy,
+    /// Make a SKOS taxonomy (Turtle) the project's tree and reopen the project.
+    ImportTaxonomy(PathBuf),
     /// Push edits recovered from the crash-recovery file (keeping their authors and times).
     Restore(Vec<EditRecord>),
     /// Delete the crash-recovery file without restoring it.

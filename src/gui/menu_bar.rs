@@ -61,6 +61,9 @@ fn menu(ui: &mut egui::Ui, view: &ViewCtx) -> Vec<Action> {
             if item(ui, "Export…", Some(Command::Export), has_tree) {
                 actions.push(Action::Dialog(DialogRequest::Export));
             }
+            if item(ui, "Import taxonomy…", None, true) {
+                actions.push(Action::BrowseTaxonomy);
+            }
             ui.separator();
             if item(ui, "Quit", None, true) {
                 actions.push(Action::Quit);

@@ -8,6 +8,7 @@ pub mod diff;
 pub mod edit;
 pub mod effective;
 pub mod export;
+pub mod fit;
 pub mod fsutil;
 pub mod gaussian;
 pub mod inclusion;

@@ -981,6 +981,13 @@ pub fn report_path_of(project: &Project) -> PathBuf {
 /// The bytes of a tree file: a `child,parent` CSV edge list when `path` ends in `.csv`,
 /// else pretty JSON.
 pub fn tree_bytes(file: &TreeFile, path: &Path) -> Result<Vec<u8>, std::io::Error> {
+    if crate::model::project::is_skos_path(path) {
+        // a hand-made SKOS taxonomy is never overwritten by a machine-built tree
+        return Err(std::io::Error::other(
+            "the project's tree is a SKOS taxonomy; a built tree is not written over it \
+             (write it elsewhere, e.g. `build --out tree.json`, and name that file as \"tree\")",
+        ));
+    }
     let is_csv = path
         .extension()
         .is_some_and(|e| e.eq_ignore_ascii_case("csv"));

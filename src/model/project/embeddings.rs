@@ -6,6 +6,7 @@ use std::path::Path;
 use serde::{Deserialize, Serialize};
 
 use super::LoadError;
+use super::embeddings_npz::NpzArchive;
 use super::manifest::{EmbeddingsRef, Limits, MANIFEST_NAME, Manifest, Scale};
 use super::npy::{NpyValues, read_npy2, read_npy3};
 use super::read::{read_json_limited, resolve_inside};
@@ -105,70 +106,59 @@ pub(super) fn load_embeddings(
             means,
             variances,
             covariances,
+        } => from_arrays(
+            &mut ArraySource::Files(dir),
+            [means, "embeddings.means"],
+            variances.as_deref().map(|v| [v, "embeddings.variances"]),
+            covariances
+                .as_deref()
+                .map(|c| [c, "embeddings.covariances"]),
+            manifest,
+            phrases,
+            floor,
+            limits,
+            &mfile,
+        ),
+        EmbeddingsRef::Parquet {
+            parquet,
+            id,
+            means,
+            variances,
+            ..
         } => {
-            let mpath = resolve_inside(dir, means, "embeddings.means")?;
-            let mf = mpath.display().to_string();
-            let (rows, d, mraw) = read_npy2(&mpath, limits)?;
-            check_rows(&mf, rows)?;
-            if d == 0 {
-                return Err(LoadError::invalid(&mf, "shape", "dimension is 0"));
-            }
-            check_dim(&mf, d, limits)?;
-            match (variances, covariances) {
-                (Some(v), None) => {
-                    let vpath = resolve_inside(dir, v, "embeddings.variances")?;
-                    let vf = vpath.display().to_string();
-                    let (vr, vd, vraw) = read_npy2(&vpath, limits)?;
-                    check_rows(&vf, vr)?;
-                    if vd != d {
-                        return Err(LoadError::invalid(
-                            &vf,
-                            "shape",
-                            format!("has dimension {vd} but {} has dimension {d}", mf),
-                        ));
-                    }
-                    match (mraw, vraw) {
-                        (NpyValues::F32(mvals), NpyValues::F32(mut vvals)) => {
-                            check_finite_named(&mf, phrases, &mvals, d, "mean")?;
-                            check_finite_named(&vf, phrases, &vvals, d, "variance")?;
-                            apply_scale_f32(&mut vvals, manifest.scale);
-                            Gaussians::from_diagonal_f32(n, d, mvals, vvals, floor)
-                                .map_err(|e| gauss_err(&vf, phrases, e))
-                        }
-                        (mraw, vraw) => {
-                            let (mvals, mut vvals) = (mraw.into_f64(), vraw.into_f64());
-                            check_finite_named(&mf, phrases, &mvals, d, "mean")?;
-                            check_finite_named(&vf, phrases, &vvals, d, "variance")?;
-                            apply_scale(&mut vvals, manifest.scale);
-                            Gaussians::from_diagonal(n, d, mvals, vvals, floor)
-                                .map_err(|e| gauss_err(&vf, phrases, e))
-                        }
-                    }
-                }
-                (None, Some(c)) => {
-                    full_scale_check(&mfile)?;
-                    let cpath = resolve_inside(dir, c, "embeddings.covariances")?;
-                    let cf = cpath.display().to_string();
-                    let (cr, a, b, cvals) = read_npy3(&cpath, limits)?;
-                    check_rows(&cf, cr)?;
-                    if a != d || b != d {
-                        return Err(LoadError::invalid(
-                            &cf,
-                            "shape",
-                            format!("matrices are {a}×{b} but {mf} has dimension {d}"),
-                        ));
-                    }
-                    let mvals = mraw.into_f64();
-                    check_finite_named(&mf, phrases, &mvals, d, "mean")?;
-                    Gaussians::from_full(n, d, mvals, cvals, floor)
-                        .map_err(|e| gauss_err(&cf, phrases, e))
-                }
-                _ => Err(LoadError::invalid(
-                    &mfile,
-                    "embeddings",
-                    "give exactly one of \"variances\" (diagonal) or \"covariances\" (full)",
-                )),
-            }
+            let path = resolve_inside(dir, parquet, "embeddings.parquet")?;
+            let file = path.display().to_string();
+            let id = id.as_deref().unwrap_or(super::parquet::DEFAULT_ID_COLUMN);
+            let (d, mvals, mut vvals) =
+                super::parquet::embeddings_by_id(&path, id, means, variances, phrases, limits)?;
+            check_dim(&file, d, limits)?;
+            check_finite_named(&file, phrases, &mvals, d, "mean")?;
+            check_finite_named(&file, phrases, &vvals, d, "variance")?;
+            apply_scale(&mut vvals, manifest.scale);
+            Gaussians::from_diagonal(n, d, mvals, vvals, floor)
+                .map_err(|e| gauss_err(&file, phrases, e))
+        }
+        EmbeddingsRef::Npz {
+            npz,
+            means,
+            variances,
+            covariances,
+        } => {
+            let path = resolve_inside(dir, npz, "embeddings.npz")?;
+            let mut archive = NpzArchive::open(&path, limits)?;
+            from_arrays(
+                &mut ArraySource::Npz(&mut archive),
+                [means, "embeddings.means"],
+                variances.as_deref().map(|v| [v, "embeddings.variances"]),
+                covariances
+                    .as_deref()
+                    .map(|c| [c, "embeddings.covariances"]),
+                manifest,
+                phrases,
+                floor,
+                limits,
+                &mfile,
+            )
         }
         EmbeddingsRef::Json(f) => {
             let path = resolve_inside(dir, f, "embeddings")?;
@@ -275,4 +265,149 @@ fn check_finite_named<T: Copy + Into<f64>>(
         ));
     }
     Ok(())
+}
+
+/// Where named float arrays come from: `.npy` files in the project folder, or the members
+/// of one `.npz` archive.
+enum ArraySource<'a> {
+    Files(&'a Path),
+    Npz(&'a mut NpzArchive<std::io::BufReader<std::fs::File>>),
+}
+
+impl ArraySource<'_> {
+    /// A 2-D array `name` (a file, or an archive member) for manifest `field`:
+    /// (the name errors use, rows, columns, values).
+    fn read2(
+        &mut self,
+        name: &str,
+        field: &str,
+        limits: &Limits,
+    ) -> Result<(String, usize, usize, NpyValues), LoadError> {
+        match self {
+            ArraySource::Files(dir) => {
+                let path = resolve_inside(dir, name, field)?;
+                let (r, d, v) = read_npy2(&path, limits)?;
+                Ok((path.display().to_string(), r, d, v))
+            }
+            ArraySource::Npz(a) => {
+                let (r, d, v) = a.array2(name)?;
+                Ok((a.member_name(name), r, d, v))
+            }
+        }
+    }
+
+    /// A 3-D array, as f64.
+    fn read3(
+        &mut self,
+        name: &str,
+        field: &str,
+        limits: &Limits,
+    ) -> Result<(String, usize, usize, usize, Vec<f64>), LoadError> {
+        match self {
+            ArraySource::Files(dir) => {
+                let path = resolve_inside(dir, name, field)?;
+                let (n, a, b, v) = read_npy3(&path, limits)?;
+                Ok((path.display().to_string(), n, a, b, v))
+            }
+            ArraySource::Npz(ar) => {
+                let (n, a, b, v) = ar.array3(name)?;
+                Ok((ar.member_name(name), n, a, b, v))
+            }
+        }
+    }
+}
+
+/// Gaussians from named arrays: means plus exactly one of variances or covariances, each
+/// given as `[name, manifest field]`.
+#[allow(clippy::too_many_arguments)]
+fn from_arrays(
+    src: &mut ArraySource<'_>,
+    means: [&str; 2],
+    variances: Option<[&str; 2]>,
+    covariances: Option<[&str; 2]>,
+    manifest: &Manifest,
+    phrases: &PhraseTable,
+    floor: f64,
+    limits: &Limits,
+    mfile: &str,
+) -> Result<Gaussians, LoadError> {
+    let n = phrases.len();
+    let check_rows = |file: &str, rows: usize| {
+        if rows != n {
+            Err(LoadError::invalid(
+                file,
+                "rows",
+                format!("has {rows} rows but phrases.json lists {n} phrases"),
+            ))
+        } else {
+            Ok(())
+        }
+    };
+    let full_scale_check = |file: &str| {
+        if manifest.scale != Scale::Variance {
+            Err(LoadError::invalid(
+                file,
+                "scale",
+                "full covariance matrices must be given as variances (scale \"variance\")",
+            ))
+        } else {
+            Ok(())
+        }
+    };
+    let (mf, rows, d, mraw) = src.read2(means[0], means[1], limits)?;
+    check_rows(&mf, rows)?;
+    if d == 0 {
+        return Err(LoadError::invalid(&mf, "shape", "dimension is 0"));
+    }
+    check_dim(&mf, d, limits)?;
+    match (variances, covariances) {
+        (Some(v), None) => {
+            let (vf, vr, vd, vraw) = src.read2(v[0], v[1], limits)?;
+            check_rows(&vf, vr)?;
+            if vd != d {
+                return Err(LoadError::invalid(
+                    &vf,
+                    "shape",
+                    format!("has dimension {vd} but {} has dimension {d}", mf),
+                ));
+            }
+            match (mraw, vraw) {
+                (NpyValues::F32(mvals), NpyValues::F32(mut vvals)) => {
+                    check_finite_named(&mf, phrases, &mvals, d, "mean")?;
+                    check_finite_named(&vf, phrases, &vvals, d, "variance")?;
+                    apply_scale_f32(&mut vvals, manifest.scale);
+                    Gaussians::from_diagonal_f32(n, d, mvals, vvals, floor)
+                        .map_err(|e| gauss_err(&vf, phrases, e))
+                }
+                (mraw, vraw) => {
+                    let (mvals, mut vvals) = (mraw.into_f64(), vraw.into_f64());
+                    check_finite_named(&mf, phrases, &mvals, d, "mean")?;
+                    check_finite_named(&vf, phrases, &vvals, d, "variance")?;
+                    apply_scale(&mut vvals, manifest.scale);
+                    Gaussians::from_diagonal(n, d, mvals, vvals, floor)
+                        .map_err(|e| gauss_err(&vf, phrases, e))
+                }
+            }
+        }
+        (None, Some(c)) => {
+            full_scale_check(mfile)?;
+            let (cf, cr, a, b, cvals) = src.read3(c[0], c[1], limits)?;
+            check_rows(&cf, cr)?;
+            if a != d || b != d {
+                return Err(LoadError::invalid(
+                    &cf,
+                    "shape",
+                    format!("matrices are {a}×{b} but {mf} has dimension {d}"),
+                ));
+            }
+            let mvals = mraw.into_f64();
+            check_finite_named(&mf, phrases, &mvals, d, "mean")?;
+            Gaussians::from_full(n, d, mvals, cvals, floor).map_err(|e| gauss_err(&cf, phrases, e))
+        }
+        _ => Err(LoadError::invalid(
+            mfile,
+            "embeddings",
+            "give exactly one of \"variances\" (diagonal) or \"covariances\" (full)",
+        )),
+    }
 }

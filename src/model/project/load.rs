@@ -114,7 +114,11 @@ impl Project {
         // phrases
         let ppath = resolve_inside(&dir, &manifest.phrases, "phrases")?;
         let pfile = ppath.display().to_string();
-        let records: Vec<PhraseRecord> = read_json_limited(&ppath, &limits)?;
+        let records: Vec<PhraseRecord> = if super::parquet::is_parquet_path(&ppath) {
+            super::parquet::phrases_for(&ppath, &manifest, &limits)?
+        } else {
+            read_json_limited(&ppath, &limits)?
+        };
         if records.len() > limits.max_phrases {
             return Err(LoadError::invalid(
                 &pfile,

@@ -51,6 +51,38 @@ impl Default for Limits {
 pub enum EmbeddingsRef {
     /// One JSON file.
     Json(String),
+    /// A Parquet table, one row per phrase matched by id: a string id column and
+    /// list-of-float columns for means and variances (diagonal). Listed before
+    /// [`EmbeddingsRef::Npy`] so the `parquet` key picks this form.
+    Parquet {
+        /// The table file.
+        parquet: String,
+        /// The id column (default `phrase_id`).
+        #[serde(default, skip_serializing_if = "Option::is_none")]
+        id: Option<String>,
+        /// The label column, read when `phrases` names the same table (default `label`).
+        #[serde(default, skip_serializing_if = "Option::is_none")]
+        label: Option<String>,
+        /// The means column (lists of d floats).
+        means: String,
+        /// The variances column (lists of d floats).
+        variances: String,
+    },
+    /// A NumPy `.npz` archive (`np.savez` or `np.savez_compressed`) and the names of the
+    /// arrays in it: means plus exactly one of variances or covariances. Listed before
+    /// [`EmbeddingsRef::Npy`] so the `npz` key picks this form.
+    Npz {
+        /// The archive file.
+        npz: String,
+        /// Name of the `n × d` means array.
+        means: String,
+        /// Name of the `n × d` variances array (diagonal covariance).
+        #[serde(default, skip_serializing_if = "Option::is_none")]
+        variances: Option<String>,
+        /// Name of the `n × d × d` covariances array (full covariance).
+        #[serde(default, skip_serializing_if = "Option::is_none")]
+        covariances: Option<String>,
+    },
     /// NumPy files: means plus exactly one of variances (diagonal) or covariances (full).
     Npy {
         /// `n × d` means.

@@ -9,20 +9,31 @@
 //! one writer of whole projects, also used by the demo and synthetic generators).
 
 mod embeddings;
+mod embeddings_npz;
 mod load;
 mod manifest;
 mod npy;
+mod parquet;
 mod read;
+mod skos_tree;
+mod taxonomy_import;
 mod tree_file;
 mod writer;
 
 pub use embeddings::EmbeddingsJson;
+pub use embeddings_npz::parse_npz2;
 pub use load::{Project, UserProfile, UserRecord};
 pub use manifest::{
     EmbeddingsRef, FORMAT_NAME, FORMAT_VERSION, Limits, MANIFEST_NAME, Manifest, Scale,
 };
 pub use npy::{NpyValues, parse_npy2, parse_npy2_raw, parse_npy3};
+pub use parquet::{
+    DEFAULT_ID_COLUMN, DEFAULT_LABEL_COLUMN, ParquetColumns, is_parquet_path,
+    parse_parquet_columns, read_parquet_columns,
+};
 pub use read::{parse_json, read_json, resolve_inside};
+pub use skos_tree::{SkosReport, SkosTree, is_skos_path, load_skos_tree, parse_skos_tree};
+pub use taxonomy_import::TAXONOMY_FILE;
 pub use tree_file::{load_tree, parse_tree_csv};
 pub use writer::ProjectWriter;
 

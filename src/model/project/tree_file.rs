@@ -22,6 +22,11 @@ pub(super) fn load_tree_limited(
     limits: &Limits,
 ) -> Result<Tree, LoadError> {
     let file = path.display().to_string();
+    if super::skos_tree::is_skos_path(path) {
+        let tf = super::skos_tree::load_skos_tree(path, phrases, limits)?.tree;
+        return Tree::from_id_map(phrases, &tf.root, &tf.parent)
+            .map_err(|e| LoadError::invalid(&file, "tree", e.to_string()));
+    }
     let is_csv = path
         .extension()
         .is_some_and(|e| e.eq_ignore_ascii_case("csv"));
