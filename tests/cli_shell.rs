@@ -112,7 +112,8 @@ fn the_manual_page_names_every_subcommand_and_writes_one_page_each() {
     assert!(page.contains(".TH treewright 1"), "{}", &page[..200]);
     for v in verbs() {
         assert!(
-            page.contains(&format!("treewright\\-{v}(1)")),
+            // roff escapes every hyphen (groff_char(7))
+            page.contains(&format!("treewright\\-{}(1)", v.replace('-', "\\-"))),
             "page lacks {v}"
         );
     }
@@ -205,6 +206,25 @@ fn every_subcommand_fails_as_the_readme_table_says() {
     rows.push(Failure {
         verb: "completions",
         args: s(&["completions", "nosuchshell"]),
+        code: 2,
+        stdout_empty: true,
+    });
+    let nofile = tmp.path().join("missing.json").display().to_string();
+    rows.push(Failure {
+        verb: "merge-edits",
+        args: s(&["merge-edits", &nofile, &nofile, &nofile]),
+        code: 2,
+        stdout_empty: true,
+    });
+    rows.push(Failure {
+        verb: "resolve",
+        args: s(&["resolve", &missing, "c1", "ours"]),
+        code: 2,
+        stdout_empty: true,
+    });
+    rows.push(Failure {
+        verb: "fit",
+        args: s(&["fit", &format!("{missing}.parquet"), "--out", &o_]),
         code: 2,
         stdout_empty: true,
     });

@@ -17,8 +17,8 @@ use clap::Args;
 use super::CliError;
 use super::progress;
 use crate::model::builder::{BuildMethod, BuildParams, BuildProgress, BuiltTree, build};
-use crate::model::inclusion::{InclusionParams, InclusionProgress, build_inclusion};
 use crate::model::fsutil;
+use crate::model::inclusion::{InclusionParams, InclusionProgress, build_inclusion};
 use crate::model::overrides::OverrideLayer;
 use crate::model::project::Project;
 use crate::model::workspace::tree_bytes;
@@ -206,8 +206,12 @@ fn internal_nodes(built: &BuiltTree) -> usize {
     match built.report.method {
         BuildMethod::Divisive => built.report.nodes.len(),
         BuildMethod::Inclusion => {
-            let parents: std::collections::BTreeSet<&str> =
-                built.tree_file.parent.values().map(String::as_str).collect();
+            let parents: std::collections::BTreeSet<&str> = built
+                .tree_file
+                .parent
+                .values()
+                .map(String::as_str)
+                .collect();
             parents.len()
         }
     }
