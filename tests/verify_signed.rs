@@ -42,13 +42,12 @@ fn table(keep: u16, v: u8) -> PhraseTable {
 fn tree(t: &PhraseTable, picks: &[u8]) -> Tree {
     let mut placed = vec!["p0".to_string()];
     let mut parent = BTreeMap::new();
-    for i in 1..IDS {
+    for (i, &k) in picks.iter().enumerate().take(IDS).skip(1) {
         let me = format!("p{i}");
         if t.get(&me).is_none() {
             continue;
         }
-        let k = picks[i];
-        if k % 7 == 0 {
+        if k.is_multiple_of(7) {
             continue;
         }
         let p = placed[k as usize % placed.len()].clone();

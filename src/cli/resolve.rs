@@ -71,19 +71,17 @@ pub fn run(args: &ResolveArgs) -> Result<(), CliError> {
         side.as_str(),
         conflicts.len()
     );
-    if conflicts.is_empty() {
-        if let Some(tree) = &project.tree {
-            let (_, problems) = apply(tree, &project.phrases, &edits);
-            for p in &problems {
-                println!(
-                    "  edit #{} ({}) does not apply: {}",
-                    p.index, p.op, p.reason
-                );
-            }
-            match merge::signed_by(tree, &project.phrases, &edits) {
-                Some(by) => println!("signed off: the tree matches the sign-off by {by}"),
-                None => println!("not signed off: the tree matches no recorded sign-off"),
-            }
+    if let (true, Some(tree)) = (conflicts.is_empty(), &project.tree) {
+        let (_, problems) = apply(tree, &project.phrases, &edits);
+        for p in &problems {
+            println!(
+                "  edit #{} ({}) does not apply: {}",
+                p.index, p.op, p.reason
+            );
+        }
+        match merge::signed_by(tree, &project.phrases, &edits) {
+            Some(by) => println!("signed off: the tree matches the sign-off by {by}"),
+            None => println!("not signed off: the tree matches no recorded sign-off"),
         }
     }
     Ok(())

@@ -135,9 +135,7 @@ impl Heaps {
         let r = self.merge(self.right[ai], b);
         self.right[ai] = r;
         if self.rank_of(self.left[ai]) < self.rank_of(self.right[ai]) {
-            let l = self.left[ai];
-            self.left[ai] = self.right[ai];
-            self.right[ai] = l;
+            std::mem::swap(&mut self.left[ai], &mut self.right[ai]);
         }
         self.rank[ai] = self.rank_of(self.right[ai]) + 1;
         a

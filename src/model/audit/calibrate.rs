@@ -130,10 +130,10 @@ impl Calibration {
             for d in decisions {
                 let p = sigmoid(dot(&w, &d.x));
                 let y = f64::from(u8::from(d.right));
-                for i in 0..K {
+                for (i, row) in hess.iter_mut().enumerate() {
                     grad[i] += (y - p) * d.x[i];
-                    for j in 0..K {
-                        hess[i][j] += p * (1.0 - p) * d.x[i] * d.x[j];
+                    for (h, xj) in row.iter_mut().zip(&d.x) {
+                        *h += p * (1.0 - p) * d.x[i] * xj;
                     }
                 }
             }
@@ -225,10 +225,11 @@ fn solve(mut a: [[f64; K]; K], mut b: [f64; K]) -> Option<[f64; K]> {
         }
         a.swap(col, piv);
         b.swap(col, piv);
+        let pivot_row = a[col];
         for r in col + 1..K {
-            let m = a[r][col] / a[col][col];
-            for c in col..K {
-                a[r][c] -= m * a[col][c];
+            let m = a[r][col] / pivot_row[col];
+            for (x, p) in a[r][col..].iter_mut().zip(&pivot_row[col..]) {
+                *x -= m * p;
             }
             b[r] -= m * b[col];
         }

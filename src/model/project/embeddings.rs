@@ -79,28 +79,8 @@ pub(super) fn load_embeddings(
 ) -> Result<Gaussians, LoadError> {
     let mfile = dir.join(MANIFEST_NAME).display().to_string();
     let n = phrases.len();
-    let check_rows = |file: &str, rows: usize| {
-        if rows != n {
-            Err(LoadError::invalid(
-                file,
-                "rows",
-                format!("has {rows} rows but phrases.json lists {n} phrases"),
-            ))
-        } else {
-            Ok(())
-        }
-    };
-    let full_scale_check = |file: &str| {
-        if manifest.scale != Scale::Variance {
-            Err(LoadError::invalid(
-                file,
-                "scale",
-                "full covariance matrices must be given as variances (scale \"variance\")",
-            ))
-        } else {
-            Ok(())
-        }
-    };
+    let check_rows = |file: &str, rows: usize| rows_match(file, rows, n);
+    let full_scale_check = |file: &str| variances_for_full(file, manifest);
     match &manifest.embeddings {
         EmbeddingsRef::Npy {
             means,
@@ -332,28 +312,8 @@ fn from_arrays(
     mfile: &str,
 ) -> Result<Gaussians, LoadError> {
     let n = phrases.len();
-    let check_rows = |file: &str, rows: usize| {
-        if rows != n {
-            Err(LoadError::invalid(
-                file,
-                "rows",
-                format!("has {rows} rows but phrases.json lists {n} phrases"),
-            ))
-        } else {
-            Ok(())
-        }
-    };
-    let full_scale_check = |file: &str| {
-        if manifest.scale != Scale::Variance {
-            Err(LoadError::invalid(
-                file,
-                "scale",
-                "full covariance matrices must be given as variances (scale \"variance\")",
-            ))
-        } else {
-            Ok(())
-        }
-    };
+    let check_rows = |file: &str, rows: usize| rows_match(file, rows, n);
+    let full_scale_check = |file: &str| variances_for_full(file, manifest);
     let (mf, rows, d, mraw) = src.read2(means[0], means[1], limits)?;
     check_rows(&mf, rows)?;
     if d == 0 {
@@ -409,5 +369,31 @@ fn from_arrays(
             "embeddings",
             "give exactly one of \"variances\" (diagonal) or \"covariances\" (full)",
         )),
+    }
+}
+
+/// An embeddings file must have one row per phrase.
+fn rows_match(file: &str, rows: usize, n: usize) -> Result<(), LoadError> {
+    if rows != n {
+        Err(LoadError::invalid(
+            file,
+            "rows",
+            format!("has {rows} rows but phrases.json lists {n} phrases"),
+        ))
+    } else {
+        Ok(())
+    }
+}
+
+/// Full covariance matrices are only read as variances.
+fn variances_for_full(file: &str, manifest: &Manifest) -> Result<(), LoadError> {
+    if manifest.scale != Scale::Variance {
+        Err(LoadError::invalid(
+            file,
+            "scale",
+            "full covariance matrices must be given as variances (scale \"variance\")",
+        ))
+    } else {
+        Ok(())
     }
 }

@@ -22,6 +22,9 @@ use crate::model::gaussian::PhraseId;
 use crate::model::phrase::PhraseTable;
 use crate::model::tree::TreeFile;
 
+/// Notations, preferred labels and alternative labels of one subject, in document order.
+type ConceptLabels = (Vec<String>, Vec<String>, Vec<String>);
+
 /// Whether `path` names a SKOS file this build reads (by extension: `.ttl` for Turtle,
 /// `.rdf` or `.owl` for RDF/XML).
 pub fn is_skos_path(path: &Path) -> bool {
@@ -126,7 +129,7 @@ pub fn parse_skos_tree(
         })
     };
     // labels of any subject, attached to concepts afterwards
-    let mut props: HashMap<String, (Vec<String>, Vec<String>, Vec<String>)> = HashMap::new();
+    let mut props: HashMap<String, ConceptLabels> = HashMap::new();
     let mut edges: Vec<(usize, usize)> = Vec::new(); // (narrower, broader), document order
     let triples: Box<dyn Iterator<Item = Result<oxrdf::Triple, String>>> = if is_rdf_xml(file) {
         Box::new(
@@ -163,17 +166,18 @@ pub fn parse_skos_tree(
             let a = intern(s, &mut concepts);
             let b = intern(o, &mut concepts);
             edges.push(if p == skos::BROADER { (a, b) } else { (b, a) });
-        } else if p == skos::NOTATION || p == skos::PREF_LABEL || p == skos::ALT_LABEL {
-            if let Term::Literal(l) = &t.object {
-                let e = props.entry(s).or_default();
-                let v = l.value().to_string();
-                if p == skos::NOTATION {
-                    e.0.push(v)
-                } else if p == skos::PREF_LABEL {
-                    e.1.push(v)
-                } else {
-                    e.2.push(v)
-                }
+        } else if let (true, Term::Literal(l)) = (
+            p == skos::NOTATION || p == skos::PREF_LABEL || p == skos::ALT_LABEL,
+            &t.object,
+        ) {
+            let e = props.entry(s).or_default();
+            let v = l.value().to_string();
+            if p == skos::NOTATION {
+                e.0.push(v)
+            } else if p == skos::PREF_LABEL {
+                e.1.push(v)
+            } else {
+                e.2.push(v)
             }
         }
     }
