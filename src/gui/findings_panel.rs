@@ -210,10 +210,11 @@ impl Panel for FindingsPanel {
                                         .sense(Sense::click()),
                                 )
                                 .on_hover_text(format!(
-                                    "{}\nscore {:.3} (threshold {:.3})\nclick to show the node",
+                                    "{}\nscore {:.3} (threshold {:.3}), confidence {:.2}\nclick to show the node",
                                     badges::plain(&f.explanation),
                                     f.score,
-                                    f.threshold
+                                    f.threshold,
+                                    f.confidence
                                 ));
                             if r.clicked() {
                                 actions.push(Action::Reveal(f.node));
@@ -221,8 +222,11 @@ impl Panel for FindingsPanel {
                         });
                         ui.horizontal(|ui| {
                             ui.label(
-                                RichText::new(format!("score {:.2} / {:.2}", f.score, f.threshold))
-                                    .small(),
+                                RichText::new(format!(
+                                    "score {:.2} / {:.2} · confidence {:.2}",
+                                    f.score, f.threshold, f.confidence
+                                ))
+                                .small(),
                             );
                             if f.accepted {
                                 ui.label(badges::pill("accepted", badges::SKY));
