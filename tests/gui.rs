@@ -307,6 +307,29 @@ fn the_build_dialog_runs_to_completion_and_replaces_the_base_tree() {
 }
 
 #[test]
+fn the_build_dialog_offers_the_inclusion_method() {
+    let (_t, dir) = demo_dir();
+    let mut h = open(&dir);
+    menu(&mut h, "Tree", "Build tree…");
+    h.get_by_label("inclusion").click();
+    h.run();
+    // the method's one-line explanation is shown, the divisive-only fields are gone
+    h.get_by_label_contains("contains it best");
+    assert!(h.query_by_label("Largest k tried per node").is_none());
+    h.get_by_label("Start build").click();
+    h.run_steps(2);
+    step_until(&mut h, 120, |h| h.query_by_label("Use this tree").is_some());
+    h.get_by_label("Use this tree").click();
+    h.run();
+    let report: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(dir.join("build-report.json")).unwrap()).unwrap();
+    assert_eq!(report["method"], "inclusion");
+    let nodes = report["inclusion"]["nodes"].as_array().unwrap();
+    // every phrase but the root has its parent's cost recorded
+    assert_eq!(nodes.len() + 1, h.state().doc.project.phrases.len());
+}
+
+#[test]
 fn a_running_build_can_be_cancelled() {
     let t = tempfile::tempdir().unwrap();
     let dir = t.path().join("big");

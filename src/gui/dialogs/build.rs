@@ -1,5 +1,5 @@
-//! Build (or rebuild) the base tree: the builder's parameters, a worker thread with a
-//! progress bar and Cancel. The result becomes the new base tree; edits are re-applied and
+//! Build (or rebuild) the base tree: the method (divisive or inclusion) and its parameters, a
+//! worker thread with a progress bar and Cancel. The result becomes the new base tree; edits are re-applied and
 //! the ones that no longer apply are listed.
 
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -9,7 +9,10 @@ use std::thread::JoinHandle;
 
 use egui::{Id, Modal};
 
-use crate::model::builder::{BuildError, BuildParams, BuildProgress, BuiltTree, build};
+use crate::model::builder::{
+    BuildError, BuildMethod, BuildParams, BuildProgress, BuiltTree, build,
+};
+use crate::model::inclusion::{InclusionError, InclusionParams, build_inclusion};
 use crate::model::{Project, Similarity};
 
 use super::super::context::{Action, ViewCtx};
@@ -24,8 +27,14 @@ pub struct BuildJob {
 }
 
 impl BuildJob {
-    /// Start building on a worker thread.
+    /// Start building on a worker thread (the divisive method).
     pub fn start(project: &Project, params: BuildParams) -> Self {
+        Self::start_with(project, BuildMethod::Divisive, params)
+    }
+
+    /// Start building on a worker thread with `method`. The inclusion method takes the seed
+    /// from `params` and its own defaults otherwise (no depth or fan-out limit).
+    pub fn start_with(project: &Project, method: BuildMethod, params: BuildParams) -> Self {
         let cancel = Arc::new(AtomicBool::new(false));
         let progress = Arc::new(Mutex::new(None));
         let (tx, rx) = channel();
@@ -38,7 +47,10 @@ impl BuildJob {
                     *slot = Some(bp);
                 }
             };
-            let r = build(&g, &phrases, None, &params, &report, &c);
+            let r = match method {
+                BuildMethod::Divisive => build(&g, &phrases, None, &params, &report, &c),
+                BuildMethod::Inclusion => inclusion(&g, &phrases, params.seed, &report, &c),
+            };
             // the dialog may have been closed; nobody listening is fine
             let _ = tx.send(r);
         });
@@ -75,6 +87,36 @@ impl BuildJob {
     }
 }
 
+/// An inclusion build reported in the divisive build's terms (progress as phrases placed).
+fn inclusion(
+    g: &crate::model::Gaussians,
+    phrases: &crate::model::PhraseTable,
+    seed: u64,
+    report: &(dyn Fn(BuildProgress) + Sync),
+    cancel: &AtomicBool,
+) -> Result<BuiltTree, BuildError> {
+    let failed = |e: InclusionError| match e {
+        InclusionError::Cancelled => BuildError::Cancelled,
+        other => BuildError::Inclusion(other),
+    };
+    let params = InclusionParams {
+        seed,
+        ..InclusionParams::default()
+    }
+    .check()
+    .map_err(failed)?;
+    let progress = |p: crate::model::inclusion::InclusionProgress| {
+        report(BuildProgress {
+            placed: p.done,
+            total: p.total,
+            depth: 0,
+        })
+    };
+    build_inclusion(g, phrases, None, &[], &params, &progress, cancel)
+        .map(|t| t.into_built(g, phrases, &params))
+        .map_err(failed)
+}
+
 impl Drop for BuildJob {
     fn drop(&mut self) {
         self.cancel();
@@ -83,6 +125,8 @@ impl Drop for BuildJob {
 
 /// State of the build dialog.
 pub struct BuildDialog {
+    /// The method chosen in the dialog.
+    pub method: BuildMethod,
     /// The parameters edited in the dialog.
     pub params: BuildParams,
     job: Option<BuildJob>,
@@ -94,6 +138,7 @@ impl BuildDialog {
     /// Start with the builder's defaults.
     pub fn new(_view: &ViewCtx) -> Self {
         BuildDialog {
+            method: BuildMethod::default(),
             params: BuildParams::default(),
             job: None,
             outcome: None,
@@ -107,7 +152,29 @@ impl BuildDialog {
     }
 
     fn params_ui(&mut self, ui: &mut egui::Ui) {
+        for m in BuildMethod::ALL {
+            ui.radio_value(&mut self.method, m, m.name())
+                .on_hover_text(m.explanation());
+        }
+        ui.label(egui::RichText::new(self.method.explanation()).small());
         let p = &mut self.params;
+        if self.method == BuildMethod::Inclusion {
+            egui::Grid::new("build-params")
+                .num_columns(2)
+                .show(ui, |ui| {
+                    let l = ui.label("Seed");
+                    ui.add(egui::DragValue::new(&mut p.seed)).labelled_by(l.id);
+                    ui.end_row();
+                });
+            ui.label(
+                egui::RichText::new(
+                    "No depth or fan-out limit here; `treewright build --method inclusion \
+                     --max-depth N --max-fanout N` sets them.",
+                )
+                .small(),
+            );
+            return;
+        }
         egui::Grid::new("build-params")
             .num_columns(2)
             .show(ui, |ui| {
@@ -181,7 +248,7 @@ impl BuildDialog {
             ui.set_width(420.0);
             ui.heading("Build tree");
             ui.label(format!(
-                "Divisive clustering of {} phrases. Your edits are kept and re-applied to the new tree.",
+                "{} phrases. Your edits are kept and re-applied to the new tree.",
                 view.project.phrases.len()
             ));
             ui.add_enabled_ui(self.job.is_none(), |ui| self.params_ui(ui));
@@ -206,12 +273,18 @@ impl BuildDialog {
                     if ui.button("Start build").clicked() {
                         self.outcome = None;
                         self.built = None;
-                        self.job = Some(BuildJob::start(view.project, self.params.clone()));
+                        self.job = Some(BuildJob::start_with(
+                            view.project,
+                            self.method,
+                            self.params.clone(),
+                        ));
                     }
                     if let Some(b) = &self.built
                         && ui
                             .button("Use this tree")
-                            .on_hover_text("Writes tree.json (the old one is kept as tree.json.bak)")
+                            .on_hover_text(
+                                "Writes tree.json (the old one is kept as tree.json.bak)",
+                            )
                             .clicked()
                     {
                         out = DialogOut::act(vec![Action::NewBase(

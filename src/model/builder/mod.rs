@@ -100,6 +100,9 @@ pub enum BuildError {
     /// The knee search failed.
     #[error(transparent)]
     Kneedle(#[from] KneedleError),
+    /// The inclusion method failed (where a front end runs either method).
+    #[error(transparent)]
+    Inclusion(#[from] crate::model::inclusion::InclusionError),
 }
 
 /// splitmix64: a well-mixed seed for a child from its parent's seed and its index.
