@@ -327,6 +327,23 @@ fn the_build_dialog_offers_the_inclusion_method() {
     let nodes = report["inclusion"]["nodes"].as_array().unwrap();
     // every phrase but the root has its parent's cost recorded
     assert_eq!(nodes.len() + 1, h.state().doc.project.phrases.len());
+    // the statistics panel shows what the builder chose for a node, and the runner-up
+    if h.query_by_label("Edits that no longer apply").is_some() {
+        h.get_by_label("Close").click();
+        h.run();
+    }
+    let with_runner_up = nodes
+        .iter()
+        .find(|n| n["runner_up"].is_object())
+        .expect("some phrase had a second candidate");
+    let id = with_runner_up["node"].as_str().unwrap();
+    let p = id_of(&h, id);
+    h.state_mut().apply(treewright::gui::Action::Select(p));
+    h.run();
+    h.get_by_label("built parent");
+    h.get_by_label("runner-up parent");
+    let cost = with_runner_up["runner_up"]["cost"].as_f64().unwrap();
+    h.get_by_label_contains(&format!("(cost {cost:.3})"));
 }
 
 #[test]

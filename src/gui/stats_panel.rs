@@ -238,6 +238,31 @@ impl Panel for StatsPanel {
                         "share of this node's mass inside at least one child's region",
                     );
                 }
+                // a tree built by the inclusion method: what the builder chose and why
+                if let Some(inc) = view.build_report.and_then(|r| r.inclusion.as_ref())
+                    && let Some(n) = inc.node(view.project.phrases.id(p))
+                {
+                    let name = |id: &str| {
+                        view.project
+                            .phrases
+                            .get(id)
+                            .map_or_else(|| id.to_string(), &label)
+                    };
+                    row(
+                        ui,
+                        "built parent",
+                        format!("{} (cost {:.3})", name(&n.parent), n.cost),
+                        "the parent the inclusion build chose, with its KL cost in nats",
+                    );
+                    row(
+                        ui,
+                        "runner-up parent",
+                        n.runner_up.as_ref().map_or("–".to_string(), |r| {
+                            format!("{} (cost {:.3})", name(&r.id), r.cost)
+                        }),
+                        "the cheapest other candidate the inclusion build considered",
+                    );
+                }
             });
 
         if let Some((owner, kids, m)) = &self.cache.overlap {
