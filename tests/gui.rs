@@ -699,3 +699,45 @@ fn the_panels_keep_their_size_from_frame_to_frame() {
     h.run_steps(20);
     assert_eq!(edges(&h), first);
 }
+
+/// Placement doubts at info severity are collapsed by default on a real check set
+/// (benches/real: WordNet 3.0 bird subtree, own-text Gaussians), and one checkbox shows them.
+#[test]
+fn placement_doubts_to_consider_are_collapsed_until_asked_for() {
+    let t = tempfile::tempdir().unwrap();
+    let src = Path::new(env!("CARGO_MANIFEST_DIR")).join("benches/real/wordnet-bird-own-text");
+    let dir = t.path().join("bird");
+    std::fs::create_dir(&dir).unwrap();
+    for e in std::fs::read_dir(&src).unwrap() {
+        let e = e.unwrap();
+        std::fs::copy(e.path(), dir.join(e.file_name())).unwrap();
+    }
+    let mut h = open(&dir);
+    let (open_total, to_consider) = {
+        let r = h.state().doc.report().unwrap();
+        let open = r.findings.iter().filter(|f| !f.accepted).count();
+        let consider = r
+            .findings
+            .iter()
+            .filter(|f| {
+                !f.accepted
+                    && f.severity == treewright::model::audit::Severity::Info
+                    && ["better-parent", "weak-inclusion", "inverted-generality"].contains(&f.rule)
+            })
+            .count();
+        (open, consider)
+    };
+    assert!(
+        to_consider > 0,
+        "the set has low-confidence placement doubts"
+    );
+    h.get_by_label(&format!(
+        "{} shown of {open_total} ({open_total} open; {to_consider} to consider collapsed)",
+        open_total - to_consider
+    ));
+    h.get_by_label("show placement doubts to consider").click();
+    h.run();
+    h.get_by_label(&format!(
+        "{open_total} shown of {open_total} ({open_total} open)"
+    ));
+}

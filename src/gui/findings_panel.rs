@@ -1,11 +1,16 @@
 //! The findings list (right): the audit's findings with filters by rule and severity and a
 //! sort by score. Clicking a finding selects and reveals its node; the buttons apply the
 //! suggested fix (one undoable edit) or accept the node as it is (a review edit).
+//!
+//! Placement doubts the audit is not confident about (the placement rules at info severity,
+//! "to consider") are collapsed by default: the list says how many there are and one
+//! checkbox shows them.
 
 use std::collections::HashMap;
 
 use egui::{RichText, Sense};
 
+use crate::model::audit::evaluate::is_placement_rule;
 use crate::model::audit::{Finding, Severity};
 use crate::model::edit::{Edit, ReviewStatus};
 
@@ -32,6 +37,8 @@ pub struct FindingsPanel {
     pub min_severity: Severity,
     /// Include findings accepted as they are.
     pub show_accepted: bool,
+    /// Include the low-confidence placement doubts ("to consider"), collapsed by default.
+    pub show_consider: bool,
     /// Order.
     pub sort: Sort,
     cache: Option<Cached>,
@@ -40,10 +47,12 @@ pub struct FindingsPanel {
 /// Filtered finding indices and rule names, recomputed only when the audit or a filter
 /// changes (a big tree has tens of thousands of findings).
 struct Cached {
-    key: (u64, Option<&'static str>, Severity, bool, Sort),
+    key: (u64, Option<&'static str>, Severity, bool, bool, Sort),
     rules: Vec<&'static str>,
     shown: Vec<usize>,
     open: usize,
+    /// Open findings to consider that the filters hide.
+    consider_hidden: usize,
     /// Whether each suggested fix applies now (checked lazily, only for rows drawn).
     fix_ok: HashMap<usize, Option<String>>,
 }
@@ -54,6 +63,7 @@ impl Default for FindingsPanel {
             rule: None,
             min_severity: Severity::Info,
             show_accepted: false,
+            show_consider: false,
             sort: Sort::Rank,
             cache: None,
         }
@@ -68,6 +78,11 @@ fn severity_name(s: Severity) -> &'static str {
     }
 }
 
+/// A placement doubt the audit is not confident about: a placement rule at info severity.
+pub fn is_to_consider(f: &Finding) -> bool {
+    f.severity == Severity::Info && is_placement_rule(f.rule)
+}
+
 impl FindingsPanel {
     /// Indices of the findings shown with the current filters, in display order.
     pub fn filtered(&self, findings: &[Finding]) -> Vec<usize> {
@@ -77,6 +92,7 @@ impl FindingsPanel {
                 f.severity >= self.min_severity
                     && self.rule.is_none_or(|r| f.rule == r)
                     && (self.show_accepted || !f.accepted)
+                    && (self.show_consider || !is_to_consider(f))
             })
             .collect();
         if self.sort == Sort::Score {
@@ -96,6 +112,7 @@ impl FindingsPanel {
             self.rule,
             self.min_severity,
             self.show_accepted,
+            self.show_consider,
             self.sort,
         );
         if self.cache.as_ref().is_some_and(|c| c.key == key) {
@@ -109,6 +126,14 @@ impl FindingsPanel {
             rules,
             shown: self.filtered(findings),
             open: findings.iter().filter(|f| !f.accepted).count(),
+            consider_hidden: if self.show_consider {
+                0
+            } else {
+                findings
+                    .iter()
+                    .filter(|f| !f.accepted && is_to_consider(f))
+                    .count()
+            },
             fix_ok: HashMap::new(),
         });
     }
@@ -167,16 +192,34 @@ impl Panel for FindingsPanel {
             ui.radio_value(&mut self.sort, Sort::Score, "score");
             ui.checkbox(&mut self.show_accepted, "show accepted");
         });
+        let hidden = self.cache.as_ref().map_or(0, |c| c.consider_hidden);
+        if hidden > 0 || self.show_consider {
+            ui.checkbox(&mut self.show_consider, "show placement doubts to consider")
+                .on_hover_text(
+                    "placement findings the audit is not confident about (info severity): \
+                     collapsed by default",
+                );
+        }
         self.refresh(view, &report.findings);
         let Some(cache) = &mut self.cache else {
             return actions;
         };
-        ui.label(format!(
-            "{} shown of {} ({} open)",
-            cache.shown.len(),
-            report.findings.len(),
-            cache.open
-        ));
+        ui.label(if cache.consider_hidden > 0 {
+            format!(
+                "{} shown of {} ({} open; {} to consider collapsed)",
+                cache.shown.len(),
+                report.findings.len(),
+                cache.open,
+                cache.consider_hidden
+            )
+        } else {
+            format!(
+                "{} shown of {} ({} open)",
+                cache.shown.len(),
+                report.findings.len(),
+                cache.open
+            )
+        });
         let eff = view.eff;
         let label = |p| match eff {
             Some(e) => e.label(p).to_string(),
