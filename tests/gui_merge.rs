@@ -55,3 +55,52 @@ fn refused_save_offers_the_merge_dialog() {
     assert_eq!(edits[0].author, "cli");
     assert!(h.query_by_label("Merge with the file on disk").is_none());
 }
+
+/// Ctrl+Z after "Merge and save" takes the whole merge back in one step; saving then opens
+/// the merge dialog again instead of writing the other side's edit away.
+#[test]
+fn undo_takes_back_the_whole_merge() {
+    let t = tempfile::tempdir().unwrap();
+    let dir = t.path().join("demo");
+    write_demo(&dir).unwrap();
+    let mut doc = treewright::gui::Doc::open(&dir).unwrap();
+    doc.wait_for_audit();
+    let app = App::new(
+        doc,
+        Settings {
+            author: "win".into(),
+            ..Settings::default()
+        },
+    );
+    let mut h = Harness::builder()
+        .with_size([1280.0, 800.0])
+        .with_max_steps(12)
+        .build_ui_state(|ui, app: &mut App| app.ui(ui), app);
+    h.run();
+    h.state_mut().apply(Action::Edit(Edit::Reparent {
+        node: "aloe".into(),
+        parent: "shrubs".into(),
+    }));
+    let out = Command::new(env!("CARGO_BIN_EXE_treewright"))
+        .arg("edit")
+        .arg(&dir)
+        .args(["rename", "bulb-planter", "Bulb tool", "--author", "cli"])
+        .output()
+        .unwrap();
+    assert!(out.status.success());
+    h.state_mut().apply(Action::Save);
+    h.run();
+    h.get_by_label("Merge and save").click();
+    h.run();
+    assert!(h.query_by_label("Merge with the file on disk").is_none());
+    let on_disk = || parse_overrides(&std::fs::read(dir.join("overrides.json")).unwrap(), "o");
+    assert_eq!(on_disk().unwrap().len(), 2);
+
+    h.state_mut().apply(Action::Undo);
+    h.run();
+    h.get_by_label_contains("Undid the merge with the file on disk (2 edits back to 1");
+    h.state_mut().apply(Action::Save);
+    h.run();
+    h.get_by_label("Merge with the file on disk");
+    assert_eq!(on_disk().unwrap().len(), 2, "the merged file is kept");
+}

@@ -13,7 +13,7 @@ use std::path::{Path, PathBuf};
 use crate::model::builder::BuildReport;
 use crate::model::edit::{Edit, EditRecord};
 use crate::model::export::Format;
-use crate::model::overrides::{OverrideError, OverrideLayer};
+use crate::model::overrides::{OverrideError, OverrideLayer, Step};
 use crate::model::tree::TreeFile;
 use crate::model::{AuditMode, Project, Workspace, WorkspaceError};
 
@@ -77,14 +77,26 @@ impl Doc {
         Ok(())
     }
 
-    /// Undo the last edit; returns its operation name.
-    pub fn undo(&mut self) -> Option<&'static str> {
-        self.ws.undo().map(|r| r.edit.op())
+    /// Undo the last step; returns what it was: an edit's operation name, or the merge with
+    /// the file on disk taken back as a whole.
+    pub fn undo(&mut self) -> Option<String> {
+        self.ws.undo_step().map(|s| match s {
+            Step::Edit(r) => r.edit.op().to_string(),
+            Step::Merge { from, to } => format!(
+                "the merge with the file on disk ({from} edits back to {to}; saving offers the \
+                 merge again)"
+            ),
+        })
     }
 
-    /// Redo the last undone edit; returns its operation name.
-    pub fn redo(&mut self) -> Option<&'static str> {
-        self.ws.redo().map(|r| r.edit.op())
+    /// Redo the last undone step; returns what it was (see [`Doc::undo`]).
+    pub fn redo(&mut self) -> Option<String> {
+        self.ws.redo_step().map(|s| match s {
+            Step::Edit(r) => r.edit.op().to_string(),
+            Step::Merge { from, to } => {
+                format!("the merge with the file on disk ({from} edits to {to})")
+            }
+        })
     }
 
     /// Write the override file under the project lock. When someone else changed it since

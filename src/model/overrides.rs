@@ -150,9 +150,48 @@ impl Fingerprint {
 pub struct OverrideLayer {
     /// The edits in file order.
     pub edits: Vec<EditRecord>,
-    redo: Vec<EditRecord>,
+    redo: Vec<Redo>,
     saved: Vec<EditRecord>,
     disk: Fingerprint,
+    merges: Vec<MergeStep>,
+}
+
+/// The edits with the saving reference point (edits and file as last loaded or saved): what
+/// undoing or redoing a merge with the file on disk puts back.
+#[derive(Debug, Clone)]
+pub struct LayerState {
+    edits: Vec<EditRecord>,
+    saved: Vec<EditRecord>,
+    disk: Fingerprint,
+}
+
+/// A merge with the file on disk as one undo step: the layer before and after it.
+#[derive(Debug, Clone)]
+struct MergeStep {
+    before: LayerState,
+    after: LayerState,
+}
+
+/// One step on the redo stack.
+#[derive(Debug, Clone)]
+enum Redo {
+    Edit(EditRecord),
+    Merge(Box<MergeStep>),
+}
+
+/// What one undo or redo step did.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Step {
+    /// One edit was dropped (undo) or re-appended (redo).
+    Edit(EditRecord),
+    /// A whole merge with the file on disk was undone or redone: the edit count went from
+    /// `from` to `to`.
+    Merge {
+        /// Edits before the step.
+        from: usize,
+        /// Edits after the step.
+        to: usize,
+    },
 }
 
 impl Default for OverrideLayer {
@@ -162,6 +201,7 @@ impl Default for OverrideLayer {
             redo: Vec::new(),
             saved: Vec::new(),
             disk: Fingerprint::Missing,
+            merges: Vec::new(),
         }
     }
 }
@@ -251,6 +291,7 @@ impl OverrideLayer {
             edits,
             redo: Vec::new(),
             disk: Fingerprint::of_bytes(&bytes),
+            merges: Vec::new(),
         })
     }
 
@@ -320,26 +361,105 @@ impl OverrideLayer {
         self.redo.clear();
     }
 
-    /// Drop the last edit (kept for redo).
+    /// Drop the last edit (kept for redo). When the last step is a merge with the file on
+    /// disk nothing happens and `None` is returned: [`OverrideLayer::undo_step`] undoes that.
     pub fn undo(&mut self) -> Option<EditRecord> {
+        if self.merge_on_top() {
+            return None;
+        }
         let r = self.edits.pop()?;
-        self.redo.push(r.clone());
+        self.redo.push(Redo::Edit(r.clone()));
         Some(r)
     }
 
-    /// Re-append the last undone edit.
+    /// Re-append the last undone edit (`None` when the next redo is a merge, see
+    /// [`OverrideLayer::redo_step`]).
     pub fn redo(&mut self) -> Option<EditRecord> {
-        let r = self.redo.pop()?;
-        self.edits.push(r.clone());
-        Some(r)
+        if matches!(self.redo.last()?, Redo::Merge(_)) {
+            return None;
+        }
+        match self.redo_step()? {
+            Step::Edit(r) => Some(r),
+            Step::Merge { .. } => None,
+        }
     }
 
-    /// Whether there is an edit to undo.
+    /// The layer as it stands, to pass to [`OverrideLayer::record_merge`] after a merge.
+    pub fn state(&self) -> LayerState {
+        LayerState {
+            edits: self.edits.clone(),
+            saved: self.saved.clone(),
+            disk: self.disk.clone(),
+        }
+    }
+
+    /// Record that a merge with the file on disk turned `before` into the layer as it stands
+    /// now, so that one undo step takes the whole merge back. Undoing it also puts back the
+    /// reference point of `before`: the merged file is still on disk, so the next save is
+    /// refused as changed on disk and offers the merge again instead of writing the other
+    /// side's edits away. Clears the redo stack like any new step.
+    pub fn record_merge(&mut self, before: LayerState) {
+        let after = self.state();
+        self.merges.push(MergeStep { before, after });
+        self.redo.clear();
+    }
+
+    /// Whether the last step is a merge (edits unchanged since it). A merge whose edits are
+    /// gone some other way is forgotten.
+    fn merge_on_top(&mut self) -> bool {
+        while let Some(m) = self.merges.last() {
+            if self.edits.len() < m.after.edits.len() {
+                self.merges.pop();
+                continue;
+            }
+            return self.edits == m.after.edits;
+        }
+        false
+    }
+
+    fn put_back(&mut self, s: &LayerState) {
+        self.edits = s.edits.clone();
+        self.saved = s.saved.clone();
+        self.disk = s.disk.clone();
+    }
+
+    /// Undo the last step: one edit, or a whole merge with the file on disk (see
+    /// [`OverrideLayer::record_merge`]).
+    pub fn undo_step(&mut self) -> Option<Step> {
+        if self.merge_on_top() {
+            let m = self.merges.pop()?;
+            let from = self.edits.len();
+            self.put_back(&m.before);
+            let to = self.edits.len();
+            self.redo.push(Redo::Merge(Box::new(m)));
+            return Some(Step::Merge { from, to });
+        }
+        self.undo().map(Step::Edit)
+    }
+
+    /// Redo the last undone step.
+    pub fn redo_step(&mut self) -> Option<Step> {
+        match self.redo.pop()? {
+            Redo::Edit(r) => {
+                self.edits.push(r.clone());
+                Some(Step::Edit(r))
+            }
+            Redo::Merge(m) => {
+                let from = self.edits.len();
+                self.put_back(&m.after);
+                let to = self.edits.len();
+                self.merges.push(*m);
+                Some(Step::Merge { from, to })
+            }
+        }
+    }
+
+    /// Whether there is a step to undo.
     pub fn can_undo(&self) -> bool {
-        !self.edits.is_empty()
+        !self.edits.is_empty() || self.merges.last().is_some_and(|m| m.after.edits.is_empty())
     }
 
-    /// Whether there is an undone edit to redo.
+    /// Whether there is an undone step to redo.
     pub fn can_redo(&self) -> bool {
         !self.redo.is_empty()
     }
@@ -1265,5 +1385,33 @@ mod tests {
         l.push(rec(Edit::Exclude { node: "c".into() }));
         assert!(!l.can_redo());
         assert_eq!(l.edits.len(), 2);
+    }
+
+    #[test]
+    fn a_recorded_merge_undoes_and_redoes_as_one_step() {
+        let mut l = OverrideLayer::new();
+        l.push(rec(Edit::Exclude { node: "a".into() }));
+        let before = l.state();
+        l.edits.push(rec(Edit::Exclude { node: "b".into() }));
+        l.edits.push(rec(Edit::Exclude { node: "c".into() }));
+        l.saved = l.edits.clone();
+        l.disk = Fingerprint::of_bytes(b"merged");
+        l.record_merge(before);
+        assert!(l.undo().is_none(), "plain undo never takes a merge apart");
+        assert_eq!(l.undo_step(), Some(Step::Merge { from: 3, to: 1 }));
+        assert_eq!(l.edits.len(), 1);
+        assert_eq!(
+            l.disk,
+            Fingerprint::Missing,
+            "the old reference point is back"
+        );
+        assert!(l.redo().is_none(), "plain redo never redoes a merge");
+        assert_eq!(l.redo_step(), Some(Step::Merge { from: 1, to: 3 }));
+        assert_eq!(l.disk, Fingerprint::of_bytes(b"merged"));
+        l.push(rec(Edit::Exclude { node: "d".into() }));
+        assert!(matches!(l.undo_step(), Some(Step::Edit(_))));
+        assert!(matches!(l.undo_step(), Some(Step::Merge { .. })));
+        assert!(matches!(l.undo_step(), Some(Step::Edit(_))));
+        assert!(l.undo_step().is_none() && !l.can_undo());
     }
 }

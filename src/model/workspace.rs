@@ -582,6 +582,21 @@ impl Workspace {
         Some(r)
     }
 
+    /// Undo the last step: one edit, or a whole merge with the file on disk (see
+    /// [`OverrideLayer::record_merge`]).
+    pub fn undo_step(&mut self) -> Option<overrides::Step> {
+        let s = self.layer.undo_step()?;
+        self.refresh();
+        Some(s)
+    }
+
+    /// Redo the last undone step (an edit or a whole merge).
+    pub fn redo_step(&mut self) -> Option<overrides::Step> {
+        let s = self.layer.redo_step()?;
+        self.refresh();
+        Some(s)
+    }
+
     /// Push edit records as they are (author and time kept) and re-apply.
     pub fn restore(&mut self, records: Vec<EditRecord>) {
         for r in records {
@@ -651,10 +666,12 @@ impl Workspace {
                 .unwrap_or(super::merge::Side::Ours);
             edits.extend(c.side(side).iter().cloned());
         }
+        let before = self.layer.state();
         self.layer.take_disk(&path)?;
         self.layer.edits = edits;
         self.layer.save_locked(&path, &lock)?;
         drop(lock);
+        self.layer.record_merge(before);
         self.refresh();
         Ok(path)
     }
