@@ -46,6 +46,10 @@ fn refused_save_offers_the_merge_dialog() {
     h.run();
     h.get_by_label("Merge with the file on disk");
     h.get_by_label_contains("Conflict c1 (placement) on aloe");
+    // the two-parent ellipse view: the parents are the ones the two reparent edits named
+    h.get_by_label("Ellipses for c1");
+    h.get_by_label_contains("under shrubs (mine): ");
+    h.get_by_label_contains("under houseplants (theirs): ");
     h.get_by_label("Keep theirs").click();
     h.run();
     h.get_by_label("Merge and save").click();

@@ -702,6 +702,53 @@ pub fn signed_by(base_tree: &Tree, phrases: &PhraseTable, edits: &[EditRecord]) 
     })
 }
 
+/// Where a placement conflict puts one of its nodes under each choice: what the workbench's
+/// two-parent ellipse view draws.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct PlacementChoice {
+    /// The node both sides placed.
+    pub node: PhraseId,
+    /// Its parent when ours is kept (`None`: unplaced or the root).
+    pub if_ours: Option<PhraseId>,
+    /// Its parent when theirs is kept.
+    pub if_theirs: Option<PhraseId>,
+}
+
+/// For a conflict of kind `placement`: each of its nodes with its parent in the effective
+/// tree of `edits` (the merged edits without the conflicting ones) plus one side's edits,
+/// the same trees [`Conflict::if_ours`] and [`Conflict::if_theirs`] describe. Empty for
+/// other kinds.
+pub fn placement_choices(
+    base_tree: &Tree,
+    phrases: &PhraseTable,
+    edits: &[EditRecord],
+    c: &Conflict,
+) -> Vec<PlacementChoice> {
+    if !c.kinds.iter().any(|k| k == "placement") {
+        return Vec::new();
+    }
+    let parents = |side: Side| {
+        let mut list = edits.to_vec();
+        list.extend(c.side(side).iter().cloned());
+        let (eff, _) = apply(base_tree, phrases, &list);
+        c.nodes
+            .iter()
+            .filter_map(|id| phrases.get(id))
+            .map(|p| (p, eff.tree.parent(p)))
+            .collect::<Vec<_>>()
+    };
+    parents(Side::Ours)
+        .into_iter()
+        .zip(parents(Side::Theirs))
+        .filter(|((_, o), (_, t))| o != t)
+        .map(|((node, if_ours), (_, if_theirs))| PlacementChoice {
+            node,
+            if_ours,
+            if_theirs,
+        })
+        .collect()
+}
+
 fn other_side(s: Side) -> Side {
     match s {
         Side::Ours => Side::Theirs,
@@ -821,6 +868,45 @@ mod tests {
         assert!(c.if_theirs[0].contains("under bulbs"), "{:?}", c.if_theirs);
         assert!(m.edits.is_empty());
         assert_eq!(m.take_all(Side::Theirs), th);
+    }
+
+    #[test]
+    fn placement_choices_name_the_parent_each_side_chose() {
+        let (t, tree) = project();
+        let o = vec![rec(reparent("rake", "seeds"), "ana", 1)];
+        let th = vec![rec(reparent("rake", "bulbs"), "ben", 2)];
+        let m = merge(&tree, &t, &[], &o, &th);
+        let ch = placement_choices(&tree, &t, &m.edits, &m.conflicts[0]);
+        // expected parents are the ones the two reparent edits name
+        let id = |s: &str| t.get(s).unwrap();
+        assert_eq!(
+            ch,
+            vec![PlacementChoice {
+                node: id("rake"),
+                if_ours: Some(id("seeds")),
+                if_theirs: Some(id("bulbs")),
+            }]
+        );
+        // a label conflict has no placement to draw
+        let o = vec![rec(
+            Edit::Rename {
+                node: "rake".into(),
+                label: "Rake".into(),
+            },
+            "ana",
+            1,
+        )];
+        let th = vec![rec(
+            Edit::Rename {
+                node: "rake".into(),
+                label: "Lawn rake".into(),
+            },
+            "ben",
+            2,
+        )];
+        let m = merge(&tree, &t, &[], &o, &th);
+        assert_eq!(m.conflicts[0].kinds, vec!["label".to_string()]);
+        assert!(placement_choices(&tree, &t, &m.edits, &m.conflicts[0]).is_empty());
     }
 
     #[test]
