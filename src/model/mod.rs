@@ -29,6 +29,7 @@ pub mod signed;
 pub mod signoff;
 pub mod stats;
 pub mod suggest;
+pub mod time;
 pub mod tree;
 pub mod workspace;
 

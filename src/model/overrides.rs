@@ -10,7 +10,6 @@
 //! `{"format": "treewright-overrides", "version": 1, "edits": [EditRecord, ...]}`.
 
 use std::path::Path;
-use std::time::{SystemTime, UNIX_EPOCH};
 
 use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
@@ -24,6 +23,8 @@ use super::merge::Conflict;
 use super::phrase::PhraseTable;
 pub use super::refusal::{EditRefusal, Role};
 use super::tree::Tree;
+
+pub use super::time::{now_rfc3339, rfc3339_from_unix};
 
 /// The `format` value of an override file.
 pub const OVERRIDES_FORMAT: &str = "treewright-overrides";
@@ -468,43 +469,6 @@ impl OverrideLayer {
     pub fn is_dirty(&self) -> bool {
         self.edits != self.saved
     }
-}
-
-/// The current time as RFC 3339 UTC with second precision (`2026-12-02T10:00:00Z`).
-pub fn now_rfc3339() -> String {
-    let secs = SystemTime::now()
-        .duration_since(UNIX_EPOCH)
-        .map(|d| d.as_secs() as i64)
-        .unwrap_or(0);
-    rfc3339_from_unix(secs)
-}
-
-/// Format seconds since the Unix epoch as RFC 3339 UTC. The civil date is computed with
-/// the days-to-civil algorithm of H. Hinnant, "chrono-Compatible Low-Level Date
-/// Algorithms" (proleptic Gregorian calendar).
-pub fn rfc3339_from_unix(secs: i64) -> String {
-    let days = secs.div_euclid(86_400);
-    let rem = secs.rem_euclid(86_400);
-    let (y, m, d) = civil_from_days(days);
-    format!(
-        "{y:04}-{m:02}-{d:02}T{:02}:{:02}:{:02}Z",
-        rem / 3600,
-        (rem / 60) % 60,
-        rem % 60
-    )
-}
-
-fn civil_from_days(z: i64) -> (i64, u32, u32) {
-    let z = z + 719_468;
-    let era = z.div_euclid(146_097);
-    let doe = z.rem_euclid(146_097);
-    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
-    let y = yoe + era * 400;
-    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
-    let mp = (5 * doy + 2) / 153;
-    let d = (doy - (153 * mp + 2) / 5 + 1) as u32;
-    let m = if mp < 10 { mp + 3 } else { mp - 9 } as u32;
-    (if m <= 2 { y + 1 } else { y }, m, d)
 }
 
 /// Wrap an edit with its author, the current time and an optional note.

@@ -32,6 +32,8 @@ use super::refusal::EditRefusal;
 use super::signed::{self as signed_tree, BaseAtSignoff, SinceSignoff, SnapshotError};
 use super::signoff::{self, Verification, latest_signoff, tree_hash};
 use super::tree::TreeFile;
+
+pub use super::project::{report_path_of, tree_bytes, tree_csv};
 use super::{PhraseId, Project, Tree};
 
 /// From this many phrases on, the first audit of a project runs on a worker thread when the
@@ -984,46 +986,6 @@ impl Workspace {
 
 fn hex(d: &[u8; 32]) -> String {
     d.iter().map(|b| format!("{b:02x}")).collect()
-}
-
-/// `build-report.json` beside the project's tree file.
-pub fn report_path_of(project: &Project) -> PathBuf {
-    project
-        .tree_path()
-        .parent()
-        .map(|d| d.join("build-report.json"))
-        .unwrap_or_else(|| PathBuf::from("build-report.json"))
-}
-
-/// The bytes of a tree file: a `child,parent` CSV edge list when `path` ends in `.csv`,
-/// else pretty JSON.
-pub fn tree_bytes(file: &TreeFile, path: &Path) -> Result<Vec<u8>, std::io::Error> {
-    if crate::model::project::is_skos_path(path) {
-        // a hand-made SKOS taxonomy is never overwritten by a machine-built tree
-        return Err(std::io::Error::other(
-            "the project's tree is a SKOS taxonomy; a built tree is not written over it \
-             (write it elsewhere, e.g. `build --out tree.json`, and name that file as \"tree\")",
-        ));
-    }
-    let is_csv = path
-        .extension()
-        .is_some_and(|e| e.eq_ignore_ascii_case("csv"));
-    if is_csv {
-        tree_csv(file).map_err(std::io::Error::other)
-    } else {
-        Ok(to_json_pretty(file))
-    }
-}
-
-/// The tree as a `child,parent` CSV edge list (the root with an empty parent first).
-pub fn tree_csv(t: &TreeFile) -> Result<Vec<u8>, csv::Error> {
-    let mut w = csv::Writer::from_writer(Vec::new());
-    w.write_record(["child", "parent"])?;
-    w.write_record([t.root.as_str(), ""])?;
-    for (c, p) in &t.parent {
-        w.write_record([c.as_str(), p.as_str()])?;
-    }
-    w.into_inner().map_err(|e| csv::Error::from(e.into_error()))
 }
 
 #[cfg(test)]

@@ -34,7 +34,7 @@ pub use parquet::{
 pub use read::{parse_json, read_json, resolve_inside};
 pub use skos_tree::{SkosReport, SkosTree, is_skos_path, load_skos_tree, parse_skos_tree};
 pub use taxonomy_import::TAXONOMY_FILE;
-pub use tree_file::{load_tree, parse_tree_csv};
+pub use tree_file::{load_tree, parse_tree_csv, report_path_of, tree_bytes, tree_csv};
 pub use writer::ProjectWriter;
 
 /// A load failure: always names the file, and the row / phrase / field where one applies.

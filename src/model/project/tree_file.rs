@@ -1,11 +1,13 @@
 //! Tree files: JSON (`{"root", "parent"}`) or a CSV edge list.
 
 use std::collections::BTreeMap;
-use std::path::Path;
+use std::path::{Path, PathBuf};
 
 use super::LoadError;
+use super::Project;
 use super::manifest::Limits;
 use super::read::{read_bytes_limited, read_json_limited};
+use crate::model::fsutil::to_json_pretty;
 use crate::model::phrase::PhraseTable;
 use crate::model::tree::{Tree, TreeFile};
 
@@ -111,4 +113,44 @@ pub fn parse_tree_csv(bytes: &[u8], file: &str) -> Result<TreeFile, LoadError> {
             format!("several roots: {}", roots.join(", ")),
         )),
     }
+}
+
+/// `build-report.json` beside the project's tree file.
+pub fn report_path_of(project: &Project) -> PathBuf {
+    project
+        .tree_path()
+        .parent()
+        .map(|d| d.join("build-report.json"))
+        .unwrap_or_else(|| PathBuf::from("build-report.json"))
+}
+
+/// The bytes of a tree file: a `child,parent` CSV edge list when `path` ends in `.csv`,
+/// else pretty JSON.
+pub fn tree_bytes(file: &TreeFile, path: &Path) -> Result<Vec<u8>, std::io::Error> {
+    if crate::model::project::is_skos_path(path) {
+        // a hand-made SKOS taxonomy is never overwritten by a machine-built tree
+        return Err(std::io::Error::other(
+            "the project's tree is a SKOS taxonomy; a built tree is not written over it \
+             (write it elsewhere, e.g. `build --out tree.json`, and name that file as \"tree\")",
+        ));
+    }
+    let is_csv = path
+        .extension()
+        .is_some_and(|e| e.eq_ignore_ascii_case("csv"));
+    if is_csv {
+        tree_csv(file).map_err(std::io::Error::other)
+    } else {
+        Ok(to_json_pretty(file))
+    }
+}
+
+/// The tree as a `child,parent` CSV edge list (the root with an empty parent first).
+pub fn tree_csv(t: &TreeFile) -> Result<Vec<u8>, csv::Error> {
+    let mut w = csv::Writer::from_writer(Vec::new());
+    w.write_record(["child", "parent"])?;
+    w.write_record([t.root.as_str(), ""])?;
+    for (c, p) in &t.parent {
+        w.write_record([c.as_str(), p.as_str()])?;
+    }
+    w.into_inner().map_err(|e| csv::Error::from(e.into_error()))
 }
