@@ -341,3 +341,5 @@ fn assemble_with(
 
 #[cfg(test)]
 mod tests;
+#[cfg(test)]
+mod tests_update;
