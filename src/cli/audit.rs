@@ -13,6 +13,7 @@ use serde::Serialize;
 
 use super::CliError;
 use crate::model::Workspace;
+use crate::model::audit::calibrate;
 use crate::model::audit::evaluate::{evaluate, read_known_errors};
 use crate::model::audit::{AuditConfig, AuditReport, Finding, RULES, Severity};
 use crate::model::edit::{Edit, EditRecord};
@@ -155,6 +156,10 @@ struct RuleCount {
 #[derive(Serialize)]
 struct Summary<'a> {
     accepted: usize,
+    /// "calibrated on N decisions (…)" when the reviewer's decisions recalibrated the
+    /// confidence; absent otherwise.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    calibration: Option<String>,
     coverage_threshold: f64,
     findings: usize,
     nodes: usize,
@@ -262,6 +267,7 @@ impl View<'_> {
             open_warnings: self.open(Severity::Warning),
             open_info: self.open(Severity::Info),
             accepted: self.findings.iter().filter(|f| f.accepted).count(),
+            calibration: self.report.calibration.as_ref().map(|c| c.describe()),
             unreviewed: self.report.unreviewed,
             coverage_threshold: self.report.coverage_threshold,
             samples: self.report.stats.samples,
@@ -350,6 +356,9 @@ impl View<'_> {
             sm.open_info,
             sm.accepted
         );
+        if let Some(c) = &sm.calibration {
+            let _ = writeln!(s, "confidence {c}");
+        }
         for f in &self.findings {
             let _ = writeln!(
                 s,
@@ -400,6 +409,9 @@ impl View<'_> {
             "- Open findings: {} error(s), {} warning(s), {} info; {} accepted",
             sm.open_errors, sm.open_warnings, sm.open_info, sm.accepted
         );
+        if let Some(c) = &sm.calibration {
+            let _ = writeln!(s, "- Confidence: {c}");
+        }
         let _ = writeln!(
             s,
             "- Sampling: {} points per estimate at α = {}; coverage threshold in force {:.4}\n",
@@ -482,7 +494,18 @@ pub fn run(args: &AuditArgs) -> Result<(), CliError> {
     let project = &ws.project;
     let cfg = ws.audit_config()?;
     let eff = ws.effective()?;
-    let report = ws.audit_now()?;
+    let mut report = ws.audit_now()?;
+    // the reviewer's decisions in the override layer recalibrate the confidence (never
+    // removing a finding; see `calibrate`)
+    if let Some(c) = calibrate::from_layer(
+        &project.gaussians,
+        &project.phrases,
+        ws.base()?,
+        &ws.layer.edits,
+        &cfg,
+    ) {
+        c.apply(&mut report, |r| cfg.severity.contains_key(r));
+    }
     if let Some(path) = &args.known_errors {
         return run_evaluation(args, path, &project.phrases, &report);
     }

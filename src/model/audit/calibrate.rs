@@ -7,15 +7,25 @@
 //! [`MIN_DECISIONS`] such decisions, both kinds among them, a logistic model
 //! P(right | x) = σ(w · x) is fitted to them (Platt 1999, "Probabilistic outputs for support
 //! vector machines and comparisons to regularized likelihood methods", in *Advances in Large
-//! Margin Classifiers*, MIT Press, uses the one-feature form; here a few features, fitted by
+//! Margin Classifiers*, MIT Press, uses the one-feature form; here three features, fitted by
 //! Newton's method with a small ridge penalty, common practice), and the confidence of every
 //! open placement finding becomes the model's probability of being right; the ranking
-//! follows it and the severity is set by [`calibrated_level`] (a probability of being
-//! right, not a false-discovery rate: warning from 0.5, error from 0.95). The features are read from a finding as it stood *when it was decided*, i.e.
+//! follows it. The features are read from a finding as it stood *when it was decided*, i.e.
 //! from the audit of the tree before the edits (see [`decisions`]):
-//! x = (1, ln(1 − log₁₀ p), ln(1 + excess), [rule = better-parent], [rule = inverted-generality]),
-//! p the p-value behind the finding's confidence ([`Finding::evidence`]; the confidence
-//! itself saturates at 1 among the top findings a reviewer decides first).
+//! x = (1, ln(1 − log₁₀ p), z₁), p the p-value behind the finding's confidence
+//! ([`Finding::evidence`]; the confidence itself saturates at 1 among the top findings a
+//! reviewer decides first) and z₁ the robust z-score of ln KL(node ‖ parent) among the
+//! tree's nodes (the first of the two misplacement scores, [`confidence`]). The p-value
+//! carries the combined test; z₁ beside it lets the fit weigh the two scores differently
+//! for this project (on an ICD-10-CM check set, for example, the decisions say that a
+//! node's distance from its parent matters more than the margin of the best alternative).
+//!
+//! **Demotion only.** A reviewer decides the top of the ranking first, so the decisions are
+//! a biased sample: nearly all of them are right, and a fit on them says little about how
+//! often the findings further down are right (extrapolated, it called most of the tail
+//! right). The calibrated probability therefore reorders the findings and may *lower* a
+//! finding's severity ([`calibrated_level`]: a probability of being right, warning from
+//! 0.5, error from 0.95), never raise it above the level of its false-discovery test.
 //!
 //! A decision never deletes anything: calibration only changes confidences, severities and
 //! the order of findings; every finding stays in the list.
@@ -23,10 +33,12 @@
 use std::collections::HashMap;
 
 use super::evaluate::is_placement_rule;
-use super::{AuditReport, BETTER_PARENT, Finding, INVERTED_GENERALITY, Severity, confidence};
+use super::{AuditConfig, AuditReport, Finding, Severity, audit, confidence};
 use crate::model::edit::{Edit, EditRecord, ReviewStatus};
-use crate::model::gaussian::PhraseId;
+use crate::model::effective::EffectiveTree;
+use crate::model::gaussian::{Gaussians, PhraseId};
 use crate::model::phrase::PhraseTable;
+use crate::model::tree::Tree;
 
 /// Fewer decisions than this: no calibration.
 pub const MIN_DECISIONS: usize = 20;
@@ -34,7 +46,7 @@ pub const MIN_DECISIONS: usize = 20;
 /// separate perfectly).
 const RIDGE: f64 = 1.0;
 /// Features per finding.
-const K: usize = 5;
+const K: usize = 3;
 
 /// A fitted calibration.
 #[derive(Debug, Clone, PartialEq, serde::Serialize)]
@@ -62,26 +74,36 @@ fn sigmoid(t: f64) -> f64 {
     1.0 / (1.0 + (-t).exp())
 }
 
-/// The features of a finding.
-pub fn features(f: &Finding) -> [f64; K] {
-    [
-        1.0,
-        f.evidence.ln_1p(),
-        f.excess().ln_1p(),
-        f64::from(u8::from(f.rule == BETTER_PARENT)),
-        f64::from(u8::from(f.rule == INVERTED_GENERALITY)),
-    ]
+/// The features of a finding whose node's parent-fit z-score is `z1` (see
+/// [`parent_fit_z`]).
+pub fn features(f: &Finding, z1: f64) -> [f64; K] {
+    [1.0, f.evidence.ln_1p(), z1]
 }
 
-/// The decisions recorded in `edits`, with the features of each decided node's first open
-/// placement finding in `before` (the audit of the tree before the edits). A node with a
-/// `reparent` edit counts as right, one approved by a `review` edit (and not reparented) as
-/// wrong; nodes without a placement finding in `before` are skipped.
-pub fn decisions(
-    before: &AuditReport,
-    phrases: &PhraseTable,
-    edits: &[EditRecord],
-) -> Vec<Decision> {
+/// The robust z-score of ln KL(node ‖ parent) of every row of `report` (0 for rows without
+/// a parent, and for all when the tree is too small or has no spread): the first score of
+/// the misplacement test ([`confidence`]).
+pub fn parent_fit_z(report: &AuditReport) -> Vec<f64> {
+    let nodes = &report.stats.nodes;
+    let rows: Vec<usize> = (0..nodes.len())
+        .filter(|&i| nodes[i].kl_to_parent.is_some())
+        .collect();
+    let scores: Vec<f64> = rows
+        .iter()
+        .map(|&i| nodes[i].kl_to_parent.unwrap_or(0.0).max(1e-12).ln())
+        .collect();
+    let mut z = vec![0.0; nodes.len()];
+    if let Some(zs) = confidence::robust_z(&scores, None) {
+        for (&i, v) in rows.iter().zip(zs) {
+            z[i] = v;
+        }
+    }
+    z
+}
+
+/// The nodes judged in `edits`: true for a node with a `reparent` edit (a fix applied),
+/// false for one approved by a `review` edit and not reparented.
+fn judged(phrases: &PhraseTable, edits: &[EditRecord]) -> HashMap<PhraseId, bool> {
     let mut judged: HashMap<PhraseId, bool> = HashMap::new();
     for r in edits {
         match &r.edit {
@@ -98,6 +120,39 @@ pub fn decisions(
             _ => {}
         }
     }
+    judged
+}
+
+/// The calibration that the decisions of the override layer `edits` support, or None
+/// (fewer than [`MIN_DECISIONS`] decided nodes, or one kind only). The features come from
+/// an audit of the `base` tree (the findings as they stood before the edits), run only
+/// when there are enough decisions.
+pub fn from_layer(
+    g: &Gaussians,
+    phrases: &PhraseTable,
+    base: &Tree,
+    edits: &[EditRecord],
+    cfg: &AuditConfig,
+) -> Option<Calibration> {
+    if judged(phrases, edits).len() < MIN_DECISIONS {
+        return None;
+    }
+    let eff = EffectiveTree::from_base(base, phrases);
+    let before = audit(g, phrases, &eff, &[], cfg);
+    Calibration::fit(&decisions(&before, phrases, edits))
+}
+
+/// The decisions recorded in `edits`, with the features of each decided node's first open
+/// placement finding in `before` (the audit of the tree before the edits). A node with a
+/// `reparent` edit counts as right, one approved by a `review` edit (and not reparented) as
+/// wrong; nodes without a placement finding in `before` are skipped.
+pub fn decisions(
+    before: &AuditReport,
+    phrases: &PhraseTable,
+    edits: &[EditRecord],
+) -> Vec<Decision> {
+    let judged = judged(phrases, edits);
+    let z1 = parent_fit_z(before);
     let mut seen = std::collections::HashSet::new();
     let mut out = Vec::new();
     for f in &before.findings {
@@ -107,7 +162,7 @@ pub fn decisions(
         if let Some(&right) = judged.get(&f.node) {
             out.push(Decision {
                 node: f.node,
-                x: features(f),
+                x: features(f, z1[f.node as usize]),
                 right,
             });
         }
@@ -163,17 +218,19 @@ impl Calibration {
         sigmoid(self.weights.iter().zip(x).map(|(a, b)| a * b).sum())
     }
 
-    /// Recalibrate the open placement findings of `report` (confidence, then severity
-    /// unless `fixed_severity` says the rule's severity is configured), re-rank, and record
-    /// the calibration. Nothing is removed.
+    /// Recalibrate the placement findings of `report` (confidence, then severity unless
+    /// `fixed_severity` says the rule's severity is configured: lowered to
+    /// [`calibrated_level`] when that is lower, never raised), re-rank, and record the
+    /// calibration. Nothing is removed.
     pub fn apply(&self, report: &mut AuditReport, fixed_severity: impl Fn(&str) -> bool) {
+        let z1 = parent_fit_z(report);
         for f in report.findings.iter_mut() {
             if !is_placement_rule(f.rule) {
                 continue;
             }
-            f.confidence = self.probability(&features(f));
+            f.confidence = self.probability(&features(f, z1[f.node as usize]));
             if !fixed_severity(f.rule) {
-                f.severity = calibrated_level(f.confidence);
+                f.severity = f.severity.min(calibrated_level(f.confidence));
             }
         }
         report.findings.sort_by(|a, b| {
@@ -253,7 +310,7 @@ mod tests {
         for (i, row) in a.iter_mut().enumerate() {
             row[i] = (i + 1) as f64;
         }
-        let x = solve(a, [1.0, 2.0, 3.0, 4.0, 5.0]).unwrap();
+        let x = solve(a, [1.0, 2.0, 3.0]).unwrap();
         assert!(x.iter().all(|v| (v - 1.0).abs() < 1e-12), "{x:?}");
     }
 
@@ -261,7 +318,7 @@ mod tests {
     fn fit_needs_twenty_decisions_of_both_kinds_and_orders_them() {
         let d = |c: f64, right: bool| Decision {
             node: 0,
-            x: [1.0, c, 0.0, 0.0, 0.0],
+            x: [1.0, c, 0.0],
             right,
         };
         let few: Vec<Decision> = (0..19).map(|i| d(i as f64, i % 2 == 0)).collect();
@@ -276,8 +333,8 @@ mod tests {
             .collect();
         let c = Calibration::fit(&mixed).unwrap();
         assert_eq!(c.decisions, 50);
-        let lo = c.probability(&[1.0, -4.0, 0.0, 0.0, 0.0]);
-        let hi = c.probability(&[1.0, 4.0, 0.0, 0.0, 0.0]);
+        let lo = c.probability(&[1.0, -4.0, 0.0]);
+        let hi = c.probability(&[1.0, 4.0, 0.0]);
         assert!(hi > 0.5 && lo < 0.5 && hi > lo, "{lo} {hi}");
         assert!(c.describe().starts_with("calibrated on 50 decisions"));
     }
