@@ -163,6 +163,13 @@ impl Panel for FindingsPanel {
             }
             return actions;
         };
+        if let Some(c) = &report.calibration {
+            ui.label(format!("Confidence {}", c.describe()))
+                .on_hover_text(
+                    "learned from the reviewer's decisions in the override layer: fixes applied \
+                     count as right findings, nodes approved as is as wrong ones",
+                );
+        }
         self.refresh(view, &report.findings);
         let rules = self
             .cache

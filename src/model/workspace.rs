@@ -350,11 +350,13 @@ impl Workspace {
             (_, AuditMode::Off, _) | (_, _, None) => {}
             (AuditState::Ready(a), _, _) => {
                 a.update(g, phrases, &eff, &problems);
+                a.calibrate(g, phrases, base, &self.layer.edits);
             }
             (AuditState::Running(_), _, _) => {}
             (AuditState::NotStarted, AuditMode::Inline, Some(cfg)) => {
-                self.audit =
-                    AuditState::Ready(Box::new(Auditor::new(g, phrases, &eff, &problems, cfg)));
+                let mut a = Auditor::new(g, phrases, &eff, &problems, cfg);
+                a.calibrate(g, phrases, base, &self.layer.edits);
+                self.audit = AuditState::Ready(Box::new(a));
             }
             (AuditState::NotStarted, AuditMode::Background, Some(cfg)) => {
                 let (tx, rx) = channel();
@@ -439,6 +441,14 @@ impl Workspace {
                 &self.project.phrases,
                 eff,
                 &self.problems,
+            );
+        }
+        if let Some(base) = &self.project.tree {
+            a.calibrate(
+                &self.project.gaussians,
+                &self.project.phrases,
+                base,
+                &self.layer.edits,
             );
         }
         self.audit = AuditState::Ready(Box::new(a));

@@ -2,15 +2,16 @@
 
 use rayon::prelude::*;
 
+use super::calibrate;
 use super::rules::Rule;
 use super::search::{CandidateIndex, Order, Placement, Searcher, needs_search, suspicious};
 use super::{AuditConfig, AuditReport, Finding, assemble, assemble_with};
-use crate::model::edit::ReviewStatus;
+use crate::model::edit::{EditRecord, ReviewStatus};
 use crate::model::effective::{ApplyProblem, EffectiveTree};
 use crate::model::gaussian::{Gaussians, PhraseId};
 use crate::model::phrase::PhraseTable;
 use crate::model::stats::{Histogram, Stats, StatsEngine};
-use crate::model::tree::NO_PARENT;
+use crate::model::tree::{NO_PARENT, Tree};
 
 /// What the auditor remembers of the effective tree it saw last.
 #[derive(Debug, Clone)]
@@ -56,6 +57,9 @@ pub struct Auditor {
     pub(super) placement: Vec<Placement>,
     snapshot: Snapshot,
     pub(super) report: AuditReport,
+    /// The audit of the base tree that the calibration reads its features from (computed
+    /// once, the first time there are enough decisions; see [`Auditor::calibrate`]).
+    before: Option<Box<AuditReport>>,
 }
 
 impl Auditor {
@@ -122,6 +126,34 @@ impl Auditor {
             index,
             placement,
             report,
+            before: None,
+        }
+    }
+
+    /// Recalibrate the current report from the reviewer's decisions in `edits`
+    /// ([`calibrate`](super::calibrate)): with fewer than
+    /// [`MIN_DECISIONS`](super::calibrate::MIN_DECISIONS) decided nodes nothing changes;
+    /// else the `base` tree is audited once (kept for later calls) and the fit is applied.
+    /// Call it after [`Auditor::new`] or [`Auditor::update`] (each rebuilds the report
+    /// uncalibrated). Never removes a finding.
+    pub fn calibrate(
+        &mut self,
+        g: &Gaussians,
+        phrases: &PhraseTable,
+        base: &Tree,
+        edits: &[EditRecord],
+    ) {
+        if calibrate::judged(phrases, edits).len() < calibrate::MIN_DECISIONS {
+            return;
+        }
+        let before = self.before.get_or_insert_with(|| {
+            let eff = EffectiveTree::from_base(base, phrases);
+            Box::new(super::audit(g, phrases, &eff, &[], &self.cfg))
+        });
+        if let Some(c) = calibrate::Calibration::fit(&calibrate::decisions(before, phrases, edits))
+        {
+            let cfg = &self.cfg;
+            c.apply(&mut self.report, |r| cfg.severity.contains_key(r));
         }
     }
 

@@ -103,7 +103,7 @@ pub fn parent_fit_z(report: &AuditReport) -> Vec<f64> {
 
 /// The nodes judged in `edits`: true for a node with a `reparent` edit (a fix applied),
 /// false for one approved by a `review` edit and not reparented.
-fn judged(phrases: &PhraseTable, edits: &[EditRecord]) -> HashMap<PhraseId, bool> {
+pub(super) fn judged(phrases: &PhraseTable, edits: &[EditRecord]) -> HashMap<PhraseId, bool> {
     let mut judged: HashMap<PhraseId, bool> = HashMap::new();
     for r in edits {
         match &r.edit {
