@@ -66,7 +66,10 @@ pub fn read_parquet_columns(
 
 /// Run a Parquet read, turning a panic inside the `parquet` crate (it asserts on some
 /// malformed metadata, found by tests/fuzz_loaders.rs) into a load error naming the file.
-fn guard<T>(file: &str, f: impl FnOnce() -> Result<T, LoadError>) -> Result<T, LoadError> {
+pub(super) fn guard<T>(
+    file: &str,
+    f: impl FnOnce() -> Result<T, LoadError>,
+) -> Result<T, LoadError> {
     std::panic::catch_unwind(std::panic::AssertUnwindSafe(f)).unwrap_or_else(|p| {
         let why = p
             .downcast_ref::<&str>()
