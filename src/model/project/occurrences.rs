@@ -47,23 +47,24 @@ pub fn fit_parquet(
         let reader = SerializedFileReader::new(f).map_err(|e| {
             LoadError::invalid(&file, "parquet", format!("not a usable Parquet file: {e}"))
         })?;
-        stream_parquet(&reader, &file, id, vector, opt)
+        stream_parquet(&reader, &file, id, vector, opt, BATCH_ROWS)
     })
 }
 
-/// [`fit_parquet`] on bytes (tests and fuzzing).
+/// [`fit_parquet`] on bytes, decoding `batch` rows at a time (tests and fuzzing).
 pub fn fit_parquet_bytes(
     bytes: Vec<u8>,
     file: &str,
     id: &str,
     vector: &str,
     opt: &FitOptions,
+    batch: usize,
 ) -> Result<FitAccumulator, LoadError> {
     super::parquet::guard(file, || {
         let reader = SerializedFileReader::new(bytes::Bytes::from(bytes)).map_err(|e| {
             LoadError::invalid(file, "parquet", format!("not a usable Parquet file: {e}"))
         })?;
-        stream_parquet(&reader, file, id, vector, opt)
+        stream_parquet(&reader, file, id, vector, opt, batch.max(1))
     })
 }
 
@@ -86,6 +87,7 @@ fn stream_parquet<R: FileReader>(
     id: &str,
     vector: &str,
     opt: &FitOptions,
+    batch: usize,
 ) -> Result<FitAccumulator, LoadError> {
     let schema = reader.metadata().file_metadata().schema_descr();
     let names: Vec<String> = schema
@@ -187,7 +189,7 @@ fn stream_parquet<R: FileReader>(
                 IdReader::Bytes(r) => {
                     id_bytes.clear();
                     let (n, v, _) = r
-                        .read_records(BATCH_ROWS, Some(&mut defs), None, &mut id_bytes)
+                        .read_records(batch, Some(&mut defs), None, &mut id_bytes)
                         .map_err(perr(at(row, id)))?;
                     for (k, b) in id_bytes.iter().enumerate() {
                         let s = std::str::from_utf8(b.data()).map_err(|_| {
@@ -200,7 +202,7 @@ fn stream_parquet<R: FileReader>(
                 IdReader::I32(r) => {
                     id_i32.clear();
                     let (n, v, _) = r
-                        .read_records(BATCH_ROWS, Some(&mut defs), None, &mut id_i32)
+                        .read_records(batch, Some(&mut defs), None, &mut id_i32)
                         .map_err(perr(at(row, id)))?;
                     ids.extend(id_i32.iter().map(i32::to_string));
                     (n, v)
@@ -208,7 +210,7 @@ fn stream_parquet<R: FileReader>(
                 IdReader::I64(r) => {
                     id_i64.clear();
                     let (n, v, _) = r
-                        .read_records(BATCH_ROWS, Some(&mut defs), None, &mut id_i64)
+                        .read_records(batch, Some(&mut defs), None, &mut id_i64)
                         .map_err(perr(at(row, id)))?;
                     ids.extend(id_i64.iter().map(i64::to_string));
                     (n, v)
