@@ -217,3 +217,30 @@ fn parquet_errors_name_file_row_and_column() {
         "{e}"
     );
 }
+
+#[test]
+fn zstd_lz4_and_gzip_tables_written_by_pyarrow_fit_like_the_snappy_one() {
+    // pandas 3.1.1 / pyarrow 26.0.1 `to_parquet(compression=...)`: same rows, other codecs
+    for opt in options() {
+        let snappy = parquet("occurrences.parquet", &opt, BATCH_ROWS);
+        for codec in ["zstd", "lz4", "gzip"] {
+            assert_eq!(
+                parquet(&format!("occurrences_{codec}.parquet"), &opt, BATCH_ROWS),
+                snappy,
+                "{codec}"
+            );
+        }
+    }
+    // and the row reader the project loader uses reads them too
+    for codec in ["zstd", "lz4", "gzip"] {
+        let c = treewright::model::project::read_parquet_columns(
+            &Path::new(DIR).join(format!("occurrences_{codec}.parquet")),
+            &["phrase_id"],
+            &["vector"],
+            &treewright::model::project::Limits::default(),
+            None,
+        )
+        .unwrap();
+        assert_eq!((c.rows, c.lists[0].0), (81, 4), "{codec}");
+    }
+}
