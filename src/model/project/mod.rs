@@ -15,6 +15,7 @@ mod manifest;
 mod npy;
 mod occurrences;
 mod parquet;
+mod quiet_panic;
 mod read;
 mod skos_tree;
 mod taxonomy_import;

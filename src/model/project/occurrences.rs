@@ -42,12 +42,12 @@ pub fn fit_parquet(
     opt: &FitOptions,
 ) -> Result<FitAccumulator, LoadError> {
     let file = path.display().to_string();
-    super::parquet::guard(&file, || {
+    super::quiet_panic::guard(&file, |at| {
         let f = std::fs::File::open(path).map_err(io_err(&file))?;
         let reader = SerializedFileReader::new(f).map_err(|e| {
             LoadError::invalid(&file, "parquet", format!("not a usable Parquet file: {e}"))
         })?;
-        stream_parquet(&reader, &file, id, vector, opt, BATCH_ROWS)
+        stream_parquet(&reader, &file, id, vector, opt, BATCH_ROWS, at)
     })
 }
 
@@ -60,11 +60,11 @@ pub fn fit_parquet_bytes(
     opt: &FitOptions,
     batch: usize,
 ) -> Result<FitAccumulator, LoadError> {
-    super::parquet::guard(file, || {
+    super::quiet_panic::guard(file, |at| {
         let reader = SerializedFileReader::new(bytes::Bytes::from(bytes)).map_err(|e| {
             LoadError::invalid(file, "parquet", format!("not a usable Parquet file: {e}"))
         })?;
-        stream_parquet(&reader, file, id, vector, opt, batch.max(1))
+        stream_parquet(&reader, file, id, vector, opt, batch.max(1), at)
     })
 }
 
@@ -88,6 +88,7 @@ fn stream_parquet<R: FileReader>(
     vector: &str,
     opt: &FitOptions,
     batch: usize,
+    progress: &super::quiet_panic::Progress,
 ) -> Result<FitAccumulator, LoadError> {
     let schema = reader.metadata().file_metadata().schema_descr();
     let names: Vec<String> = schema
@@ -160,6 +161,7 @@ fn stream_parquet<R: FileReader>(
         }
     };
     for g in 0..reader.num_row_groups() {
+        progress.field(format!("row group {g}"));
         let rg = reader
             .get_row_group(g)
             .map_err(perr(format!("row group {g}")))?;
@@ -181,6 +183,7 @@ fn stream_parquet<R: FileReader>(
             _ => unreachable!("physical type checked above"),
         };
         loop {
+            progress.row(row);
             // ids of the next batch
             defs.clear();
             ids.clear();
