@@ -320,8 +320,8 @@ impl FitAccumulator {
         let mut pooled = vec![0.0; d];
         let df_total: f64 = kept.iter().map(|&p| (count[p] - 1) as f64).sum();
         for &p in &kept {
-            for j in 0..d {
-                pooled[j] += self.m2[p * d + j];
+            for (v, m) in pooled.iter_mut().zip(&self.m2[p * d..(p + 1) * d]) {
+                *v += m;
             }
         }
         pooled.iter_mut().for_each(|v| *v /= df_total);
@@ -340,12 +340,12 @@ impl FitAccumulator {
         };
         for &p in &kept {
             let df = (count[p] - 1) as f64;
-            for j in 0..d {
+            for (j, pool) in pooled.iter().enumerate() {
                 let s2 = self.m2[p * d + j] / df;
                 out.means.push(self.mean[p * d + j]);
                 out.sample_variances.push(s2);
                 out.variances
-                    .push((opt.prior_df * pooled[j] + df * s2) / (opt.prior_df + df));
+                    .push((opt.prior_df * pool + df * s2) / (opt.prior_df + df));
             }
         }
         if opt.full {
