@@ -49,3 +49,18 @@ for spec in "10000 64 diag" "100000 64 diag" "5000 32 full"; do
   measure "full audit" $BIN audit "$dir" --format json --out "$WORK/audit.json"
   measure "build" $BIN build "$dir" --out "$WORK/tree.json" --report "$WORK/report.json"
 done
+
+# `treewright fit` streaming its input (needs numpy and pyarrow for the generator; skipped
+# without them): 1 M and 10 M occurrences × 64 d over 10 000 phrases.
+if python3 -c "import numpy, pyarrow" 2>/dev/null; then
+  echo "| **fit** (occurrences × 64 d, 10 000 phrases) | | |"
+  for rows in 1000000 10000000; do
+    python3 benches/fit/make_occurrences.py "$rows" 64 10000 "$WORK/occ-$rows"
+    measure "fit $rows Parquet, diagonal" $BIN fit "$WORK/occ-$rows/occ.parquet" --out "$WORK/fit"
+    rm -rf "$WORK/fit"
+    measure "fit $rows .npy + ids, diagonal" $BIN fit "$WORK/occ-$rows/occ.npy" --ids "$WORK/occ-$rows/occ_ids.json" --out "$WORK/fit"
+    rm -rf "$WORK/fit"
+    measure "fit $rows Parquet, full (Ledoit–Wolf)" $BIN fit "$WORK/occ-$rows/occ.parquet" --full --out "$WORK/fit"
+    rm -rf "$WORK/fit" "$WORK/occ-$rows"
+  done
+fi

@@ -83,6 +83,15 @@ fn parse_all(bytes: &[u8]) {
         &["mean", "var"],
         &Limits::default(),
     );
+    // the streaming occurrence reader of `fit`
+    let _ = treewright::model::project::fit_parquet_bytes(
+        bytes.to_vec(),
+        "occurrences.parquet",
+        "phrase_id",
+        "vector",
+        &treewright::model::fit::FitOptions::default(),
+        treewright::model::project::BATCH_ROWS,
+    );
 }
 
 #[test]
@@ -104,6 +113,8 @@ fn mutated_valid_inputs_never_panic() {
         VALID_TTL.as_bytes().to_vec(),
         std::fs::read("tests/data/interop/emb.parquet").unwrap(),
         std::fs::read("tests/data/interop/taxonomy.rdf").unwrap(),
+        std::fs::read("tests/data/interop/occurrences_row_groups.parquet").unwrap(),
+        std::fs::read("tests/data/interop/occurrences_zstd.parquet").unwrap(),
         MANIFEST.as_bytes().to_vec(),
         br#"[{"id": "a", "label": "a"}, {"label": "b c"}]"#.to_vec(),
         br#"{"root": "a", "parent": {"b": "a"}}"#.to_vec(),
@@ -327,6 +338,40 @@ fn mutated_parquet_tables_never_over_allocate() {
                     &["phrase_id", "label"],
                     &["mean", "var"],
                     &Limits::default(),
+                );
+            });
+            prop_assert!(big < BOUND, "largest allocation {} bytes", big);
+            Ok(())
+        })
+        .unwrap();
+}
+
+#[test]
+fn mutated_occurrence_tables_never_over_allocate_in_the_streaming_fit() {
+    let seed = std::fs::read("tests/data/interop/occurrences_row_groups.parquet").unwrap();
+    let strategy = (
+        proptest::collection::vec((any::<usize>(), any::<u8>()), 1..6),
+        any::<usize>(),
+        any::<bool>(),
+    );
+    runner()
+        .run(&strategy, |(flips, cut, truncate)| {
+            let mut b = seed.clone();
+            for (pos, val) in flips {
+                let i = pos % b.len();
+                b[i] = val;
+            }
+            if truncate {
+                b.truncate(cut % (b.len() + 1));
+            }
+            let big = largest_request(|| {
+                let _ = treewright::model::project::fit_parquet_bytes(
+                    b,
+                    "occurrences.parquet",
+                    "phrase_id",
+                    "vector",
+                    &treewright::model::fit::FitOptions::default(),
+                    5,
                 );
             });
             prop_assert!(big < BOUND, "largest allocation {} bytes", big);

@@ -74,3 +74,89 @@ fn import_taxonomy_sets_the_tree_and_keeps_the_previous_manifest() {
         "status bar reports the import"
     );
 }
+
+#[test]
+fn import_report_dialog_lists_what_matched_nothing_with_counts_and_copies_it() {
+    let t = tempfile::tempdir().unwrap();
+    let dir = t.path().join("fernhollow");
+    write_demo(&dir).unwrap();
+    let mut h = open(&dir);
+    let (ids, n) = {
+        let p = &h.state().doc.project.phrases;
+        let ids: Vec<String> = (0..3).map(|i| p.id(i).to_string()).collect();
+        (ids, p.len())
+    };
+    // three concepts matched by notation, one with two broader concepts, one matching nothing
+    let ttl = format!(
+        "@prefix skos: <http://www.w3.org/2004/02/skos/core#> .
+@prefix ex: <http://example.org/fh/> .
+ex:c0 a skos:Concept ; skos:notation \"{}\" .
+ex:c1 a skos:Concept ; skos:notation \"{}\" ; skos:broader ex:c0 .
+ex:c2 a skos:Concept ; skos:notation \"{}\" ; skos:broader ex:c0, ex:c1 .
+ex:gnomes a skos:Concept ; skos:prefLabel \"Garden gnome statues\"@en ; skos:broader ex:c0 .
+",
+        ids[0], ids[1], ids[2]
+    );
+    let src = t.path().join("hand-made.ttl");
+    std::fs::write(&src, ttl).unwrap();
+    h.get_by_label("File").click();
+    h.run();
+    h.state_mut().apply(Action::ImportTaxonomy(src));
+    h.run();
+
+    assert!(h.query_by_label("Taxonomy import report").is_some());
+    assert!(
+        h.query_by_label_contains("3 of 4 concepts matched a phrase")
+            .is_some()
+    );
+    assert!(
+        h.query_by_label("Concepts that match no phrase (1)")
+            .is_some()
+    );
+    let unmatched = format!("Phrases that match no concept ({})", n - 3);
+    assert!(h.query_by_label(&unmatched).is_some(), "{unmatched}");
+    assert!(
+        h.query_by_label("Concepts with several broader concepts (1)")
+            .is_some()
+    );
+    assert!(
+        h.query_by_label_contains("Garden gnome statues").is_some(),
+        "the unmatched concept is listed"
+    );
+
+    // copy one list, then the whole report: the text goes to the clipboard
+    let copied = |h: &Harness<'static, App>| -> Vec<String> {
+        h.output()
+            .platform_output
+            .commands
+            .iter()
+            .filter_map(|c| match c {
+                egui::OutputCommand::CopyText(s) => Some(s.clone()),
+                _ => None,
+            })
+            .collect()
+    };
+    h.get_by_label("Copy: Concepts that match no phrase")
+        .click();
+    h.step();
+    let got = copied(&h);
+    assert!(
+        got.iter()
+            .any(|s| s.contains("Garden gnome statues") && !s.contains("Phrases that")),
+        "{got:?}"
+    );
+    h.get_by_label("Copy report").click();
+    h.step();
+    let got = copied(&h);
+    assert!(
+        got.iter()
+            .any(|s| s.contains("Concepts that match no phrase (1):")
+                && s.contains(&unmatched)
+                && s.contains("<http://example.org/fh/c2>: kept <http://example.org/fh/c0>")),
+        "{got:?}"
+    );
+
+    h.get_by_label("Close").click();
+    h.run();
+    assert!(h.query_by_label("Taxonomy import report").is_none());
+}

@@ -7,22 +7,55 @@ Run once by a maintainer (not by CI), from the repository root, in a virtual env
 
 It prints the library versions and the reference values the Rust tests record
 (NumPy means/variances, scikit-learn's LedoitWolf shrinkage and covariance).
+
+    /tmp/interop/bin/python benches/interop/make.py codecs
+
+writes only the Parquet codec fixtures (occurrences_{zstd,lz4,gzip}.parquet, and
+occurrences_row_groups.parquet: many small row groups and pages) from the committed
+occurrences.npy and occurrences_ids.json, leaving every other fixture as it is (needs
+numpy, pandas and pyarrow only).
 Every file is small and deterministic (fixed seed). Data: the invented Fernhollow Garden
 Supply garden centre.
 """
 
 import json
 import os
+import sys
 
 import numpy as np
 import pandas as pd
 import pyarrow
-import rdflib
-import sklearn
-from rdflib.namespace import RDF, SKOS
-from sklearn.covariance import LedoitWolf
 
 OUT = os.path.join("tests", "data", "interop")
+
+
+def codecs():
+    """Occurrence tables as pandas/pyarrow write them with each compression codec."""
+    import pyarrow.parquet as pq
+
+    vecs = np.load(os.path.join(OUT, "occurrences.npy"))
+    with open(os.path.join(OUT, "occurrences_ids.json")) as f:
+        ids = json.load(f)
+    df = pd.DataFrame({"phrase_id": ids, "vector": [v.astype(np.float32) for v in vecs]})
+    for codec in ["zstd", "lz4", "gzip"]:
+        df.to_parquet(os.path.join(OUT, f"occurrences_{codec}.parquet"), index=False,
+                      compression=codec)
+    # several row groups and data pages, so the streaming reader crosses their boundaries
+    pq.write_table(pyarrow.Table.from_pandas(df, preserve_index=False),
+                   os.path.join(OUT, "occurrences_row_groups.parquet"), row_group_size=16,
+                   data_page_size=128, compression="snappy")
+    print("numpy", np.__version__, "pandas", pd.__version__, "pyarrow", pyarrow.__version__)
+
+
+if sys.argv[1:] == ["codecs"]:
+    codecs()
+    sys.exit(0)
+
+import rdflib  # noqa: E402  (the full run only)
+import sklearn  # noqa: E402
+from rdflib.namespace import RDF, SKOS  # noqa: E402
+from sklearn.covariance import LedoitWolf  # noqa: E402
+
 os.makedirs(OUT, exist_ok=True)
 rng = np.random.default_rng(16)
 

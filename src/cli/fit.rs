@@ -6,11 +6,10 @@ use std::path::PathBuf;
 use clap::Args;
 
 use super::CliError;
-use crate::model::fit::{FitOptions, fit};
+use crate::model::fit::FitOptions;
 use crate::model::phrase::PhraseTable;
 use crate::model::project::{
-    DEFAULT_ID_COLUMN, Limits, ProjectWriter, is_parquet_path, parse_npy2, read_json,
-    read_parquet_columns,
+    DEFAULT_ID_COLUMN, ProjectWriter, fit_npy, fit_parquet, is_parquet_path,
 };
 
 /// Arguments of `fit`.
@@ -48,42 +47,26 @@ pub struct FitArgs {
 /// Fit and write the project.
 pub fn run(args: &FitArgs) -> Result<(), CliError> {
     let file = args.occurrences.display().to_string();
-    let limits = Limits::default();
-    let (ids, data, d) = if is_parquet_path(&args.occurrences) {
-        let c = read_parquet_columns(
-            &args.occurrences,
-            &[&args.id],
-            &[&args.vector],
-            &limits,
-            Some(usize::MAX),
-        )?;
-        let (d, data) = c.lists.into_iter().next().unwrap_or_default();
-        (c.strings.into_iter().next().unwrap_or_default(), data, d)
+    let opt = FitOptions {
+        min_count: args.min_count,
+        prior_df: args.prior_df,
+        full: args.full,
+    };
+    // streamed: one batch of rows in memory at a time (model::project::occurrences)
+    let acc = if is_parquet_path(&args.occurrences) {
+        fit_parquet(&args.occurrences, &args.id, &args.vector, &opt)?
     } else {
         let Some(idp) = &args.ids else {
             return Err(CliError::bad_input(format!(
                 "{file}: an .npy matrix needs --ids IDS.json (a JSON list of phrase ids, one per row)"
             )));
         };
-        let bytes = std::fs::read(&args.occurrences)
-            .map_err(|e| CliError::bad_input(format!("{file}: cannot read: {e}")))?;
-        let (n, d, data) = parse_npy2(&bytes, &file)?;
-        let ids: Vec<String> = read_json(idp)?;
-        if ids.len() != n {
-            return Err(CliError::bad_input(format!(
-                "{}: {} ids for the {n} rows of {file}",
-                idp.display(),
-                ids.len()
-            )));
-        }
-        (ids, data, d)
+        fit_npy(&args.occurrences, idp, &opt)?
     };
-    let opt = FitOptions {
-        min_count: args.min_count,
-        prior_df: args.prior_df,
-        full: args.full,
-    };
-    let f = fit(&ids, &data, d, &opt).map_err(|e| CliError::bad_input(format!("{file}: {e}")))?;
+    let (d, rows) = (acc.dim(), acc.rows());
+    let f = acc
+        .finish()
+        .map_err(|e| CliError::bad_input(format!("{file}: {e}")))?;
     let id_refs: Vec<&str> = f.ids.iter().map(String::as_str).collect();
     let phrases = PhraseTable::from_ids(&id_refs).map_err(CliError::bad_input)?;
     let means: Vec<f32> = f.means.iter().map(|&v| v as f32).collect();
@@ -106,7 +89,7 @@ pub fn run(args: &FitArgs) -> Result<(), CliError> {
     println!(
         "fitted {} phrases (dimension {d}) from {} occurrences into {out}",
         f.ids.len(),
-        ids.len()
+        rows
     );
     println!(
         "{}",

@@ -153,6 +153,14 @@ impl App {
                             r.unmatched_phrases.len(),
                             r.several_broader.len()
                         ));
+                        if self.dialog.is_none() {
+                            self.dialog = Some(Dialog::TaxonomyReport(Box::new(
+                                dialogs::taxonomy_report::TaxonomyReportDialog::new(
+                                    file.display().to_string(),
+                                    r,
+                                ),
+                            )));
+                        }
                     }
                     Err(e) => self.fail(e),
                 }

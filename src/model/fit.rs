@@ -92,8 +92,7 @@ pub struct Fit {
 }
 
 /// Fit one Gaussian per phrase from `data` (`ids.len() × d`, row-major; row k belongs to
-/// phrase `ids[k]`). Two passes over the rows: means and variances (Welford's update), then,
-/// for `full`, the centred co-moments.
+/// phrase `ids[k]`): the rows fed in order through a [`FitAccumulator`].
 pub fn fit(ids: &[String], data: &[f64], d: usize, opt: &FitOptions) -> Result<Fit, FitError> {
     if d == 0 || data.len() != ids.len() * d {
         return Err(FitError::Shape(format!(
@@ -101,6 +100,19 @@ pub fn fit(ids: &[String], data: &[f64], d: usize, opt: &FitOptions) -> Result<F
             data.len(),
             ids.len()
         )));
+    }
+    let mut acc = FitAccumulator::new(d, opt)?;
+    for (id, x) in ids.iter().zip(data.chunks_exact(d)) {
+        let p = acc.phrase(id);
+        acc.push(p, x)?;
+    }
+    acc.finish()
+}
+
+/// Check the options for dimension `d`.
+fn check_options(d: usize, opt: &FitOptions) -> Result<(), FitError> {
+    if d == 0 {
+        return Err(FitError::Shape("dimension 0".into()));
     }
     if opt.min_count < 2 {
         return Err(FitError::Option("min-count must be at least 2".into()));
@@ -115,120 +127,281 @@ pub fn fit(ids: &[String], data: &[f64], d: usize, opt: &FitOptions) -> Result<F
             "full covariance is fitted for dimension ≤ {MAX_FULL_DIM}, not {d}"
         )));
     }
-    // pass 1: Welford per phrase
-    let mut index: HashMap<&str, usize> = HashMap::new();
-    let mut order: Vec<&str> = Vec::new();
-    let mut count: Vec<usize> = Vec::new();
-    let mut mean: Vec<f64> = Vec::new();
-    let mut m2: Vec<f64> = Vec::new();
-    let mut row_of = Vec::with_capacity(ids.len());
-    for (k, id) in ids.iter().enumerate() {
-        let p = *index.entry(id.as_str()).or_insert_with(|| {
-            order.push(id.as_str());
-            count.push(0);
-            mean.extend(std::iter::repeat_n(0.0, d));
-            m2.extend(std::iter::repeat_n(0.0, d));
-            order.len() - 1
-        });
-        row_of.push(p);
-        count[p] += 1;
-        let n = count[p] as f64;
-        let x = &data[k * d..(k + 1) * d];
-        for (j, &v) in x.iter().enumerate() {
-            if !v.is_finite() {
-                return Err(FitError::NonFinite {
-                    row: k,
-                    id: id.clone(),
-                    col: j,
-                    value: v,
-                });
-            }
-            let m = &mut mean[p * d + j];
+    Ok(())
+}
+
+/// One pass over occurrence rows in any number of chunks, with memory proportional to the
+/// number of phrases (not of rows): per phrase the count, the running mean and the running
+/// sum of squared deviations per dimension (Welford 1962, "Note on a method for calculating
+/// corrected sums of squares and products", Technometrics 4(3); the update Chan, Golub &
+/// LeVeque 1979 analyse), and for the full covariance the sums `Σy`, `Σyyᵀ`, `Σ‖y‖²y`,
+/// `Σ‖y‖⁴` of the rows shifted by the phrase's first row `y = x − x₁` (the shifted-data
+/// algorithm of Chan, Golub & LeVeque 1983, "Algorithms for computing the sample variance:
+/// analysis and recommendations", Amer. Statist. 37(3), which keeps the cancellation small),
+/// from which the centred co-moments and `Σ‖x − x̄‖⁴` Ledoit–Wolf needs follow exactly.
+#[derive(Debug, Clone)]
+pub struct FitAccumulator {
+    d: usize,
+    opt: FitOptions,
+    index: HashMap<Box<str>, usize>,
+    names: Vec<Box<str>>,
+    count: Vec<usize>,
+    mean: Vec<f64>,
+    m2: Vec<f64>,
+    /// Full covariance only: first row, `Σy`, `Σyyᵀ` (upper triangle used), `Σ‖y‖²y`, `Σ‖y‖⁴`.
+    shift: Vec<f64>,
+    s1: Vec<f64>,
+    s2: Vec<f64>,
+    t: Vec<f64>,
+    u: Vec<f64>,
+    /// Full covariance only: up to [`PENDING_ROWS`] shifted rows per phrase not yet added to
+    /// the sums, so that a phrase's `d × d` sum is visited once per batch of its rows rather
+    /// than once per row (the rows are added in their order: the same sums, fewer cache misses).
+    pending: Vec<f64>,
+    n_pending: Vec<usize>,
+    rows: usize,
+}
+
+/// Shifted rows buffered per phrase before they are added to its full-covariance sums.
+const PENDING_ROWS: usize = 16;
+
+impl FitAccumulator {
+    /// An empty accumulator for rows of dimension `d` (the options are checked here).
+    pub fn new(d: usize, opt: &FitOptions) -> Result<Self, FitError> {
+        check_options(d, opt)?;
+        Ok(FitAccumulator {
+            d,
+            opt: *opt,
+            index: HashMap::new(),
+            names: Vec::new(),
+            count: Vec::new(),
+            mean: Vec::new(),
+            m2: Vec::new(),
+            shift: Vec::new(),
+            s1: Vec::new(),
+            s2: Vec::new(),
+            t: Vec::new(),
+            u: Vec::new(),
+            pending: Vec::new(),
+            n_pending: Vec::new(),
+            rows: 0,
+        })
+    }
+
+    /// The dimension.
+    pub fn dim(&self) -> usize {
+        self.d
+    }
+
+    /// Rows pushed so far.
+    pub fn rows(&self) -> usize {
+        self.rows
+    }
+
+    /// The index of phrase `id` (a new phrase gets the next index: order of first sight).
+    pub fn phrase(&mut self, id: &str) -> usize {
+        if let Some(&p) = self.index.get(id) {
+            return p;
+        }
+        let p = self.names.len();
+        let d = self.d;
+        self.index.insert(id.into(), p);
+        self.names.push(id.into());
+        self.count.push(0);
+        self.mean.resize(self.mean.len() + d, 0.0);
+        self.m2.resize(self.m2.len() + d, 0.0);
+        if self.opt.full {
+            self.shift.resize(self.shift.len() + d, 0.0);
+            self.s1.resize(self.s1.len() + d, 0.0);
+            self.s2.resize(self.s2.len() + d * d, 0.0);
+            self.t.resize(self.t.len() + d, 0.0);
+            self.u.push(0.0);
+            self.pending
+                .resize(self.pending.len() + PENDING_ROWS * d, 0.0);
+            self.n_pending.push(0);
+        }
+        p
+    }
+
+    /// Add one occurrence row `x` (length `d`) of phrase `p` (from [`Self::phrase`]).
+    pub fn push(&mut self, p: usize, x: &[f64]) -> Result<(), FitError> {
+        let d = self.d;
+        if x.len() != d {
+            return Err(FitError::Shape(format!(
+                "occurrence row {} has {} values, expected {d}",
+                self.rows,
+                x.len()
+            )));
+        }
+        if let Some(j) = x.iter().position(|v| !v.is_finite()) {
+            return Err(FitError::NonFinite {
+                row: self.rows,
+                id: self.names[p].to_string(),
+                col: j,
+                value: x[j],
+            });
+        }
+        self.count[p] += 1;
+        let n = self.count[p] as f64;
+        let mean = &mut self.mean[p * d..(p + 1) * d];
+        let m2 = &mut self.m2[p * d..(p + 1) * d];
+        for ((m, s), &v) in mean.iter_mut().zip(m2.iter_mut()).zip(x) {
             let delta = v - *m;
             *m += delta / n;
-            m2[p * d + j] += delta * (v - *m);
+            *s += delta * (v - *m);
         }
-    }
-    let kept: Vec<usize> = (0..order.len())
-        .filter(|&p| count[p] >= opt.min_count)
-        .collect();
-    let left_out = (0..order.len())
-        .filter(|&p| count[p] < opt.min_count)
-        .map(|p| (order[p].to_string(), count[p]))
-        .collect();
-    if kept.is_empty() {
-        return Err(FitError::Empty(opt.min_count));
-    }
-    // pooled variance over the kept phrases
-    let mut pooled = vec![0.0; d];
-    let df_total: f64 = kept.iter().map(|&p| (count[p] - 1) as f64).sum();
-    for &p in &kept {
-        for j in 0..d {
-            pooled[j] += m2[p * d + j];
-        }
-    }
-    pooled.iter_mut().for_each(|v| *v /= df_total);
-    let n_out = kept.len();
-    let mut out = Fit {
-        dim: d,
-        ids: kept.iter().map(|&p| order[p].to_string()).collect(),
-        counts: kept.iter().map(|&p| count[p]).collect(),
-        means: Vec::with_capacity(n_out * d),
-        sample_variances: Vec::with_capacity(n_out * d),
-        pooled: pooled.clone(),
-        variances: Vec::with_capacity(n_out * d),
-        covariances: None,
-        shrinkage: None,
-        left_out,
-    };
-    for &p in &kept {
-        let df = (count[p] - 1) as f64;
-        for j in 0..d {
-            let s2 = m2[p * d + j] / df;
-            out.means.push(mean[p * d + j]);
-            out.sample_variances.push(s2);
-            out.variances
-                .push((opt.prior_df * pooled[j] + df * s2) / (opt.prior_df + df));
-        }
-    }
-    if opt.full {
-        // pass 2: centred co-moments S = Σ (x − m)(x − m)ᵀ and Σ ‖x − m‖⁴ per kept phrase
-        let slot: HashMap<usize, usize> = kept.iter().enumerate().map(|(s, &p)| (p, s)).collect();
-        let mut s = vec![0.0; n_out * d * d];
-        let mut q = vec![0.0; n_out];
-        let mut c = vec![0.0; d];
-        for (k, &p) in row_of.iter().enumerate() {
-            let Some(&i) = slot.get(&p) else { continue };
-            let x = &data[k * d..(k + 1) * d];
-            for j in 0..d {
-                c[j] = x[j] - mean[p * d + j];
+        if self.opt.full {
+            let shift = &mut self.shift[p * d..(p + 1) * d];
+            if self.count[p] == 1 {
+                shift.copy_from_slice(x);
             }
-            let sq: f64 = c.iter().map(|v| v * v).sum();
-            q[i] += sq * sq;
-            let m = &mut s[i * d * d..(i + 1) * d * d];
-            for a in 0..d {
-                for b in 0..d {
-                    m[a * d + b] += c[a] * c[b];
+            let k = self.n_pending[p];
+            let slot = &mut self.pending[(p * PENDING_ROWS + k) * d..][..d];
+            for ((y, &xj), &kj) in slot.iter_mut().zip(x).zip(shift.iter()) {
+                *y = xj - kj;
+            }
+            self.n_pending[p] = k + 1;
+            if k + 1 == PENDING_ROWS {
+                self.flush(p);
+            }
+        }
+        self.rows += 1;
+        Ok(())
+    }
+
+    /// Add phrase `p`'s pending shifted rows to its sums, in row order.
+    fn flush(&mut self, p: usize) {
+        let d = self.d;
+        let k = std::mem::take(&mut self.n_pending[p]);
+        let rows = &self.pending[p * PENDING_ROWS * d..][..k * d];
+        let s1 = &mut self.s1[p * d..(p + 1) * d];
+        let t = &mut self.t[p * d..(p + 1) * d];
+        for y in rows.chunks_exact(d) {
+            let sq: f64 = y.iter().map(|v| v * v).sum();
+            for j in 0..d {
+                s1[j] += y[j];
+                t[j] += sq * y[j];
+            }
+            self.u[p] += sq * sq;
+        }
+        let s2 = &mut self.s2[p * d * d..(p + 1) * d * d];
+        for a in 0..d {
+            let row = &mut s2[a * d + a..(a + 1) * d];
+            for y in rows.chunks_exact(d) {
+                let ya = y[a];
+                for (r, &yb) in row.iter_mut().zip(&y[a..]) {
+                    *r += ya * yb;
                 }
             }
         }
-        let mut covs = Vec::with_capacity(n_out * d * d);
-        let mut shr = Vec::with_capacity(n_out);
-        out.variances.clear();
-        for i in 0..n_out {
-            let n = out.counts[i] as f64;
-            let m = &s[i * d * d..(i + 1) * d * d];
-            let (cov, k) = ledoit_wolf(m, q[i], n, d);
-            for a in 0..d {
-                out.variances.push(cov[a * d + a]);
-            }
-            covs.extend(cov);
-            shr.push(k);
-        }
-        out.covariances = Some(covs);
-        out.shrinkage = Some(shr);
     }
-    Ok(out)
+
+    /// The fitted Gaussians.
+    pub fn finish(mut self) -> Result<Fit, FitError> {
+        if self.opt.full {
+            for p in 0..self.names.len() {
+                self.flush(p);
+            }
+        }
+        let d = self.d;
+        let opt = self.opt;
+        let count = &self.count;
+        let kept: Vec<usize> = (0..self.names.len())
+            .filter(|&p| count[p] >= opt.min_count)
+            .collect();
+        let left_out = (0..self.names.len())
+            .filter(|&p| count[p] < opt.min_count)
+            .map(|p| (self.names[p].to_string(), count[p]))
+            .collect();
+        if kept.is_empty() {
+            return Err(FitError::Empty(opt.min_count));
+        }
+        // pooled variance over the kept phrases
+        let mut pooled = vec![0.0; d];
+        let df_total: f64 = kept.iter().map(|&p| (count[p] - 1) as f64).sum();
+        for &p in &kept {
+            for (v, m) in pooled.iter_mut().zip(&self.m2[p * d..(p + 1) * d]) {
+                *v += m;
+            }
+        }
+        pooled.iter_mut().for_each(|v| *v /= df_total);
+        let n_out = kept.len();
+        let mut out = Fit {
+            dim: d,
+            ids: kept.iter().map(|&p| self.names[p].to_string()).collect(),
+            counts: kept.iter().map(|&p| count[p]).collect(),
+            means: Vec::with_capacity(n_out * d),
+            sample_variances: Vec::with_capacity(n_out * d),
+            pooled: pooled.clone(),
+            variances: Vec::with_capacity(n_out * d),
+            covariances: None,
+            shrinkage: None,
+            left_out,
+        };
+        for &p in &kept {
+            let df = (count[p] - 1) as f64;
+            for (j, pool) in pooled.iter().enumerate() {
+                let s2 = self.m2[p * d + j] / df;
+                out.means.push(self.mean[p * d + j]);
+                out.sample_variances.push(s2);
+                out.variances
+                    .push((opt.prior_df * pool + df * s2) / (opt.prior_df + df));
+            }
+        }
+        if opt.full {
+            let mut covs = Vec::with_capacity(n_out * d * d);
+            let mut shr = Vec::with_capacity(n_out);
+            out.variances.clear();
+            for &p in &kept {
+                let n = count[p] as f64;
+                let (s, q) = self.centred(p);
+                let (cov, k) = ledoit_wolf(&s, q, n, d);
+                for a in 0..d {
+                    out.variances.push(cov[a * d + a]);
+                }
+                covs.extend(cov);
+                shr.push(k);
+            }
+            out.covariances = Some(covs);
+            out.shrinkage = Some(shr);
+        }
+        Ok(out)
+    }
+
+    /// Phrase `p`'s centred co-moment matrix `S = Σ(x − x̄)(x − x̄)ᵀ` and `q = Σ‖x − x̄‖⁴`
+    /// from the shifted sums: with `μ = Σy / n` (so `x̄ = x₁ + μ`) and `k = ‖μ‖²`,
+    /// `S = Σyyᵀ − nμμᵀ` and, expanding `‖y − μ‖⁴`,
+    /// `q = Σ‖y‖⁴ − 4μᵀΣ‖y‖²y + 4μᵀ(Σyyᵀ)μ + 2k·tr Σyyᵀ − 3nk²` (algebra, no source).
+    fn centred(&self, p: usize) -> (Vec<f64>, f64) {
+        let d = self.d;
+        let n = self.count[p] as f64;
+        let mu: Vec<f64> = self.s1[p * d..(p + 1) * d].iter().map(|v| v / n).collect();
+        let raw = &self.s2[p * d * d..(p + 1) * d * d];
+        let mut full = vec![0.0; d * d];
+        for a in 0..d {
+            for b in a..d {
+                full[a * d + b] = raw[a * d + b];
+                full[b * d + a] = raw[a * d + b];
+            }
+        }
+        let k: f64 = mu.iter().map(|v| v * v).sum();
+        let tr: f64 = (0..d).map(|a| full[a * d + a]).sum();
+        let mut quad = 0.0;
+        for a in 0..d {
+            let row: f64 = (0..d).map(|b| full[a * d + b] * mu[b]).sum();
+            quad += mu[a] * row;
+        }
+        let mt: f64 = mu
+            .iter()
+            .zip(&self.t[p * d..(p + 1) * d])
+            .map(|(m, t)| m * t)
+            .sum();
+        let q = self.u[p] - 4.0 * mt + 4.0 * quad + 2.0 * k * tr - 3.0 * n * k * k;
+        let s = (0..d * d)
+            .map(|i| full[i] - n * mu[i / d] * mu[i % d])
+            .collect();
+        (s, q)
+    }
 }
 
 /// Ledoit–Wolf from the centred co-moment matrix `s` (d × d), `q = Σ‖x − m‖⁴` and the count

@@ -16,6 +16,7 @@ pub mod rename;
 pub mod review;
 pub mod session;
 pub mod signoff;
+pub mod taxonomy_report;
 
 /// What a dialog returns each frame.
 #[derive(Debug, Default)]
@@ -70,6 +71,8 @@ pub enum Dialog {
     Stale(Vec<String>),
     /// Merge with the override file someone else saved.
     Merge(Box<merge::MergeDialog>),
+    /// What matched after File ▸ Import taxonomy….
+    TaxonomyReport(Box<taxonomy_report::TaxonomyReportDialog>),
 }
 
 /// Make the dialog for a request (`None` when it does not apply, e.g. no tree).
@@ -134,6 +137,7 @@ impl Dialog {
             Dialog::Recover(r) => session::recover(ctx, r),
             Dialog::Stale(list) => session::stale(ctx, list),
             Dialog::Merge(d) => d.ui(ctx, view),
+            Dialog::TaxonomyReport(d) => d.ui(ctx),
         }
     }
 }

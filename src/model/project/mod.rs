@@ -13,7 +13,9 @@ mod embeddings_npz;
 mod load;
 mod manifest;
 mod npy;
+mod occurrences;
 mod parquet;
+mod quiet_panic;
 mod read;
 mod skos_tree;
 mod taxonomy_import;
@@ -27,6 +29,7 @@ pub use manifest::{
     EmbeddingsRef, FORMAT_NAME, FORMAT_VERSION, Limits, MANIFEST_NAME, Manifest, Scale,
 };
 pub use npy::{NpyValues, parse_npy2, parse_npy2_raw, parse_npy3};
+pub use occurrences::{BATCH_ROWS, fit_npy, fit_parquet, fit_parquet_bytes};
 pub use parquet::{
     DEFAULT_ID_COLUMN, DEFAULT_LABEL_COLUMN, ParquetColumns, is_parquet_path,
     parse_parquet_columns, read_parquet_columns,

@@ -13,6 +13,8 @@ use parquet::record::{Field, Row};
 
 use super::LoadError;
 use super::manifest::Limits;
+use super::quiet_panic::Progress;
+use super::quiet_panic::guard;
 use super::read::open_limited;
 use crate::model::phrase::PhraseRecord;
 
@@ -58,26 +60,9 @@ pub fn read_parquet_columns(
     max_rows: Option<usize>,
 ) -> Result<ParquetColumns, LoadError> {
     let file = path.display().to_string();
-    guard(&file, || {
+    guard(&file, |at| {
         let reader = open(path, limits)?;
-        columns_from(&reader, &file, strings, lists, limits, max_rows)
-    })
-}
-
-/// Run a Parquet read, turning a panic inside the `parquet` crate (it asserts on some
-/// malformed metadata, found by tests/fuzz_loaders.rs) into a load error naming the file.
-fn guard<T>(file: &str, f: impl FnOnce() -> Result<T, LoadError>) -> Result<T, LoadError> {
-    std::panic::catch_unwind(std::panic::AssertUnwindSafe(f)).unwrap_or_else(|p| {
-        let why = p
-            .downcast_ref::<&str>()
-            .map(|s| s.to_string())
-            .or_else(|| p.downcast_ref::<String>().cloned())
-            .unwrap_or_else(|| "malformed metadata".into());
-        Err(LoadError::invalid(
-            file,
-            "parquet",
-            format!("not a usable Parquet file: {why}"),
-        ))
+        columns_from(&reader, &file, strings, lists, limits, max_rows, at)
     })
 }
 
@@ -89,11 +74,11 @@ pub fn parse_parquet_columns(
     lists: &[&str],
     limits: &Limits,
 ) -> Result<ParquetColumns, LoadError> {
-    guard(file, || {
+    guard(file, |at| {
         let reader = SerializedFileReader::new(bytes::Bytes::from(bytes)).map_err(|e| {
             LoadError::invalid(file, "parquet", format!("not a usable Parquet file: {e}"))
         })?;
-        columns_from(&reader, file, strings, lists, limits, None)
+        columns_from(&reader, file, strings, lists, limits, None, at)
     })
 }
 
@@ -104,6 +89,7 @@ fn columns_from<R: FileReader>(
     lists: &[&str],
     limits: &Limits,
     max_rows: Option<usize>,
+    at: &Progress,
 ) -> Result<ParquetColumns, LoadError> {
     let max_rows = max_rows.unwrap_or(limits.max_phrases);
     let declared = reader.metadata().file_metadata().num_rows();
@@ -137,6 +123,7 @@ fn columns_from<R: FileReader>(
         strings: vec![Vec::new(); strings.len()],
         lists: vec![(0, Vec::new()); lists.len()],
     };
+    at.row(0);
     let rows = reader
         .get_row_iter(None)
         .map_err(|e| LoadError::invalid(file, "parquet", e.to_string()))?;
@@ -215,6 +202,8 @@ fn columns_from<R: FileReader>(
             }
         }
         out.rows += 1;
+        // a panic while decoding the next row names it
+        at.row(r + 1);
     }
     Ok(out)
 }
