@@ -111,18 +111,24 @@ pub fn run(args: &VerifyArgs) -> Result<(), CliError> {
     let sig = signature_check(&ws, args.allow_unsigned)?;
     let reverted = crate::model::history::reverted_signoff_lines(&ws.layer.edits);
     if args.json {
-        let mut value = serde_json::to_value(&v).map_err(CliError::bad_input)?;
-        if let Some(obj) = value.as_object_mut() {
-            if !reverted.is_empty() {
-                obj.insert("reverted_signoffs".into(), reverted.clone().into());
-            }
-            if let Some(line) = sig.line() {
-                obj.insert("signature".into(), line.into());
-            }
+        // the verification's own fields first, in their order; the new ones only when set
+        #[derive(serde::Serialize)]
+        struct Out<'a> {
+            #[serde(flatten)]
+            v: &'a Verification,
+            #[serde(skip_serializing_if = "Vec::is_empty")]
+            reverted_signoffs: Vec<String>,
+            #[serde(skip_serializing_if = "Option::is_none")]
+            signature: Option<String>,
         }
+        let out = Out {
+            v: &v,
+            reverted_signoffs: reverted.clone(),
+            signature: sig.line(),
+        };
         println!(
             "{}",
-            serde_json::to_string_pretty(&value).map_err(CliError::bad_input)?
+            serde_json::to_string_pretty(&out).map_err(CliError::bad_input)?
         );
     } else {
         print!("{}", render(&v));

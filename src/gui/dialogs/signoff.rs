@@ -74,23 +74,25 @@ impl SignoffDialog {
                         .hint_text("note for the record (optional)"),
                 );
                 ui.end_row();
-                ui.label("Key file:");
+                let label = ui.label("Key file:");
                 ui.add(
                     egui::TextEdit::singleline(&mut self.key_file)
                         .hint_text("~/.ssh/id_ed25519 (optional: signs the sign-off)"),
-                );
+                )
+                .labelled_by(label.id);
                 ui.end_row();
                 let path = expand_home(self.key_file.trim());
                 if path
                     .as_deref()
                     .is_some_and(crate::model::sshsig::key_is_encrypted)
                 {
-                    ui.label("Passphrase:");
+                    let label = ui.label("Passphrase:");
                     ui.add(
                         egui::TextEdit::singleline(&mut self.passphrase)
                             .password(true)
                             .hint_text("the key's passphrase (not stored)"),
-                    );
+                    )
+                    .labelled_by(label.id);
                     ui.end_row();
                 }
             });
