@@ -287,8 +287,16 @@ fn edit_apply_signoff_verify_export() {
         "{csv}"
     );
 
-    // undo drops the last edit (the second sign-off): verify fails again
+    // undo of the last edit, the second sign-off, needs a reason (issue 23); with one it
+    // appends a revert: verify fails again
     let o = tw(&["undo", p]);
+    assert_eq!(code(&o), 2, "{}", text(&o));
+    assert!(
+        text(&o).contains("reverting it needs a reason"),
+        "{}",
+        text(&o)
+    );
+    let o = tw(&["undo", p, "--reason", "signed too early"]);
     assert_eq!(code(&o), 0, "{}", text(&o));
     assert!(text(&o).contains("signoff by rowan"));
     assert_eq!(code(&tw(&["verify", p])), 1);
@@ -339,7 +347,7 @@ fn corrupt_or_changed_override_file_is_an_error() {
     let p = dir.to_str().unwrap();
     std::fs::write(
         dir.join("overrides.json"),
-        "{\"format\": \"treewright-overrides\", \"version\": 2, \"edits\": []}",
+        "{\"format\": \"treewright-overrides\", \"version\": 3, \"edits\": []}",
     )
     .unwrap();
     let o = tw(&["verify", p]);

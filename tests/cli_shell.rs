@@ -228,6 +228,15 @@ fn every_subcommand_fails_as_the_readme_table_says() {
         code: 2,
         stdout_empty: true,
     });
+    // issue 23: the history verbs (a missing project is bad input)
+    for verb in ["history", "redo"] {
+        rows.push(Failure {
+            verb,
+            args: s(&[verb, &missing]),
+            code: 2,
+            stdout_empty: true,
+        });
+    }
     // a file where the folder should be
     let file = tmp.path().join("a-file");
     std::fs::write(&file, "x").unwrap();

@@ -113,6 +113,7 @@ fn doc_records_the_workspace_count_whatever_the_caller_passes() {
             tree_hash: "not the hash".into(),
             open_findings: 9_999,
             unreviewed: 9_999,
+            signature: None,
         },
         "rita",
         None,

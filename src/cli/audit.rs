@@ -227,6 +227,8 @@ struct View<'a> {
     cfg: &'a AuditConfig,
     findings: Vec<&'a Finding>,
     signoff: SignoffState,
+    /// Sign-offs cancelled by a revert, with who and why (issue 23; md report only).
+    reverted: Vec<String>,
 }
 
 impl View<'_> {
@@ -398,6 +400,9 @@ impl View<'_> {
             _ => "**not signed off**".to_string(),
         };
         let _ = writeln!(s, "- Sign-off: {state}");
+        for r in &self.reverted {
+            let _ = writeln!(s, "- Reverted sign-off: {}", esc(r));
+        }
         let _ = writeln!(s, "- Tree hash: `{}`", so.tree_hash);
         let _ = writeln!(
             s,
@@ -522,6 +527,7 @@ pub fn run(args: &AuditArgs) -> Result<(), CliError> {
         cfg: &cfg,
         signoff: signoff_state(eff, &project.phrases, &ws.layer.edits),
         findings,
+        reverted: crate::model::history::reverted_signoff_lines(&ws.layer.edits),
     };
     let render = |w: &mut dyn std::io::Write| match args.format {
         Format::Text => w.write_all(view.text().as_bytes()),

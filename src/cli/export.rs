@@ -46,6 +46,10 @@ pub struct ExportArgs {
     /// Refuse (exit 1) unless the latest sign-off matches the current effective tree.
     #[arg(long)]
     pub require_signoff: bool,
+    /// With --require-signoff: do not require the sign-off to be signed by an allowed key
+    /// even when the project names an allowed-signers file.
+    #[arg(long)]
+    pub allow_unsigned: bool,
 }
 
 /// Write the export.
@@ -57,6 +61,13 @@ pub fn run(args: &ExportArgs) -> Result<(), CliError> {
             return Err(CliError::check_failed(format!(
                 "--require-signoff: not exporting\n{}",
                 super::verify::render(&v).trim_end()
+            )));
+        }
+        let sig = super::verify::signature_check(&ws, args.allow_unsigned)?;
+        if !sig.passes() {
+            return Err(CliError::check_failed(format!(
+                "--require-signoff: not exporting\n{}",
+                sig.line().unwrap_or_default()
             )));
         }
     }

@@ -16,10 +16,12 @@ pub mod diff;
 pub mod edit;
 pub mod export;
 pub mod fit;
+pub mod history;
 pub mod info;
 pub mod manpage;
 pub mod merge_edits;
 pub mod progress;
+pub mod redo;
 pub mod resolve;
 pub mod sample;
 pub mod signoff;
@@ -63,7 +65,7 @@ pub enum Command {
     Audit(audit::AuditArgs),
     /// Record an edit in the override layer (refused edits exit 2 and write nothing).
     Edit(edit::EditArgs),
-    /// Drop the last edit of the override layer.
+    /// Cancel the latest edit in force by appending a revert (a sign-off needs --reason).
     Undo(undo::UndoArgs),
     /// Write the effective tree (tree.json schema plus aliases and exclusions).
     Apply(apply::ApplyArgs),
@@ -91,6 +93,10 @@ pub enum Command {
     Resolve(resolve::ResolveArgs),
     /// Fit one Gaussian per phrase from occurrence vectors and write a new project.
     Fit(fit::FitArgs),
+    /// Print the override layer's hash chain: edits, authors, times, reverts.
+    History(history::HistoryArgs),
+    /// Bring back what the latest undo cancelled (appends a revert of the revert).
+    Redo(redo::RedoArgs),
 }
 
 /// A failed subcommand: the message to print and the exit code.
@@ -157,6 +163,8 @@ pub fn run(command: Command) -> ExitCode {
         Command::MergeEdits(a) => merge_edits::run(&a),
         Command::Resolve(a) => resolve::run(&a),
         Command::Fit(a) => fit::run(&a),
+        Command::History(a) => history::run(&a),
+        Command::Redo(a) => redo::run(&a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

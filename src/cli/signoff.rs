@@ -1,5 +1,5 @@
-//! `treewright signoff PROJECT --reviewer NAME [--note TEXT]`: record a sign-off of the
-//! effective tree as it stands.
+//! `treewright signoff PROJECT --reviewer NAME [--note TEXT] [--key PATH]`: record a
+//! sign-off of the effective tree as it stands, signed with the reviewer's key when given.
 //!
 //! The sign-off edit (tree hash, open findings = warnings and errors not accepted,
 //! unreviewed nodes) comes from [`Workspace::signoff_edit`], the same function the
@@ -25,6 +25,10 @@ pub struct SignoffArgs {
     /// Optional note.
     #[arg(long)]
     pub note: Option<String>,
+    /// Sign the sign-off with this OpenSSH ed25519 private key ("sshsig", namespace
+    /// treewright-signoff); a passphrase is asked for on the terminal and never stored.
+    #[arg(long, value_name = "PATH")]
+    pub key: Option<PathBuf>,
 }
 
 /// Record a sign-off of the effective tree as it stands.
@@ -33,9 +37,16 @@ pub fn run(args: &SignoffArgs) -> Result<(), CliError> {
     if reviewer.is_empty() {
         return Err(CliError::bad_input("--reviewer is empty"));
     }
+    let key = match &args.key {
+        Some(path) => Some(
+            crate::model::sshsig::read_private_key(path, || ask_passphrase(path))
+                .map_err(CliError::bad_input)?,
+        ),
+        None => None,
+    };
     let mut ws = Workspace::open(&args.project)?;
     let edit = ws.signoff_edit(reviewer)?;
-    let index = ws.append(edit, reviewer, args.note.clone())?;
+    let index = ws.append_signed(edit, reviewer, args.note.clone(), key.as_ref())?;
     let summary = match &ws.layer.edits[index].edit {
         Edit::Signoff {
             tree_hash,
@@ -48,5 +59,20 @@ pub fn run(args: &SignoffArgs) -> Result<(), CliError> {
         _ => String::new(),
     };
     println!("signed off by {reviewer}: {summary}");
+    if let Some(k) = &key {
+        println!(
+            "signed with {}",
+            crate::model::sshsig::fingerprint(k.public_key().key_data())
+        );
+    }
     Ok(())
+}
+
+/// Ask for a key's passphrase on the terminal (`None` when there is no terminal).
+fn ask_passphrase(path: &std::path::Path) -> Option<String> {
+    use std::io::IsTerminal;
+    if !std::io::stdin().is_terminal() {
+        return None;
+    }
+    rpassword::prompt_password(format!("passphrase for {}: ", path.display())).ok()
 }

@@ -18,6 +18,10 @@ pub struct VerifyArgs {
     /// Print one JSON object instead of text.
     #[arg(long)]
     pub json: bool,
+    /// Do not require the sign-off to be signed by an allowed key even when the project
+    /// names an allowed-signers file.
+    #[arg(long)]
+    pub allow_unsigned: bool,
 }
 
 /// Human-readable lines for a verification outcome.
@@ -102,18 +106,54 @@ pub fn render_since(since: &SinceSignoff) -> String {
 
 /// Compare the latest sign-off with the current effective tree.
 pub fn run(args: &VerifyArgs) -> Result<(), CliError> {
-    let v = Workspace::open(&args.project)?.verify()?;
+    let ws = Workspace::open(&args.project)?;
+    let v = ws.verify()?;
+    let sig = signature_check(&ws, args.allow_unsigned)?;
+    let reverted = crate::model::history::reverted_signoff_lines(&ws.layer.edits);
     if args.json {
+        // the verification's own fields first, in their order; the new ones only when set
+        #[derive(serde::Serialize)]
+        struct Out<'a> {
+            #[serde(flatten)]
+            v: &'a Verification,
+            #[serde(skip_serializing_if = "Vec::is_empty")]
+            reverted_signoffs: Vec<String>,
+            #[serde(skip_serializing_if = "Option::is_none")]
+            signature: Option<String>,
+        }
+        let out = Out {
+            v: &v,
+            reverted_signoffs: reverted.clone(),
+            signature: sig.line(),
+        };
         println!(
             "{}",
-            serde_json::to_string_pretty(&v).map_err(CliError::bad_input)?
+            serde_json::to_string_pretty(&out).map_err(CliError::bad_input)?
         );
     } else {
         print!("{}", render(&v));
+        for l in &reverted {
+            println!("{l}");
+        }
+        if let Some(line) = sig.line() {
+            println!("{line}");
+        }
     }
-    if v.is_valid() {
+    if v.is_valid() && sig.passes() {
         Ok(())
     } else {
         Err(CliError::check_failed(""))
     }
+}
+
+/// The signature check of the gate (`verify`, `export --require-signoff`): skipped with
+/// `--allow-unsigned`; an unreadable signer file is bad input (exit 2).
+pub fn signature_check(
+    ws: &Workspace,
+    allow_unsigned: bool,
+) -> Result<crate::model::workspace::SignatureCheck, CliError> {
+    if allow_unsigned {
+        return Ok(crate::model::workspace::SignatureCheck::NoPolicy);
+    }
+    Ok(ws.check_signature()?)
 }

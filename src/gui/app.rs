@@ -190,10 +190,20 @@ impl App {
             }
             Action::Edit(e) => self.edit(e, None),
             Action::EditWithNote(e, note) => self.edit(e, Some(note)),
-            Action::Undo => match self.doc.undo() {
-                Some(op) => self.notify(format!("Undid {op}")),
-                None => self.notify("Nothing to undo"),
-            },
+            Action::SignedEdit(e, note, key) => {
+                let author = self.settings.author.clone();
+                match self.doc.edit_signed(e, &author, note, &key.0) {
+                    Ok(()) => self.notify("Signed off with your key (Ctrl+S saves)"),
+                    Err(why) => self.fail(format!("Refused signoff: {why}")),
+                }
+            }
+            Action::Undo => {
+                self.doc.layer.set_author(&self.settings.author);
+                match self.doc.undo() {
+                    Some(op) => self.notify(format!("Undid {op}")),
+                    None => self.notify(self.doc.why_no_undo()),
+                }
+            }
             Action::Redo => match self.doc.redo() {
                 Some(op) => self.notify(format!("Redid {op}")),
                 None => self.notify("Nothing to redo"),
@@ -552,6 +562,10 @@ impl DocQueries for Doc {
 
     fn since_signoff(&self) -> Result<crate::model::signed::SinceSignoff, String> {
         Workspace::since_signoff(self, None).map_err(|e| e.to_string())
+    }
+
+    fn reverted_signoffs(&self) -> Vec<String> {
+        crate::model::history::reverted_signoff_lines(&self.layer.edits)
     }
 }
 

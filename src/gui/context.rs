@@ -64,6 +64,25 @@ pub enum DialogRequest {
     SignedDiff,
 }
 
+/// A private key for signing a sign-off, carried from the sign-off dialog to the shell. Its
+/// debug form shows only the public key's fingerprint; two are equal when their public keys
+/// are.
+#[derive(Clone)]
+pub struct SigningKey(pub Box<ssh_key::PrivateKey>);
+
+impl std::fmt::Debug for SigningKey {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        let fp = crate::model::sshsig::fingerprint(self.0.public_key().key_data());
+        write!(f, "SigningKey({fp})")
+    }
+}
+
+impl PartialEq for SigningKey {
+    fn eq(&self, other: &Self) -> bool {
+        self.0.public_key() == other.0.public_key()
+    }
+}
+
 /// Something a panel or dialog asks the shell to do. Views never change the document or
 /// the settings themselves; the shell applies these in the order they were returned.
 #[derive(Debug, Clone, PartialEq)]
@@ -80,6 +99,9 @@ pub enum Action {
     Edit(Edit),
     /// Apply one edit with a note stored beside it.
     EditWithNote(Edit, String),
+    /// Record a sign-off signed with a key (read and decrypted by the dialog; the
+    /// passphrase is not kept), with an optional note.
+    SignedEdit(Edit, Option<String>, SigningKey),
     /// Undo the last edit.
     Undo,
     /// Redo the last undone edit.
@@ -270,6 +292,10 @@ pub trait DocQueries {
     /// The latest sign-off's tree against the effective tree, each change with its causes.
     fn since_signoff(&self) -> Result<crate::model::signed::SinceSignoff, String> {
         Err("not available".into())
+    }
+    /// Sign-offs cancelled by a revert: one line each with who reverted it and why.
+    fn reverted_signoffs(&self) -> Vec<String> {
+        Vec::new()
     }
 }
 

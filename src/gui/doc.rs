@@ -77,11 +77,46 @@ impl Doc {
         Ok(())
     }
 
-    /// Undo the last step; returns what it was: an edit's operation name, or the merge with
-    /// the file on disk taken back as a whole.
+    /// [`Doc::edit`] for a sign-off signed with `key` at its place in the history.
+    pub fn edit_signed(
+        &mut self,
+        edit: Edit,
+        author: &str,
+        note: Option<String>,
+        key: &ssh_key::PrivateKey,
+    ) -> Result<(), String> {
+        let edit = match edit {
+            Edit::Signoff { reviewer, .. } => self.ws.signoff_edit(&reviewer)?,
+            e => e,
+        };
+        self.ws.edit_signed(edit, author, note, key)?;
+        Ok(())
+    }
+
+    /// Why there is nothing to undo: a saved sign-off is reverted only with a reason, on the
+    /// command line.
+    pub fn why_no_undo(&self) -> String {
+        let edits = &self.ws.layer.edits;
+        match crate::model::history::undo_target(edits).map(|i| (i, &edits[i].edit)) {
+            Some((i, Edit::Signoff { reviewer, .. })) => format!(
+                "Not undone: edit #{i} is a saved sign-off by {reviewer}; reverting it needs a \
+                 reason: treewright undo PROJECT --reason TEXT"
+            ),
+            _ => "Nothing to undo".to_string(),
+        }
+    }
+
+    /// Undo the last step; returns what it was: an edit's operation name (a revert appended
+    /// for a saved edit: "op (revert appended)"), or the merge with the file on disk taken
+    /// back as a whole.
     pub fn undo(&mut self) -> Option<String> {
         self.ws.undo_step().map(|s| match s {
-            Step::Edit(r) => r.edit.op().to_string(),
+            Step::Edit(r) => match &r.edit {
+                Edit::Revert { edit, .. } => format!(
+                    "edit #{edit} (saved, so a revert was appended; the history only grows)"
+                ),
+                e => e.op().to_string(),
+            },
             Step::Merge { from, to } => format!(
                 "the merge with the file on disk ({from} edits back to {to}; saving offers the \
                  merge again)"

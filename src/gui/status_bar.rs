@@ -99,6 +99,11 @@ fn status(ui: &mut egui::Ui, view: &ViewCtx, actions: &mut Vec<Action>) {
                 }
             }
         }
+        let reverted = view.queries.reverted_signoffs();
+        if !reverted.is_empty() {
+            ui.label(badges::pill("SIGN-OFF REVERTED", badges::ORANGE))
+                .on_hover_text(badges::plain(&reverted.join("\n")));
+        }
         if !view.problems.is_empty() {
             ui.separator();
             ui.label(format!("{} edit(s) do not apply", view.problems.len()))

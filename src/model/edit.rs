@@ -111,6 +111,24 @@ pub enum Edit {
         open_findings: usize,
         /// Unreviewed nodes at sign-off.
         unreviewed: usize,
+        /// OpenSSH "sshsig" signature (armored, namespace `treewright-signoff`) of the
+        /// record's signed form (see [`crate::model::history::signed_message`]); absent on
+        /// unsigned sign-offs.
+        #[serde(default, skip_serializing_if = "Option::is_none")]
+        signature: Option<String>,
+    },
+    /// Cancel an earlier edit (undo in an append-only history): the edit at index `edit`
+    /// stops applying. A revert of a revert brings the reverted edit back (redo).
+    Revert {
+        /// 0-based index of the cancelled edit in the file.
+        edit: usize,
+        /// SHA-256 (hex) of the cancelled edit's record (compact JSON, see
+        /// [`crate::model::history::record_sha256`]): a revert moved by a merge finds its
+        /// edit again by it.
+        edit_sha256: String,
+        /// Why (required when the cancelled edit is a sign-off).
+        #[serde(default, skip_serializing_if = "String::is_empty")]
+        reason: String,
     },
 }
 
@@ -146,6 +164,7 @@ impl Edit {
             Edit::Include { .. } => "include",
             Edit::Review { .. } => "review",
             Edit::Signoff { .. } => "signoff",
+            Edit::Revert { .. } => "revert",
         }
     }
 
@@ -163,7 +182,7 @@ impl Edit {
                 v.push(into);
                 v
             }
-            Edit::Signoff { .. } => Vec::new(),
+            Edit::Signoff { .. } | Edit::Revert { .. } => Vec::new(),
         }
     }
 }

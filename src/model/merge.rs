@@ -173,6 +173,7 @@ pub fn take_all(edits: &[EditRecord], conflicts: &[Conflict], side: Side) -> Vec
     for c in conflicts {
         out.extend(c.side(side).iter().cloned());
     }
+    super::history::fix_revert_indices(&mut out);
     out
 }
 
@@ -187,6 +188,7 @@ pub fn resolve_one(
     let i = conflicts.iter().position(|c| c.id == id)?;
     let c = conflicts.remove(i);
     edits.extend(c.side(side).iter().cloned());
+    super::history::fix_revert_indices(edits);
     Some(c)
 }
 
@@ -231,7 +233,7 @@ fn subjects(e: &Edit) -> Vec<(&str, Cat)> {
         Edit::Exclude { node } | Edit::Include { node } => vec![(node, Cat::Remove)],
         Edit::Merge { sources, .. } => sources.iter().map(|s| (s.as_str(), Cat::Remove)).collect(),
         Edit::Review { node, .. } => vec![(node, Cat::Review)],
-        Edit::Signoff { .. } => Vec::new(),
+        Edit::Signoff { .. } | Edit::Revert { .. } => Vec::new(),
     }
 }
 
@@ -673,6 +675,9 @@ pub fn merge(
         })
         .collect();
 
+    // reverts name their edit by its hash; point their indices at where it now is
+    let mut edits = edits;
+    super::history::fix_revert_indices(&mut edits);
     let signed_by = if conflicts.is_empty() {
         signed_by(base_tree, phrases, &edits)
     } else {

@@ -6,8 +6,9 @@
 //! a reparent that would make a cycle, a merge into an excluded node, ...) is skipped and
 //! reported as an [`ApplyProblem`] with its index and reason, never dropped from the file.
 //!
-//! File format (version 1):
-//! `{"format": "treewright-overrides", "version": 1, "edits": [EditRecord, ...]}`.
+//! File format (version 2; version 1, without the hash chain, is still read):
+//! `{"format": "treewright-overrides", "version": 2, "edits": [EditRecord + "prev", ...]}`.
+//! The chain and reverts are [`super::history`].
 
 use std::path::Path;
 
@@ -18,6 +19,7 @@ use super::edit::{Edit, EditRecord, ReviewStatus};
 use super::effective::{ApplyProblem, EffectiveTree};
 use super::fsutil;
 use super::gaussian::PhraseId;
+use super::history::{self, StoredRecord};
 use super::lock::{LockError, ProjectLock};
 use super::merge::Conflict;
 use super::phrase::PhraseTable;
@@ -26,10 +28,12 @@ use super::tree::Tree;
 
 pub use super::time::{now_rfc3339, rfc3339_from_unix};
 
+mod append_only;
+
 /// The `format` value of an override file.
 pub const OVERRIDES_FORMAT: &str = "treewright-overrides";
-/// The override file version this build reads and writes.
-pub const OVERRIDES_VERSION: u32 = 1;
+/// The override file version this build writes (it also reads version 1).
+pub const OVERRIDES_VERSION: u32 = 2;
 
 /// Why the override layer could not be loaded or saved. Every variant names the file.
 #[derive(Debug, thiserror::Error)]
@@ -63,7 +67,7 @@ pub enum OverrideError {
         found: String,
     },
     /// The file has a version this build cannot read.
-    #[error("{file}: version: is {found}, this build reads version {OVERRIDES_VERSION}")]
+    #[error("{file}: version: is {found}, this build reads versions 1 and {OVERRIDES_VERSION}")]
     UnknownVersion {
         /// The file.
         file: String,
@@ -93,6 +97,24 @@ pub enum OverrideError {
         /// Their ids, comma-separated.
         ids: String,
     },
+    /// The hash chain does not hold: a past edit was deleted, reordered or changed.
+    #[error("{file}: {detail}")]
+    HistoryChanged {
+        /// The file.
+        file: String,
+        /// `edit #N does not follow #N-1: history was changed`.
+        detail: String,
+    },
+    /// A save would remove or change an edit that is already in the file.
+    #[error(
+        "{file}: edit #{index} would be removed or changed; the history is append-only (undo appends a revert)"
+    )]
+    AppendOnly {
+        /// The file.
+        file: String,
+        /// The first edit that would change.
+        index: usize,
+    },
 }
 
 /// The on-disk shape of `overrides.json`.
@@ -102,7 +124,7 @@ struct OverrideFile {
     format: String,
     version: u64,
     #[serde(default)]
-    edits: Vec<EditRecord>,
+    edits: Vec<StoredRecord>,
     /// Unresolved merge conflicts (absent from files without any, so those stay
     /// byte-identical); the loader refuses a file that has some.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
@@ -155,6 +177,7 @@ pub struct OverrideLayer {
     saved: Vec<EditRecord>,
     disk: Fingerprint,
     merges: Vec<MergeStep>,
+    author: String,
 }
 
 /// The edits with the saving reference point (edits and file as last loaded or saved): what
@@ -178,6 +201,8 @@ struct MergeStep {
 enum Redo {
     Edit(EditRecord),
     Merge(Box<MergeStep>),
+    /// Undo appended a revert: redo reverts it (or drops it while it is unsaved).
+    Revert,
 }
 
 /// What one undo or redo step did.
@@ -203,6 +228,7 @@ impl Default for OverrideLayer {
             saved: Vec::new(),
             disk: Fingerprint::Missing,
             merges: Vec::new(),
+            author: "workbench".into(),
         }
     }
 }
@@ -244,17 +270,31 @@ pub fn parse_override_file(
             found: header.format,
         });
     }
-    if header.version != u64::from(OVERRIDES_VERSION) {
+    if header.version != 1 && header.version != u64::from(OVERRIDES_VERSION) {
         return Err(OverrideError::UnknownVersion {
             file: file.to_string(),
             found: header.version,
         });
     }
     let f: OverrideFile = serde_json::from_slice(bytes).map_err(corrupt)?;
-    Ok((f.edits, f.conflicts))
+    let history = |detail: String| OverrideError::HistoryChanged {
+        file: file.to_string(),
+        detail,
+    };
+    if header.version == 1 {
+        if let Some(i) = f.edits.iter().position(|s| s.prev.is_some()) {
+            return Err(history(format!(
+                "edit #{i}: prev: version-1 files have no hash chain"
+            )));
+        }
+    } else {
+        history::check_chain(&f.edits).map_err(history)?;
+    }
+    Ok((f.edits.into_iter().map(|s| s.record).collect(), f.conflicts))
 }
 
-/// Serialise edits in the version-1 file format (pretty JSON, trailing newline).
+/// Serialise edits in the version-2 file format (pretty JSON, trailing newline), each
+/// record with its `prev` link ([`history::chained`]).
 pub fn serialize_overrides(edits: &[EditRecord]) -> Vec<u8> {
     serialize_override_file(edits, &[])
 }
@@ -265,7 +305,7 @@ pub fn serialize_override_file(edits: &[EditRecord], conflicts: &[Conflict]) -> 
     let f = OverrideFile {
         format: OVERRIDES_FORMAT.to_string(),
         version: u64::from(OVERRIDES_VERSION),
-        edits: edits.to_vec(),
+        edits: history::chained(edits),
         conflicts: conflicts.to_vec(),
     };
     fsutil::to_json_pretty(&f)
@@ -293,6 +333,7 @@ impl OverrideLayer {
             redo: Vec::new(),
             disk: Fingerprint::of_bytes(&bytes),
             merges: Vec::new(),
+            author: "workbench".into(),
         })
     }
 
@@ -312,10 +353,15 @@ impl OverrideLayer {
         if self.changed_on_disk(path)? {
             return Err(OverrideError::ChangedOnDisk { file });
         }
+        if let Some(index) =
+            (0..self.saved.len()).find(|&i| self.edits.get(i) != Some(&self.saved[i]))
+        {
+            return Err(OverrideError::AppendOnly { file, index });
+        }
         self.write_unchecked(path)
     }
 
-    fn write_unchecked(&mut self, path: &Path) -> Result<(), OverrideError> {
+    pub(crate) fn write_unchecked(&mut self, path: &Path) -> Result<(), OverrideError> {
         let file = path.display().to_string();
         let bytes = serialize_overrides(&self.edits);
         fsutil::atomic_write(path, &bytes, true)
@@ -360,17 +406,6 @@ impl OverrideLayer {
     pub fn push(&mut self, r: EditRecord) {
         self.edits.push(r);
         self.redo.clear();
-    }
-
-    /// Drop the last edit (kept for redo). When the last step is a merge with the file on
-    /// disk nothing happens and `None` is returned: [`OverrideLayer::undo_step`] undoes that.
-    pub fn undo(&mut self) -> Option<EditRecord> {
-        if self.merge_on_top() {
-            return None;
-        }
-        let r = self.edits.pop()?;
-        self.redo.push(Redo::Edit(r.clone()));
-        Some(r)
     }
 
     /// Re-append the last undone edit (`None` when the next redo is a merge, see
@@ -445,6 +480,7 @@ impl OverrideLayer {
                 self.edits.push(r.clone());
                 Some(Step::Edit(r))
             }
+            Redo::Revert => self.redo_revert().map(Step::Edit),
             Redo::Merge(m) => {
                 let from = self.edits.len();
                 self.put_back(&m.after);
@@ -457,7 +493,8 @@ impl OverrideLayer {
 
     /// Whether there is a step to undo.
     pub fn can_undo(&self) -> bool {
-        !self.edits.is_empty() || self.merges.last().is_some_and(|m| m.after.edits.is_empty())
+        history::undo_target(&self.edits).is_some()
+            || self.merges.last().is_some_and(|m| m.after.edits.is_empty())
     }
 
     /// Whether there is an undone step to redo.
@@ -836,7 +873,8 @@ fn validate(s: &impl View, phrases: &PhraseTable, edit: &Edit) -> Result<Plan, E
             }
             Ok(Plan::Review(x, *status, comment.clone()))
         }
-        Edit::Signoff { .. } => Ok(Plan::Nothing),
+        // a revert is checked against the edits ([`history::revert_problem`]), not the tree
+        Edit::Signoff { .. } | Edit::Revert { .. } => Ok(Plan::Nothing),
     }
 }
 
@@ -933,7 +971,19 @@ pub fn apply(
     let start = EffectiveTree::from_base(base, phrases);
     let mut s = State::from_effective(&start);
     let mut problems = Vec::new();
+    let reverted = history::reverted_by(edits);
     for (index, r) in edits.iter().enumerate() {
+        if reverted[index].is_some() {
+            continue;
+        }
+        if let Some(reason) = history::revert_problem(edits, index) {
+            problems.push(ApplyProblem {
+                index,
+                op: r.edit.op().to_string(),
+                reason,
+            });
+            continue;
+        }
         match validate(&s, phrases, &r.edit) {
             Ok(plan) => execute(&mut s, plan),
             Err(reason) => problems.push(ApplyProblem {
@@ -1178,7 +1228,8 @@ mod tests {
         assert!(!layer.is_dirty());
         let text = std::fs::read_to_string(&p).unwrap();
         assert!(text.contains("\"format\": \"treewright-overrides\""));
-        assert!(text.contains("\"version\": 1"));
+        assert!(text.contains("\"version\": 2"));
+        assert!(text.contains(&format!("\"prev\": \"{}\"", history::header_sha256())));
         let back = OverrideLayer::load(&p).unwrap();
         assert_eq!(back.edits, layer.edits);
 

@@ -94,13 +94,14 @@ pub fn sha256_hex(bytes: &[u8]) -> String {
         .collect()
 }
 
-/// The latest sign-off edit and its index.
+/// The latest sign-off edit that is in force (not cancelled by a revert) and its index.
 pub fn latest_signoff(edits: &[EditRecord]) -> Option<(usize, &EditRecord)> {
+    let reverted = super::history::reverted_by(edits);
     edits
         .iter()
         .enumerate()
         .rev()
-        .find(|(_, r)| matches!(r.edit, Edit::Signoff { .. }))
+        .find(|(i, r)| matches!(r.edit, Edit::Signoff { .. }) && reverted[*i].is_none())
 }
 
 /// Build the sign-off edit for the effective tree as it stands.
@@ -115,6 +116,7 @@ pub fn signoff_edit(
         tree_hash: tree_hash(eff, phrases),
         open_findings,
         unreviewed: super::overrides::unreviewed_count(eff),
+        signature: None,
     }
 }
 
@@ -223,6 +225,7 @@ pub fn describe_edit(e: &Edit) -> String {
         Edit::Include { node } => format!("include {node}"),
         Edit::Review { node, status, .. } => format!("review {node}: {}", status.as_str()),
         Edit::Signoff { reviewer, .. } => format!("signoff by {reviewer}"),
+        Edit::Revert { edit, .. } => format!("revert #{edit}"),
     }
 }
 

@@ -127,6 +127,27 @@ pub enum WorkspaceError {
     /// A sign-off snapshot could not be written, or was refused on load.
     #[error(transparent)]
     Snapshot(#[from] SnapshotError),
+    /// A sign-off signature or the project's signer files failed a check.
+    #[error(transparent)]
+    Signature(#[from] super::sshsig::SignatureError),
+    /// Reverting a sign-off without a reason.
+    #[error(
+        "{file}: edit #{index} is a sign-off by {reviewer}; reverting it needs a reason (--reason TEXT); it is recorded and shown by verify and the audit report"
+    )]
+    ReasonNeeded {
+        /// The override file.
+        file: String,
+        /// The sign-off's index.
+        index: usize,
+        /// Its reviewer.
+        reviewer: String,
+    },
+    /// Redo with no undone edit at the end of the history.
+    #[error("{file}: nothing to redo (the history does not end with an undo)")]
+    NothingToRedo {
+        /// The override file.
+        file: String,
+    },
     /// No sign-off to compare with.
     #[error("{file}: no sign-off{at}")]
     NoSignoff {
@@ -559,6 +580,19 @@ impl Workspace {
         author: &str,
         note: Option<String>,
     ) -> Result<usize, WorkspaceError> {
+        self.append_signed(edit, author, note, None)
+    }
+
+    /// [`Workspace::append`], a sign-off signed with `key` when one is given (see
+    /// [`Workspace::sign_record`]): the signature is made under the lock, after the edit
+    /// found its place in the file.
+    pub fn append_signed(
+        &mut self,
+        edit: Edit,
+        author: &str,
+        note: Option<String>,
+        key: Option<&ssh_key::PrivateKey>,
+    ) -> Result<usize, WorkspaceError> {
         let edit = edit.normalized();
         self.check_edit(&edit)?;
         let path = self.overrides_path();
@@ -573,7 +607,11 @@ impl Workspace {
             self.check_edit(&edit)?;
         }
         self.keep_signed_tree(&edit, &lock)?;
-        self.layer.push(overrides::record(edit, author, note));
+        let mut rec = overrides::record(edit, author, note);
+        if let Some(key) = key {
+            self.sign_record(&mut rec, key)?;
+        }
+        self.layer.push(rec);
         self.layer.save_locked(&path, &lock)?;
         drop(lock);
         self.refresh();
@@ -680,8 +718,9 @@ impl Workspace {
         }
         let before = self.layer.state();
         self.layer.take_disk(&path)?;
+        super::history::fix_revert_indices(&mut edits);
         self.layer.edits = edits;
-        self.layer.save_locked(&path, &lock)?;
+        self.layer.save_merged_locked(&path, &lock)?;
         drop(lock);
         self.layer.record_merge(before);
         self.refresh();
@@ -993,6 +1032,9 @@ impl Workspace {
         &self.layer.edits
     }
 }
+
+mod signing;
+pub use signing::{Reverted, SignatureCheck};
 
 fn hex(d: &[u8; 32]) -> String {
     d.iter().map(|b| format!("{b:02x}")).collect()

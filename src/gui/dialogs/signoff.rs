@@ -5,13 +5,19 @@ use egui::{Id, Modal};
 use crate::model::audit::Severity;
 use crate::model::edit::Edit;
 
-use super::super::context::{Action, ViewCtx};
+use super::super::context::{Action, SigningKey, ViewCtx};
 use super::{DialogOut, ok_cancel};
 
 /// State of the sign-off dialog.
 pub struct SignoffDialog {
     reviewer: String,
     note: String,
+    /// Private key file to sign with (empty: an unsigned sign-off).
+    key_file: String,
+    /// Passphrase of an encrypted key; cleared when the dialog closes, never stored.
+    passphrase: String,
+    /// Why the key could not be used.
+    key_error: Option<String>,
 }
 
 impl SignoffDialog {
@@ -20,6 +26,9 @@ impl SignoffDialog {
         SignoffDialog {
             reviewer: view.settings.author.clone(),
             note: String::new(),
+            key_file: String::new(),
+            passphrase: String::new(),
+            key_error: None,
         }
     }
 
@@ -65,7 +74,31 @@ impl SignoffDialog {
                         .hint_text("note for the record (optional)"),
                 );
                 ui.end_row();
+                let label = ui.label("Key file:");
+                ui.add(
+                    egui::TextEdit::singleline(&mut self.key_file)
+                        .hint_text("~/.ssh/id_ed25519 (optional: signs the sign-off)"),
+                )
+                .labelled_by(label.id);
+                ui.end_row();
+                let path = expand_home(self.key_file.trim());
+                if path
+                    .as_deref()
+                    .is_some_and(crate::model::sshsig::key_is_encrypted)
+                {
+                    let label = ui.label("Passphrase:");
+                    ui.add(
+                        egui::TextEdit::singleline(&mut self.passphrase)
+                            .password(true)
+                            .hint_text("the key's passphrase (not stored)"),
+                    )
+                    .labelled_by(label.id);
+                    ui.end_row();
+                }
             });
+            if let Some(e) = &self.key_error {
+                ui.label(super::super::badges::plain(&format!("Key: {e}")));
+            }
             if errors > 0 {
                 ui.label(format!(
                     "Warning: {errors} error finding(s) are still open. You may still sign, and the \
@@ -78,6 +111,7 @@ impl SignoffDialog {
                 tree_hash: hash.clone(),
                 open_findings: counted,
                 unreviewed,
+                signature: None,
             };
             let check = if reviewer.is_empty() {
                 Err("enter the reviewer's name".to_string())
@@ -90,13 +124,35 @@ impl SignoffDialog {
             let (ok, cancel) = ok_cancel(ui, "Sign off", check.is_ok());
             if ok {
                 let note = self.note.trim().to_string();
-                let action = if note.is_empty() {
-                    Action::Edit(edit)
-                } else {
-                    Action::EditWithNote(edit, note)
+                let key = match expand_home(self.key_file.trim()) {
+                    None => Ok(None),
+                    Some(path) => {
+                        let pass = std::mem::take(&mut self.passphrase);
+                        crate::model::sshsig::read_private_key(&path, || {
+                            (!pass.is_empty()).then_some(pass)
+                        })
+                        .map(|k| Some(SigningKey(Box::new(k))))
+                        .map_err(|e| e.to_string())
+                    }
                 };
-                // the reviewer becomes the author before the sign-off edit is recorded
-                out = DialogOut::act(vec![Action::SetAuthor(reviewer), action, Action::Save]);
+                match key {
+                    Err(e) => self.key_error = Some(e),
+                    Ok(key) => {
+                        let action = match key {
+                            Some(k) => {
+                                Action::SignedEdit(edit, (!note.is_empty()).then_some(note), k)
+                            }
+                            None if note.is_empty() => Action::Edit(edit),
+                            None => Action::EditWithNote(edit, note),
+                        };
+                        // the reviewer becomes the author before the sign-off edit is recorded
+                        out = DialogOut::act(vec![
+                            Action::SetAuthor(reviewer),
+                            action,
+                            Action::Save,
+                        ]);
+                    }
+                }
             } else if cancel {
                 out = DialogOut::close();
             }
@@ -105,5 +161,16 @@ impl SignoffDialog {
             out.close = true;
         }
         out
+    }
+}
+
+/// The key file's path with a leading `~/` expanded; `None` when the field is empty.
+fn expand_home(s: &str) -> Option<std::path::PathBuf> {
+    if s.is_empty() {
+        return None;
+    }
+    match (s.strip_prefix("~/"), std::env::var_os("HOME")) {
+        (Some(rest), Some(home)) => Some(std::path::Path::new(&home).join(rest)),
+        _ => Some(std::path::PathBuf::from(s)),
     }
 }

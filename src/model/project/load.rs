@@ -162,6 +162,12 @@ impl Project {
         if let Some(o) = &manifest.overrides {
             resolve_inside(&dir, o, "overrides")?;
         }
+        if let Some(sp) = &manifest.signoff {
+            resolve_inside(&dir, &sp.allowed_signers, "signoff.allowed_signers")?;
+            if let Some(r) = &sp.revoked_keys {
+                resolve_inside(&dir, r, "signoff.revoked_keys")?;
+            }
+        }
         Ok(Project {
             dir,
             manifest,

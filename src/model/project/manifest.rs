@@ -131,6 +131,22 @@ pub struct Manifest {
     /// Size guards for loading (defaults when absent).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub limits: Option<Limits>,
+    /// Who may sign off: with this section, `verify` and `export --require-signoff` accept
+    /// only sign-offs signed by an allowed key of the named reviewer.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub signoff: Option<SignoffPolicyRef>,
+}
+
+/// The manifest's `signoff` section: files of the signer policy (see
+/// [`crate::model::sshsig`]), relative to the project folder.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SignoffPolicyRef {
+    /// The allowed-signers file (`PRINCIPALS [namespaces="…"] KEYTYPE BASE64`).
+    pub allowed_signers: String,
+    /// Optional revoked-keys file (one public key a line).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub revoked_keys: Option<String>,
 }
 
 fn is_default_scale(s: &Scale) -> bool {
