@@ -23,6 +23,7 @@ pub mod overrides;
 pub mod phrase;
 pub mod project;
 pub mod projection;
+pub mod queue;
 pub mod refusal;
 pub mod sample;
 pub mod signed;
