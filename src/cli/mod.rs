@@ -20,6 +20,7 @@ pub mod info;
 pub mod manpage;
 pub mod merge_edits;
 pub mod progress;
+pub mod queue;
 pub mod resolve;
 pub mod sample;
 pub mod signoff;
@@ -91,6 +92,9 @@ pub enum Command {
     Resolve(resolve::ResolveArgs),
     /// Fit one Gaussian per phrase from occurrence vectors and write a new project.
     Fit(fit::FitArgs),
+    /// The review queue: nodes ordered by risk (finding confidence × reach), with why and
+    /// the suggested decision.
+    Queue(queue::QueueArgs),
 }
 
 /// A failed subcommand: the message to print and the exit code.
@@ -157,6 +161,7 @@ pub fn run(command: Command) -> ExitCode {
         Command::MergeEdits(a) => merge_edits::run(&a),
         Command::Resolve(a) => resolve::run(&a),
         Command::Fit(a) => fit::run(&a),
+        Command::Queue(a) => queue::run(&a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

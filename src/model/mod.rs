@@ -11,6 +11,7 @@ pub mod export;
 pub mod fit;
 pub mod fsutil;
 pub mod gaussian;
+pub mod impact;
 pub mod inclusion;
 pub mod info;
 mod kernels;

@@ -42,6 +42,7 @@ use super::edit::{Edit, ReviewStatus};
 use super::effective::EffectiveTree;
 use super::gaussian::PhraseId;
 use super::phrase::PhraseTable;
+use super::project::{Project, resolve_inside};
 use super::signoff::describe_edit;
 
 /// What happened to a queued node.
@@ -179,12 +180,25 @@ pub enum WeightsError {
         /// The value as written.
         value: String,
     },
+    /// The manifest's `weights` path is not usable (absolute, outside the folder).
+    #[error("{0}")]
+    Manifest(String),
     /// The extension is neither `.json` nor `.csv`.
     #[error("{file}: weights must be a .json or .csv file")]
     Extension {
         /// The file.
         file: String,
     },
+}
+
+/// The weights named by the project's manifest (`weights`), if any.
+pub fn project_weights(project: &Project) -> Result<Option<Vec<f64>>, WeightsError> {
+    let Some(rel) = &project.manifest.weights else {
+        return Ok(None);
+    };
+    let path = resolve_inside(&project.dir, rel, "weights")
+        .map_err(|e| WeightsError::Manifest(e.to_string()))?;
+    load_weights(&path, &project.phrases).map(Some)
 }
 
 /// Read a weights file (see the module documentation): one weight per phrase row.

@@ -131,6 +131,10 @@ pub struct Manifest {
     /// Size guards for loading (defaults when absent).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub limits: Option<Limits>,
+    /// Traffic per phrase (`.json` or `.csv`), the reach of the review queue
+    /// ([`crate::model::queue`]).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub weights: Option<String>,
 }
 
 fn is_default_scale(s: &Scale) -> bool {
