@@ -29,7 +29,7 @@ use super::gaussian::{Gaussians, PhraseId};
 use super::overrides;
 use super::phrase::PhraseTable;
 use super::refusal::EditRefusal;
-use super::signoff::{describe_edit, tree_hash};
+use super::signoff::describe_edit;
 use super::suggest::{self, SuggestCtx, SuggestParams};
 use super::tree::Tree;
 use super::workspace::{SignState, Workspace, WorkspaceError};
@@ -209,6 +209,33 @@ fn moved(before: &EffectiveTree, after: &EffectiveTree) -> Vec<PhraseId> {
     out
 }
 
+/// Whether two effective trees of one phrase table have the same canonical form
+/// ([`crate::model::signoff::canonical_tree`]: root; per node its label, parent and aliases
+/// with their labels; the excluded phrases with their labels), so the same sign-off hash.
+pub fn same_canonical(a: &EffectiveTree, b: &EffectiveTree) -> bool {
+    let n = a.labels.len();
+    if b.labels.len() != n || a.tree.root() != b.tree.root() {
+        return false;
+    }
+    (0..n).all(|i| {
+        let p = i as PhraseId;
+        let placed = a.tree.is_placed(p);
+        if placed != b.tree.is_placed(p) || a.excluded[i] != b.excluded[i] {
+            return false;
+        }
+        if placed {
+            a.tree.parent(p) == b.tree.parent(p)
+                && a.labels[i] == b.labels[i]
+                && a.aliases[i] == b.aliases[i]
+                && a.aliases[i]
+                    .iter()
+                    .all(|&x| a.labels[x as usize] == b.labels[x as usize])
+        } else {
+            !a.excluded[i] || a.labels[i] == b.labels[i]
+        }
+    })
+}
+
 /// Preview `edit` (see the module documentation). A refused edit is `Err` with its reason.
 pub fn preview(input: &PreviewInput, edit: &Edit) -> Result<(Impact, AuditReport), EditRefusal> {
     let edit = edit.clone().normalized();
@@ -257,9 +284,9 @@ pub fn preview(input: &PreviewInput, edit: &Edit) -> Result<(Impact, AuditReport
             })
         })
         .collect();
-    let signoff_outdated = input
-        .signed_hash
-        .is_some_and(|h| tree_hash(&after, input.phrases) != h);
+    // the hash changes exactly when the canonical content does (compared in O(n) instead
+    // of serialising and hashing the whole tree)
+    let signoff_outdated = input.signed_hash.is_some() && !same_canonical(input.eff, &after);
     let impact = Impact {
         edit: describe_edit(&edit),
         open_before: kb.len(),

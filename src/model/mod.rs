@@ -33,6 +33,7 @@ pub mod stats;
 pub mod suggest;
 pub mod time;
 pub mod tree;
+pub mod two_parents;
 pub mod workspace;
 
 pub use gaussian::{CovarianceKind, GaussianView, Gaussians, PhraseId, Similarity};

@@ -283,6 +283,35 @@ pub fn reach(eff: &EffectiveTree, weights: Option<&[f64]>) -> Vec<f64> {
     r
 }
 
+/// A finding's score and threshold in words, for a tooltip: "KL gain over the parent is
+/// 44.97 nats, the threshold is 4.69; confidence 0.99".
+pub fn score_in_words(f: &Finding) -> String {
+    let (s, t) = (f.score, f.threshold);
+    let pct = |x: f64| format!("{:.1} %", 100.0 * x);
+    let body = match f.rule {
+        "better-parent" => {
+            format!("KL is lower under the better parent by {s:.2} nats, the threshold is {t:.2}")
+        }
+        "inverted-generality" => {
+            format!("ln det Σ is {s:.2} above the parent's, the margin is {t:.2}")
+        }
+        "weak-inclusion" => format!(
+            "containment in the parent is {}, the threshold is {}",
+            pct(s),
+            pct(t)
+        ),
+        "coverage-gap" => format!("the children cover {}, the threshold is {}", pct(s), pct(t)),
+        "near-duplicate" => {
+            format!("the Bhattacharyya coefficient is {s:.3}, the threshold is {t:.3}")
+        }
+        "single-child-chain" => format!("the chain has {s:.0} nodes, the threshold is {t:.0}"),
+        "wide-fanout" => format!("it has {s:.0} children, the limit is {t:.0}"),
+        "unreviewed" => format!("{} of the nodes are unreviewed", pct(s)),
+        _ => "no score: the finding is a fact, not a measurement".into(),
+    };
+    format!("{body}; confidence {:.2}", f.confidence)
+}
+
 fn is_node_finding(f: &Finding) -> bool {
     Rule::from_id(f.rule).is_some_and(|r| r.scope() == Scope::Node)
 }
@@ -468,13 +497,13 @@ impl ReviewQueue {
 
     /// Reviewed / queued and the weighted share.
     pub fn progress(&self) -> Progress {
-        let total: f64 = self.items.iter().map(|x| x.reach).sum();
+        let total = self.items.iter().fold(0.0, |a, x| a + x.reach);
         let done: Vec<&QueueItem> = self
             .items
             .iter()
             .filter(|x| x.state.is_reviewed())
             .collect();
-        let w: f64 = done.iter().map(|x| x.reach).sum();
+        let w = done.iter().fold(0.0, |a, x| a + x.reach);
         Progress {
             reviewed: done.len(),
             queued: self.items.len(),

@@ -150,3 +150,51 @@ fn a_refused_edit_is_refused_by_the_preview() {
     });
     assert!(matches!(e, Err(WorkspaceError::Refused(_))), "{e:?}");
 }
+
+#[test]
+fn same_canonical_agrees_with_the_sign_off_hash() {
+    use crate::model::signoff::tree_hash;
+    let (_dir, ws) = demo();
+    let eff = ws.effective().unwrap();
+    let phrases = &ws.project.phrases;
+    let base = ws.base().unwrap();
+    let id = |p: PhraseId| phrases.id(p).to_string();
+    let root = eff.tree.root();
+    let a = eff.tree.children(root)[0];
+    let b = eff.tree.children(root)[1];
+    let leaf = *eff.tree.children(a).first().unwrap_or(&a);
+    let edits = [
+        Edit::Rename {
+            node: id(leaf),
+            label: "renamed".into(),
+        },
+        Edit::Review {
+            node: id(leaf),
+            status: ReviewStatus::Approved,
+            comment: String::new(),
+        },
+        Edit::Pin {
+            node: id(leaf),
+            parent: id(eff.tree.parent(leaf).unwrap()),
+        },
+        Edit::Reparent {
+            node: id(leaf),
+            parent: id(b),
+        },
+        Edit::Exclude { node: id(leaf) },
+        Edit::Merge {
+            sources: vec![id(leaf)],
+            into: id(b),
+        },
+    ];
+    for e in edits {
+        let mut recs = ws.layer.edits.clone();
+        recs.push(overrides::record(e.clone(), "t", None));
+        let (after, _) = overrides::apply(base, phrases, &recs);
+        assert_eq!(
+            same_canonical(eff, &after),
+            tree_hash(eff, phrases) == tree_hash(&after, phrases),
+            "{e:?}"
+        );
+    }
+}
