@@ -82,6 +82,20 @@ fn bench(c: &mut Criterion) {
     group.bench_function("part: copy the auditor", |b| {
         b.iter(|| black_box(auditor.clone().report().findings.len()))
     });
+    group.bench_function("part: re-audit a copy", |b| {
+        let (after, _) = treewright::model::overrides::apply(&tree, &phrases, &edits);
+        b.iter(|| {
+            let mut a = auditor.clone();
+            black_box(a.update(&g, &phrases, &after, &[]).findings.len())
+        })
+    });
+    eprintln!(
+        "findings in the report: {}, open: {}",
+        auditor.report().findings.len(),
+        auditor
+            .report()
+            .open_count(treewright::model::audit::Severity::Info)
+    );
     group.finish();
 }
 

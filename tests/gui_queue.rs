@@ -198,3 +198,50 @@ fn a_placement_finding_shows_both_parents() {
     h.run();
     assert!(h.query_by_label_contains("Both parents:").is_none());
 }
+
+#[test]
+fn the_picker_shows_the_impact_before_it_confirms() {
+    let (_t, dir) = demo_dir();
+    let mut h = open(&dir);
+    // "drought resistant" sits under "plants"; merge it into "drought tolerant" by the picker
+    let dr = h
+        .state()
+        .doc
+        .project
+        .phrases
+        .get("drought-resistant")
+        .unwrap();
+    h.state_mut().apply(treewright::gui::Action::Reveal(dr));
+    h.run();
+    h.get_all_by_label("drought resistant")
+        .next()
+        .unwrap()
+        .click_secondary();
+    h.run();
+    h.get_by_label("Merge into…").click();
+    h.run();
+    h.event(egui::Event::Text("drought tol".into()));
+    h.run();
+    h.get_by_label("drought tolerant  (under perennials)")
+        .click();
+    h.run();
+    // the preview of exactly the edit the picker would make, before "Merge" is pressed
+    let edit = Edit::Merge {
+        sources: vec!["drought-resistant".into()],
+        into: "drought-tolerant".into(),
+    };
+    let impact = h.state().doc.preview(&edit).unwrap();
+    h.get_by_label("Preview: merge drought-resistant into drought-tolerant");
+    h.get_by_label(&format!(
+        "findings: {} resolved, {} created (open {} -> {})",
+        impact.resolved.len(),
+        impact.created.len(),
+        impact.open_before,
+        impact.open_after
+    ));
+    assert!(
+        impact.resolved.iter().any(|f| f.rule == "near-duplicate"),
+        "{impact:?}"
+    );
+    assert!(h.state().doc.layer.edits.is_empty(), "nothing applied yet");
+}

@@ -17,7 +17,7 @@
 //! `apply` of the override layer, one copy of the auditor and one incremental re-audit
 //! (`cargo bench --bench impact`).
 
-use std::collections::BTreeMap;
+use std::collections::HashMap;
 
 use rayon::prelude::*;
 use serde::Serialize;
@@ -165,17 +165,17 @@ pub struct PreviewInput<'a> {
 
 type Key = (&'static str, PhraseId, Option<PhraseId>);
 
-fn open_keys(r: &AuditReport) -> BTreeMap<Key, Severity> {
-    r.findings
-        .iter()
-        .filter(|f| !f.accepted)
-        .map(|f| ((f.rule, f.node, f.other), f.severity))
-        .collect()
+fn open_keys(r: &AuditReport) -> HashMap<Key, Severity> {
+    let mut m = HashMap::with_capacity(r.findings.len());
+    for f in r.findings.iter().filter(|f| !f.accepted) {
+        m.insert((f.rule, f.node, f.other), f.severity);
+    }
+    m
 }
 
 fn changes(
-    from: &BTreeMap<Key, Severity>,
-    to: &BTreeMap<Key, Severity>,
+    from: &HashMap<Key, Severity>,
+    to: &HashMap<Key, Severity>,
     phrases: &PhraseTable,
     eff: &EffectiveTree,
 ) -> Vec<FindingChange> {
@@ -237,17 +237,16 @@ pub fn same_canonical(a: &EffectiveTree, b: &EffectiveTree) -> bool {
 }
 
 /// Preview `edit` (see the module documentation). A refused edit is `Err` with its reason.
-pub fn preview(input: &PreviewInput, edit: &Edit) -> Result<(Impact, AuditReport), EditRefusal> {
+/// Also returns the auditor after the edit (its report is the audit of the edited tree).
+pub fn preview(input: &PreviewInput, edit: &Edit) -> Result<(Impact, Auditor), EditRefusal> {
     let edit = edit.clone().normalized();
     overrides::check_edit(input.eff, input.phrases, &edit)?;
     let mut records = input.edits.to_vec();
     records.push(overrides::record(edit.clone(), "preview", None));
     let (after, problems) = overrides::apply(input.base, input.phrases, &records);
     let mut auditor = input.auditor.clone();
-    let report = auditor
-        .update(input.g, input.phrases, &after, &problems)
-        .clone();
-    let (kb, ka) = (open_keys(input.auditor.report()), open_keys(&report));
+    let report = auditor.update(input.g, input.phrases, &after, &problems);
+    let (kb, ka) = (open_keys(input.auditor.report()), open_keys(report));
     let mut resolved = changes(&kb, &ka, input.phrases, input.eff);
     let mut created = changes(&ka, &kb, input.phrases, &after);
     resolved.sort();
@@ -298,7 +297,7 @@ pub fn preview(input: &PreviewInput, edit: &Edit) -> Result<(Impact, AuditReport
         offers_not_checked: moved.len() - checked.len(),
         signoff_outdated,
     };
-    Ok((impact, report))
+    Ok((impact, auditor))
 }
 
 impl Workspace {
