@@ -26,7 +26,7 @@ fn demo(dir: &Path) -> String {
 }
 
 fn json(o: &Output) -> serde_json::Value {
-    assert_eq!(o.status.code(), Some(0), "{}", err(&o));
+    assert_eq!(o.status.code(), Some(0), "{}", err(o));
     serde_json::from_slice(&o.stdout).unwrap()
 }
 

@@ -99,6 +99,9 @@ struct Layout {
     items: Vec<(PhraseId, Role, Gaussian2)>,
 }
 
+/// Node, current parent, suggested parent, generation: what a two-parent view is for.
+type TwoKey = (PhraseId, PhraseId, PhraseId, u64);
+
 /// State of the ellipse panel.
 pub struct EllipsePanel {
     /// Show the parent of the first selected node.
@@ -122,7 +125,7 @@ pub struct EllipsePanel {
     /// parent in the projection that separates the two parents.
     pub both_parents: bool,
     /// The two-parent view of the last (node, current, suggested, generation).
-    two: Option<((PhraseId, PhraseId, PhraseId, u64), Option<TwoParents>)>,
+    two: Option<(TwoKey, Option<TwoParents>)>,
 }
 
 impl Default for EllipsePanel {

@@ -267,10 +267,10 @@ pub fn reach(eff: &EffectiveTree, weights: Option<&[f64]>) -> Vec<f64> {
     let own = |p: usize| weights.map_or(1.0, |w| w.get(p).copied().unwrap_or(0.0));
     let mut r: Vec<f64> = (0..n).map(own).collect();
     if weights.is_some() {
-        for p in 0..n {
+        for (p, rp) in r.iter_mut().enumerate() {
             if eff.tree.is_placed(p as PhraseId) {
                 for &a in &eff.aliases[p] {
-                    r[p] += own(a as usize);
+                    *rp += own(a as usize);
                 }
             }
         }
