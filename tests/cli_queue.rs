@@ -167,15 +167,26 @@ fn a_dry_run_prints_the_impact_and_writes_nothing() {
     );
     assert!(v["moved"].as_u64().unwrap() >= 1);
     assert_eq!(v["signoff_outdated"], false);
-    let o = tw(&["edit", &p, "reparent", node, parent, "--dry-run"]);
+    // (with --author, which a dry run accepts and ignores)
+    let o = tw(&[
+        "edit",
+        &p,
+        "reparent",
+        node,
+        parent,
+        "--dry-run",
+        "--author",
+        "ines",
+    ]);
     assert_eq!(o.status.code(), Some(0), "{}", err(&o));
     let text = out(&o);
     assert!(text.starts_with("Preview: reparent "), "{text}");
     assert!(text.contains("resolved"), "{text}");
     // nothing written: the override file's bytes and the folder's listing are unchanged
-    // (shown to fail against a broken twin: with the `return Ok(())` after the preview in
-    // src/cli/edit.rs removed and --author given, the dry run appends the edit and this
-    // comparison fails)
+    // (shown to fail against a broken twin, run once by hand: with the `return Ok(())` after
+    // the preview in src/cli/edit.rs removed, the first dry run above falls through to the
+    // real edit and fails for want of --author (exit 2); the one with --author would append
+    // the edit, which this comparison catches)
     assert_eq!(std::fs::read(&overrides).unwrap(), bytes);
     assert_eq!(listing(&p), files);
     // after a sign-off, the preview says it would become outdated (still writing nothing)
