@@ -245,3 +245,46 @@ fn the_picker_shows_the_impact_before_it_confirms() {
     );
     assert!(h.state().doc.layer.edits.is_empty(), "nothing applied yet");
 }
+
+#[test]
+fn the_suggestion_tab_follows_the_selection_unless_pinned() {
+    let (_t, dir) = demo_dir();
+    let mut h = open(&dir);
+    h.get_by_label("Shopper suggestions").click();
+    h.run();
+    let line_of = |h: &Harness<'_, App>, label: &str| {
+        h.query_by_label_contains(&format!("A shopper using \"{label}\""))
+            .is_some()
+    };
+    let label = |h: &Harness<'_, App>, id: &str| {
+        let app = h.state();
+        let p = app.doc.project.phrases.get(id).unwrap();
+        app.doc.eff.as_ref().unwrap().label(p).to_string()
+    };
+    // the top of the queue is selected at start, and the tab shows it
+    let top = {
+        let app = h.state();
+        app.doc
+            .eff
+            .as_ref()
+            .unwrap()
+            .label(app.selection[0])
+            .to_string()
+    };
+    assert!(line_of(&h, &top), "shows the selected {top}");
+    // a new selection is followed
+    let netting = h.state().doc.project.phrases.get("bird-netting").unwrap();
+    h.state_mut()
+        .apply(treewright::gui::Action::Reveal(netting));
+    h.run();
+    let netting_label = label(&h, "bird-netting");
+    assert!(line_of(&h, &netting_label));
+    // pinned: the selection moves, the tab stays
+    h.get_by_label("Pin this phrase").click();
+    h.run();
+    let gifts = h.state().doc.project.phrases.get("gifts").unwrap();
+    h.state_mut().apply(treewright::gui::Action::Reveal(gifts));
+    h.run();
+    assert!(line_of(&h, &netting_label), "still on the pinned phrase");
+    assert!(!line_of(&h, &label(&h, "gifts")));
+}
