@@ -156,7 +156,7 @@ fn every_subcommand_fails_as_the_readme_table_says() {
     let mut rows = vec![];
     // bad input (exit 2, message on standard error, nothing on standard output)
     for verb in [
-        "info", "audit", "undo", "verify", "diff", "suggest", "build",
+        "info", "audit", "undo", "verify", "diff", "suggest", "build", "queue",
     ] {
         rows.push(Failure {
             verb,

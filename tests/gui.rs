@@ -200,13 +200,11 @@ fn a_refused_edit_says_why_and_changes_nothing() {
 fn clicking_a_finding_selects_its_node_and_a_fix_applies_as_one_edit() {
     let (_t, dir) = demo_dir();
     let mut h = open(&dir);
-    // each row shows the finding's confidence next to its score
+    // each row shows the sentence that explains the finding under its title (the score,
+    // threshold and confidence are in words on hover)
     let shown = {
         let f = &h.state().doc.report().unwrap().findings[0];
-        format!(
-            "score {:.2} / {:.2} · confidence {:.2}",
-            f.score, f.threshold, f.confidence
-        )
+        treewright::gui::badges::plain(&f.explanation)
     };
     h.get_by_label(&shown);
     let (node, rule, label) = {

@@ -1,5 +1,7 @@
 //! `treewright edit PROJECT OP ... --author NAME [--note TEXT]`: record one edit in the
 //! override layer, after checking that it applies to the effective tree as it stands.
+//! With `--dry-run [--json]` it prints the edit's impact preview
+//! ([`crate::model::impact`]) instead and writes nothing.
 
 use std::path::PathBuf;
 
@@ -14,12 +16,19 @@ use crate::model::signoff::describe_edit;
 /// Who made an edit and why.
 #[derive(Debug, Args)]
 pub struct Meta {
-    /// Author of the edit.
-    #[arg(long)]
-    pub author: String,
+    /// Author of the edit (not needed with --dry-run).
+    #[arg(long, required_unless_present = "dry_run")]
+    pub author: Option<String>,
     /// Optional note stored with the edit.
     #[arg(long)]
     pub note: Option<String>,
+    /// Show what the edit would do (findings resolved and created, top broader offers that
+    /// change, whether the sign-off becomes outdated) and write nothing.
+    #[arg(long)]
+    pub dry_run: bool,
+    /// With --dry-run: the preview as JSON.
+    #[arg(long, requires = "dry_run")]
+    pub json: bool,
 }
 
 /// Arguments of `edit`.
@@ -196,13 +205,29 @@ pub fn run(args: EditArgs) -> Result<(), CliError> {
             )
         }
     };
-    if meta.author.trim().is_empty() {
+    if meta.dry_run {
+        // a preview: the override file is not touched (not even locked)
+        let impact = ws.preview(&edit)?;
+        if meta.json {
+            println!(
+                "{}",
+                serde_json::to_string_pretty(&impact).map_err(CliError::bad_input)?
+            );
+        } else {
+            for line in impact.lines() {
+                println!("{line}");
+            }
+        }
+        return Ok(());
+    }
+    let author = meta.author.unwrap_or_default();
+    if author.trim().is_empty() {
         return Err(CliError::bad_input("--author is empty"));
     }
     ws.check_edit(&edit)
         .map_err(crate::model::WorkspaceError::from)?;
     let text = describe_edit(&edit);
-    let index = ws.append(edit, meta.author.trim(), meta.note)?;
+    let index = ws.append(edit, author.trim(), meta.note)?;
     println!("edit #{index}: {text}");
     Ok(())
 }

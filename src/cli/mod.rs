@@ -22,6 +22,7 @@ pub mod manpage;
 pub mod merge_edits;
 pub mod progress;
 pub mod redo;
+pub mod queue;
 pub mod resolve;
 pub mod sample;
 pub mod signoff;
@@ -97,6 +98,9 @@ pub enum Command {
     History(history::HistoryArgs),
     /// Bring back what the latest undo cancelled (appends a revert of the revert).
     Redo(redo::RedoArgs),
+    /// The review queue: nodes ordered by risk (finding confidence × reach), with why and
+    /// the suggested decision.
+    Queue(queue::QueueArgs),
 }
 
 /// A failed subcommand: the message to print and the exit code.
@@ -165,6 +169,7 @@ pub fn run(command: Command) -> ExitCode {
         Command::Fit(a) => fit::run(&a),
         Command::History(a) => history::run(&a),
         Command::Redo(a) => redo::run(&a),
+        Command::Queue(a) => queue::run(&a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

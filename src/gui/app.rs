@@ -18,6 +18,7 @@ use super::doc::Doc;
 use super::ellipse_panel::EllipsePanel;
 use super::findings_panel::FindingsPanel;
 use super::menu_bar::MenuBar;
+use super::queue_panel::QueuePanel;
 use super::stats_panel::StatsPanel;
 use super::status_bar::StatusBar;
 use super::suggest_panel::SuggestPanel;
@@ -51,6 +52,15 @@ pub struct App {
     autosaved_len: Option<usize>,
     focus_search: bool,
     quit_requested: bool,
+    queue_panel: QueuePanel,
+    /// The review queue of this session (built when the first audit is done).
+    pub queue: Option<crate::model::queue::ReviewQueue>,
+    /// Generation of the document the queue was last brought up to date with.
+    queue_gen: u64,
+    /// Traffic weights from the manifest (`weights`), read with the queue.
+    weights: Option<Vec<f64>>,
+    /// Whether the top of the queue was selected at start.
+    started: bool,
 }
 
 impl App {
@@ -80,6 +90,11 @@ impl App {
             autosaved_len: None,
             focus_search: false,
             quit_requested: false,
+            queue_panel: QueuePanel::default(),
+            queue: None,
+            queue_gen: 0,
+            weights: None,
+            started: false,
         };
         app.after_open();
         app
@@ -336,6 +351,61 @@ impl App {
                 self.allow_close = true;
                 self.quit_requested = true;
             }
+            Action::SkipQueued(p) => {
+                if let Some(q) = &mut self.queue
+                    && let Some(i) = q.position(p)
+                {
+                    q.skip(i);
+                }
+            }
+        }
+    }
+
+    /// Build the review queue once the first audit is done, and bring it up to date
+    /// (incrementally) after every change of the document. At the first build the top of the
+    /// queue is selected and shown, unless something is selected already (`--select`).
+    pub fn sync_queue(&mut self) {
+        let (Some(report), Some(eff)) = (self.doc.report(), self.doc.eff.as_ref()) else {
+            return;
+        };
+        if self.queue.is_some() && self.queue_gen == self.doc.generation {
+            return;
+        }
+        match &mut self.queue {
+            Some(q) => q.update(
+                report,
+                eff,
+                &self.doc.project.phrases,
+                self.weights.as_deref(),
+            ),
+            None => {
+                self.weights = match crate::model::queue::project_weights(&self.doc.project) {
+                    Ok(w) => w,
+                    Err(e) => {
+                        self.message = Some((format!("Review queue without weights: {e}"), true));
+                        None
+                    }
+                };
+                self.queue = Some(crate::model::queue::ReviewQueue::build(
+                    report,
+                    eff,
+                    &self.doc.project.phrases,
+                    self.weights.as_deref(),
+                ));
+            }
+        }
+        self.queue_gen = self.doc.generation;
+        if !self.started {
+            self.started = true;
+            let top = self
+                .queue
+                .as_ref()
+                .and_then(|q| q.next_open(None).map(|i| q.items[i].node));
+            if self.selection.is_empty()
+                && let Some(p) = top
+            {
+                self.apply(Action::Reveal(p));
+            }
         }
     }
 
@@ -404,7 +474,7 @@ impl App {
 
     /// The kinds of the panels this app holds, each drawn through [`Panel::ui`].
     pub fn panel_kinds(&self) -> Vec<PanelKind> {
-        let panels: [&dyn Panel; 7] = [
+        let panels: [&dyn Panel; 8] = [
             &self.menu_bar,
             &self.status_bar,
             &self.tree_panel,
@@ -412,6 +482,7 @@ impl App {
             &self.stats_panel,
             &self.ellipse_panel,
             &self.suggest_panel,
+            &self.queue_panel,
         ];
         panels.iter().map(|p| p.kind()).collect()
     }
@@ -449,14 +520,16 @@ impl App {
             actions.extend(sc.actions);
         }
 
+        self.sync_queue();
         let focus_search = std::mem::take(&mut self.focus_search);
-        let view = view_ctx(
+        let mut view = view_ctx(
             &self.doc,
             &self.settings,
             &self.selection,
             self.message.as_ref(),
             focus_search,
         );
+        view.queue = self.queue.as_ref();
         let drawn = &mut self.drawn;
         drawn.clear();
         let mut draw = |panel: &mut dyn Panel, ui: &mut egui::Ui, actions: &mut Vec<Action>| {
@@ -485,7 +558,10 @@ impl App {
                 .default_size(380.0)
                 .min_size(260.0)
                 .show(ui, |ui| {
-                    // findings on top (the review workflow), statistics of the selection below
+                    // the review queue, then the findings (the review workflow), statistics of
+                    // the selection below
+                    draw(&mut self.queue_panel, ui, &mut actions);
+                    ui.separator();
                     draw(&mut self.findings_panel, ui, &mut actions);
                     ui.separator();
                     egui::ScrollArea::vertical()
@@ -566,6 +642,8 @@ impl DocQueries for Doc {
 
     fn reverted_signoffs(&self) -> Vec<String> {
         crate::model::history::reverted_signoff_lines(&self.layer.edits)
+    fn preview(&self, edit: &Edit) -> Result<crate::model::impact::Impact, String> {
+        Workspace::preview(self, edit).map_err(|e| e.to_string())
     }
 }
 
@@ -598,6 +676,7 @@ fn view_ctx<'a>(
         message,
         focus_search,
         queries: doc,
+        queue: None,
     }
 }
 

@@ -165,6 +165,8 @@ pub enum Action {
     SaveAndQuit,
     /// Close the window, dropping unsaved edits and the recovery file.
     DiscardAndQuit,
+    /// Pass over a node of the review queue for now.
+    SkipQueued(PhraseId),
 }
 
 /// Every panel of the window; each has one [`Panel`] implementation that the app draws.
@@ -184,11 +186,13 @@ pub enum PanelKind {
     Ellipses,
     /// What shoppers would be offered for a phrase (centre).
     Suggestions,
+    /// The review queue (right, above the findings).
+    Queue,
 }
 
 impl PanelKind {
     /// Every panel, in drawing order.
-    pub const ALL: [PanelKind; 7] = [
+    pub const ALL: [PanelKind; 8] = [
         PanelKind::MenuBar,
         PanelKind::StatusBar,
         PanelKind::Tree,
@@ -196,6 +200,7 @@ impl PanelKind {
         PanelKind::Stats,
         PanelKind::Ellipses,
         PanelKind::Suggestions,
+        PanelKind::Queue,
     ];
 }
 
@@ -296,6 +301,9 @@ pub trait DocQueries {
     /// Sign-offs cancelled by a revert: one line each with who reverted it and why.
     fn reverted_signoffs(&self) -> Vec<String> {
         Vec::new()
+    /// What an edit would do, before it is made ([`crate::model::impact`]).
+    fn preview(&self, _edit: &Edit) -> Result<crate::model::impact::Impact, String> {
+        Err("not available".into())
     }
 }
 
@@ -342,6 +350,8 @@ pub struct ViewCtx<'a> {
     pub focus_search: bool,
     /// Costly questions to the document.
     pub queries: &'a dyn DocQueries,
+    /// The review queue of this session (none before the first audit is done).
+    pub queue: Option<&'a crate::model::queue::ReviewQueue>,
 }
 
 impl ViewCtx<'_> {
@@ -378,10 +388,11 @@ mod tests {
                 | PanelKind::Findings
                 | PanelKind::Stats
                 | PanelKind::Ellipses
-                | PanelKind::Suggestions => {}
+                | PanelKind::Suggestions
+                | PanelKind::Queue => {}
             }
             assert!(seen.insert(k), "{k:?} listed twice");
         }
-        assert_eq!(seen.len(), 7);
+        assert_eq!(seen.len(), 8);
     }
 }

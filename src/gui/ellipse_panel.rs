@@ -13,6 +13,8 @@ use crate::model::projection::{self, Gaussian2, Projection};
 
 use super::badges::ROLE_COLOURS;
 use super::context::{Action, Panel, PanelKind, ViewCtx};
+use super::two_parent_plot;
+use crate::model::two_parents::{TwoParents, placement_of, two_parents};
 
 /// Most children / siblings drawn (the rest are listed as "… and N more").
 pub const MAX_RELATIVES: usize = 40;
@@ -97,6 +99,9 @@ struct Layout {
     items: Vec<(PhraseId, Role, Gaussian2)>,
 }
 
+/// Node, current parent, suggested parent, generation: what a two-parent view is for.
+type TwoKey = (PhraseId, PhraseId, PhraseId, u64);
+
 /// State of the ellipse panel.
 pub struct EllipsePanel {
     /// Show the parent of the first selected node.
@@ -116,6 +121,11 @@ pub struct EllipsePanel {
     layout: Option<Layout>,
     problem: Option<String>,
     hover_containment: HashMap<(PhraseId, u64), Sampled>,
+    /// For a node with a placement finding, show it with its current and its suggested
+    /// parent in the projection that separates the two parents.
+    pub both_parents: bool,
+    /// The two-parent view of the last (node, current, suggested, generation).
+    two: Option<(TwoKey, Option<TwoParents>)>,
 }
 
 impl Default for EllipsePanel {
@@ -132,6 +142,8 @@ impl Default for EllipsePanel {
             layout: None,
             problem: None,
             hover_containment: HashMap::new(),
+            both_parents: true,
+            two: None,
         }
     }
 }
@@ -240,6 +252,11 @@ impl EllipsePanel {
             ui.checkbox(&mut self.with_children, "children");
             ui.checkbox(&mut self.with_siblings, "siblings");
             ui.checkbox(&mut self.labels, "labels");
+            ui.checkbox(&mut self.both_parents, "both parents")
+                .on_hover_text(
+                    "For a node with a placement finding: the node, its current parent and the \
+                 suggested parent, on the axis through the two parents",
+                );
         });
         ui.horizontal_wrapped(|ui| {
             ui.label("Ellipses:");
@@ -309,6 +326,68 @@ impl EllipsePanel {
     }
 }
 
+impl EllipsePanel {
+    /// The two-parent view of the selected node when it has an open placement finding with
+    /// a suggested parent; false (nothing drawn) otherwise.
+    fn two_parent_view(&mut self, ui: &mut egui::Ui, view: &ViewCtx) -> bool {
+        let ([node], Some(report), Some(eff)) = (view.selection, view.report, view.eff) else {
+            return false;
+        };
+        let Some(current) = eff.tree.parent(*node) else {
+            return false;
+        };
+        let Some((_, suggested)) = placement_of(report, &view.project.phrases, *node) else {
+            return false;
+        };
+        if suggested == current {
+            return false;
+        }
+        let key = (*node, current, suggested, view.generation);
+        if self.two.as_ref().map(|t| t.0) != Some(key) {
+            let t = two_parents(&view.project.gaussians, *node, current, suggested);
+            self.two = Some((key, t));
+        }
+        let Some((_, Some(t))) = &self.two else {
+            return false;
+        };
+        let label = |p: PhraseId| eff.label(p).to_string();
+        ui.strong("Both parents: the node, its current parent and the suggested one");
+        ui.add(egui::Label::new(t.caption(&label)).wrap());
+        let [ex, ey] = t.projection.explained;
+        ui.label(format!(
+            "Contrast axis through the two parents ({:.1} % of the shown spread) and the best \
+             orthogonal axis ({:.1} %).",
+            ex * 100.0,
+            ey * 100.0
+        ));
+        let shown = [
+            (
+                *node,
+                "node",
+                Role::Selected.colour(),
+                MarkerShape::Diamond,
+                LineStyle::Solid,
+            ),
+            (
+                current,
+                "current parent",
+                Role::Parent.colour(),
+                MarkerShape::Square,
+                LineStyle::Solid,
+            ),
+            (
+                suggested,
+                "suggested parent",
+                Role::Child.colour(),
+                MarkerShape::Up,
+                LineStyle::dashed_loose(),
+            ),
+        ];
+        two_parent_plot::plot(ui, view, ("two-parents", *node), &shown, &t.projection);
+        true
+    }
+}
+
 impl Panel for EllipsePanel {
     fn kind(&self) -> PanelKind {
         PanelKind::Ellipses
@@ -320,6 +399,9 @@ impl Panel for EllipsePanel {
         self.controls(ui, view);
         if view.selection.is_empty() {
             ui.label("Select a node in the tree (Ctrl-click for more) to see its ellipses.");
+            return actions;
+        }
+        if self.both_parents && self.two_parent_view(ui, view) {
             return actions;
         }
         let shown = self.shown(view);

@@ -13,12 +13,13 @@ use egui::{RichText, Sense};
 use crate::model::audit::evaluate::is_placement_rule;
 use crate::model::audit::{Finding, Severity};
 use crate::model::edit::{Edit, ReviewStatus};
+use crate::model::queue::score_in_words;
 
 use super::badges;
 use super::context::{Action, Panel, PanelKind, ViewCtx};
 
-/// Height of one finding row (two lines) without spacing.
-const ROW_HEIGHT: f32 = 44.0;
+/// Height of one finding row (title, two lines of explanation, buttons) without spacing.
+const ROW_HEIGHT: f32 = 76.0;
 
 /// Sort order.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -55,6 +56,8 @@ struct Cached {
     consider_hidden: usize,
     /// Whether each suggested fix applies now (checked lazily, only for rows drawn).
     fix_ok: HashMap<usize, Option<String>>,
+    /// Impact previews of the fixes hovered (lines, or why there is none).
+    previews: HashMap<usize, Result<Vec<String>, String>>,
 }
 
 impl Default for FindingsPanel {
@@ -135,6 +138,7 @@ impl FindingsPanel {
                     .count()
             },
             fix_ok: HashMap::new(),
+            previews: HashMap::new(),
         });
     }
 }
@@ -260,24 +264,21 @@ impl Panel for FindingsPanel {
                                         .sense(Sense::click()),
                                 )
                                 .on_hover_text(format!(
-                                    "{}\nscore {:.3} (threshold {:.3}), confidence {:.2}\nclick to show the node",
+                                    "{}\n{}\nclick to show the node",
                                     badges::plain(&f.explanation),
-                                    f.score,
-                                    f.threshold,
-                                    f.confidence
+                                    score_in_words(f)
                                 ));
                             if r.clicked() {
                                 actions.push(Action::Reveal(f.node));
                             }
                         });
+                        // the sentence that explains it, wrapped; the numbers in words on hover
+                        ui.add(
+                            egui::Label::new(RichText::new(badges::plain(&f.explanation)).small())
+                                .wrap(),
+                        )
+                        .on_hover_text(score_in_words(f));
                         ui.horizontal(|ui| {
-                            ui.label(
-                                RichText::new(format!(
-                                    "score {:.2} / {:.2} · confidence {:.2}",
-                                    f.score, f.threshold, f.confidence
-                                ))
-                                .small(),
-                            );
                             if f.accepted {
                                 ui.label(badges::pill("accepted", badges::SKY));
                                 return;
@@ -295,14 +296,30 @@ impl Panel for FindingsPanel {
                                         why.is_none(),
                                         egui::Button::new(RichText::new("Apply fix").small()),
                                     )
-                                    .on_hover_text(format!(
-                                        "{}{} (one edit; Ctrl+Z undoes)",
-                                        s.action,
-                                        s.target
-                                            .as_ref()
-                                            .map(|t| format!(" to {t}"))
-                                            .unwrap_or_default()
-                                    ));
+                                    .on_hover_ui(|ui| {
+                                        ui.label(format!(
+                                            "{}{} (one edit; Ctrl+Z undoes)",
+                                            s.action,
+                                            s.target
+                                                .as_ref()
+                                                .map(|t| format!(" to {t}"))
+                                                .unwrap_or_default()
+                                        ));
+                                        // the impact preview, computed once per edit and tree
+                                        let lines = cache.previews.entry(i).or_insert_with(|| {
+                                            view.queries.preview(edit).map(|x| x.lines())
+                                        });
+                                        match lines {
+                                            Ok(l) => {
+                                                for line in l.iter() {
+                                                    ui.label(line.as_str());
+                                                }
+                                            }
+                                            Err(e) => {
+                                                ui.label(format!("No preview: {e}"));
+                                            }
+                                        }
+                                    });
                                 let b = match why {
                                     Some(w) => b.on_disabled_hover_text(badges::plain(&format!(
                                         "Cannot apply: {w}"

@@ -14,11 +14,13 @@ pub mod doc;
 pub mod ellipse_panel;
 pub mod findings_panel;
 pub mod menu_bar;
+pub mod queue_panel;
 pub mod shortcuts;
 pub mod stats_panel;
 pub mod status_bar;
 pub mod suggest_panel;
 pub mod tree_panel;
+pub mod two_parent_plot;
 
 pub use app::App;
 pub use context::{Action, Panel, PanelKind, Settings, ViewCtx};

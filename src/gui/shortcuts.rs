@@ -96,6 +96,15 @@ pub const TREE_KEYS: &[(&str, &str)] = &[
     ),
 ];
 
+/// Keys of the review queue (they act when no text field has the focus).
+pub const QUEUE_KEYS: &[(&str, &str)] = &[
+    ("N / P", "Next / previous node still waiting"),
+    ("A", "Approve the node"),
+    ("F", "Mark it to fix (with a comment)"),
+    ("S", "Apply the suggested edit"),
+    ("K", "Skip it for now"),
+];
+
 /// Keys of the ellipse view.
 pub const PLOT_KEYS: &[(&str, &str)] = &[
     ("Scroll / Ctrl+scroll", "Pan / zoom"),

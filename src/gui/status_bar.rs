@@ -66,6 +66,11 @@ fn status(ui: &mut egui::Ui, view: &ViewCtx, actions: &mut Vec<Action>) {
             ));
             ui.separator();
         }
+        if let Some(q) = view.queue {
+            ui.label(format!("queue: {}", q.progress().text()))
+                .on_hover_text("The review queue's progress towards sign-off");
+            ui.separator();
+        }
         match view.queries.sign_state() {
             SignState::Unsigned => {
                 ui.label("not signed off");

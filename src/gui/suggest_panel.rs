@@ -63,6 +63,11 @@ pub struct SuggestPanel {
     status: String,
     /// Phrase matches of the search box: (query, tree revision) → first rows matching.
     matches: Option<(String, u64, Vec<PhraseId>)>,
+    /// Keep the shown phrase while the tree selection changes ("Pin this phrase"); when
+    /// off, the panel follows the tree selection.
+    pub pinned: bool,
+    /// The tree selection last followed.
+    followed: Option<PhraseId>,
 }
 
 impl Default for SuggestPanel {
@@ -81,6 +86,8 @@ impl Default for SuggestPanel {
             sort: BulkSort::Tree,
             status: String::new(),
             matches: None,
+            pinned: false,
+            followed: None,
         }
     }
 }
@@ -205,7 +212,22 @@ impl SuggestPanel {
         if self.poll() {
             ui.ctx().request_repaint();
         }
-        ui.heading("Suggestion preview");
+        // follow the tree selection when it changes, unless pinned (a phrase picked in the
+        // search box stays until the selection moves)
+        if !self.pinned && view.selected != self.followed {
+            self.followed = view.selected;
+            if view.selected.is_some() {
+                self.phrase = view.selected;
+            }
+        }
+        ui.horizontal(|ui| {
+            ui.heading("Suggestion preview");
+            ui.checkbox(&mut self.pinned, "Pin this phrase")
+                .on_hover_text(
+                    "Keep showing this phrase while the tree selection changes; \
+                 unticked, the preview follows the tree selection",
+                );
+        });
         self.picker(ui, view);
         ui.separator();
         let users = &view.project.users;

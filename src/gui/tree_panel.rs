@@ -29,6 +29,8 @@ pub struct TreePanel {
     scroll_to: Option<PhraseId>,
     outside: (Vec<PhraseId>, Vec<PhraseId>),
     outside_for: Option<u64>,
+    /// Impact preview of the drop under the pointer: (generation, edit, lines).
+    drop_preview: Option<(u64, Edit, Vec<String>)>,
 }
 
 impl TreePanel {
@@ -51,6 +53,7 @@ impl TreePanel {
             scroll_to: None,
             outside: (Vec::new(), Vec::new()),
             outside_for: None,
+            drop_preview: None,
         }
     }
 
@@ -391,6 +394,7 @@ impl Panel for TreePanel {
             let view_h = ui.available_height();
             area = area.vertical_scroll_offset((i as f32 * row_h - view_h / 2.0).max(0.0));
         }
+        let mut drop_preview = self.drop_preview.take();
         let rows = &self.rows;
         let mut toggles = Vec::new();
         area.show_rows(ui, ROW_HEIGHT, rows.len(), |ui, range| {
@@ -454,7 +458,24 @@ impl Panel for TreePanel {
                             parent: ctx.project.phrases.id(p).to_string(),
                         };
                         let tip = match ctx.check(&edit) {
-                            Ok(()) => format!("Drop to move under \"{label}\""),
+                            Ok(()) => {
+                                // the impact preview, once per target and tree
+                                let fresh = matches!(&drop_preview,
+                                    Some((g, e, _)) if *g == ctx.generation && *e == edit);
+                                if !fresh {
+                                    let lines = ctx
+                                        .queries
+                                        .preview(&edit)
+                                        .map(|i| i.lines())
+                                        .unwrap_or_default();
+                                    drop_preview = Some((ctx.generation, edit.clone(), lines));
+                                }
+                                let lines = drop_preview
+                                    .as_ref()
+                                    .map(|d| d.2.join("\n"))
+                                    .unwrap_or_default();
+                                format!("Drop to move under \"{label}\"\n{lines}")
+                            }
                             Err(why) => badges::plain(&format!("Cannot drop here: {why}")),
                         };
                         r.show_tooltip_text(tip);
@@ -475,6 +496,7 @@ impl Panel for TreePanel {
                 });
             }
         });
+        self.drop_preview = drop_preview;
         for (p, open) in toggles {
             self.set_expanded(p, open);
         }

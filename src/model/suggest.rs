@@ -553,6 +553,12 @@ pub fn bulk_check_with(
     rows.into_iter().collect()
 }
 
+/// The top broader offer of `p` as the bulk check ranks it (bounded candidate pool, generic
+/// order), or `None` when nothing broader is offered.
+pub fn top_broader(ctx: &SuggestCtx, p: PhraseId) -> Option<Candidate> {
+    rank(ctx.broader(p, false), 1, None, ctx).into_iter().next()
+}
+
 /// The phrases the bulk check covers: every node of the effective tree but the root.
 pub fn bulk_nodes(eff: &EffectiveTree) -> Vec<PhraseId> {
     let tree = &eff.tree;

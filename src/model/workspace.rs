@@ -491,6 +491,14 @@ impl Workspace {
         }
     }
 
+    /// The incremental auditor, when its first audit is done.
+    pub fn auditor(&self) -> Option<&Auditor> {
+        match &self.audit {
+            AuditState::Ready(a) => Some(a),
+            _ => None,
+        }
+    }
+
     /// A full audit of the effective tree as it stands: the kept report when the workspace
     /// has an up-to-date auditor, else a fresh audit.
     pub fn audit_now(&self) -> Result<AuditReport, WorkspaceError> {

@@ -2,7 +2,7 @@
 
 use egui::{Id, Modal};
 
-use super::super::shortcuts::{GLOBAL, PLOT_KEYS, TREE_KEYS};
+use super::super::shortcuts::{GLOBAL, PLOT_KEYS, QUEUE_KEYS, TREE_KEYS};
 use super::DialogOut;
 
 /// The shortcut list.
@@ -37,6 +37,17 @@ pub fn shortcuts(ctx: &egui::Context) -> DialogOut {
             .striped(true)
             .show(ui, |ui| {
                 for (k, what) in PLOT_KEYS {
+                    ui.monospace(*k);
+                    ui.label(*what);
+                    ui.end_row();
+                }
+            });
+        ui.label(egui::RichText::new("Review queue").strong());
+        egui::Grid::new("keys-queue")
+            .num_columns(2)
+            .striped(true)
+            .show(ui, |ui| {
+                for (k, what) in QUEUE_KEYS {
                     ui.monospace(*k);
                     ui.label(*what);
                     ui.end_row();

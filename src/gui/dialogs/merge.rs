@@ -7,7 +7,7 @@
 use std::collections::{BTreeMap, HashMap};
 
 use egui::{Color32, Id, Modal};
-use egui_plot::{Legend, Line, LineStyle, MarkerShape, Plot, PlotPoint, PlotPoints, Points, Text};
+use egui_plot::{LineStyle, MarkerShape};
 
 use crate::model::PhraseId;
 use crate::model::gaussian::{Sampled, containment};
@@ -17,6 +17,7 @@ use crate::model::signoff::describe_edit;
 
 use super::super::badges::ROLE_COLOURS;
 use super::super::context::{Action, ViewCtx};
+use super::super::two_parent_plot;
 use super::{DialogOut, ok_cancel};
 
 /// Conflicts from which on the ellipse views start folded (each costs two applications of
@@ -24,8 +25,6 @@ use super::{DialogOut, ok_cancel};
 const OPEN_VIEWS_UP_TO: usize = 4;
 /// Samples for the containment of the node in each candidate parent.
 const CONTAINMENT_SAMPLES: usize = 4000;
-/// Points per ellipse outline.
-const OUTLINE_POINTS: usize = 72;
 
 /// One node of a placement conflict, ready to draw: where each choice puts it and how much
 /// of it (95 % region, sampled) each candidate parent contains.
@@ -239,42 +238,5 @@ fn two_parent_view(ui: &mut egui::Ui, view: &ViewCtx, id: &str, v: &PlacementVie
         ui.weak("(one dimension: no ellipse view)");
         return;
     };
-    let alphas = projection::sigma_levels();
-    Plot::new(("merge-two-parents", id, node))
-        .height(220.0)
-        .data_aspect(1.0)
-        .legend(Legend::default())
-        .show_crosshair(false)
-        .allow_scroll(false)
-        .show(ui, |pui| {
-            for (s, gv) in shown.iter().zip(&gs) {
-                let (p, name, colour, marker, style) = *s;
-                let g2 = projection::project(gv, &proj.axes);
-                for (k, &alpha) in alphas.iter().enumerate() {
-                    let pts: PlotPoints = g2.ellipse(alpha, OUTLINE_POINTS).into();
-                    pui.line(
-                        Line::new(name, pts)
-                            .color(colour)
-                            .style(style)
-                            .width(2.0 - 0.4 * k as f32)
-                            .allow_hover(false)
-                            .id(("merge-ellipse", id, p, name, k)),
-                    );
-                }
-                pui.points(
-                    Points::new(name, vec![g2.mean])
-                        .shape(marker)
-                        .radius(5.0)
-                        .filled(true)
-                        .color(colour)
-                        .id(("merge-mean", id, p, name)),
-                );
-                pui.text(
-                    Text::new("", PlotPoint::new(g2.mean[0], g2.mean[1]), label(p))
-                        .anchor(egui::Align2::LEFT_BOTTOM)
-                        .allow_hover(false)
-                        .id(("merge-label", id, p, name)),
-                );
-            }
-        });
+    two_parent_plot::plot(ui, view, ("merge-two-parents", id, node), &shown, &proj);
 }

@@ -26,6 +26,8 @@ pub struct PickerDialog {
     candidates: Option<((String, u64), Vec<PhraseId>)>,
     /// Why a target is refused (None = allowed), for the current generation.
     refusals: (u64, HashMap<PhraseId, Option<String>>),
+    /// Impact preview of the chosen target: (target, generation, lines or why none).
+    preview: Option<(PhraseId, u64, Result<Vec<String>, String>)>,
 }
 
 impl PickerDialog {
@@ -44,6 +46,7 @@ impl PickerDialog {
             focused: false,
             candidates: None,
             refusals: (0, HashMap::new()),
+            preview: None,
         }
     }
 
@@ -155,6 +158,29 @@ impl PickerDialog {
             ui.separator();
             if let Some(t) = self.target {
                 ui.label(format!("Target: {}", eff.label(t)));
+                // what the edit would do, before it is confirmed (one edit at a time)
+                let fresh =
+                    matches!(&self.preview, Some((pt, g, _)) if *pt == t && *g == view.generation);
+                if !fresh {
+                    let edits = self.edits(view, t);
+                    let lines = match edits.as_slice() {
+                        [e] => view.queries.preview(e).map(|i| i.lines()),
+                        _ => Err("shown for one node at a time".into()),
+                    };
+                    self.preview = Some((t, view.generation, lines));
+                }
+                if let Some((_, _, lines)) = &self.preview {
+                    match lines {
+                        Ok(l) => {
+                            for line in l {
+                                ui.label(egui::RichText::new(line.as_str()).small());
+                            }
+                        }
+                        Err(e) => {
+                            ui.weak(format!("No preview: {e}"));
+                        }
+                    }
+                }
             } else {
                 ui.label("Click a target above.");
             }

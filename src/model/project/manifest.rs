@@ -135,6 +135,10 @@ pub struct Manifest {
     /// only sign-offs signed by an allowed key of the named reviewer.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub signoff: Option<SignoffPolicyRef>,
+    /// Traffic per phrase (`.json` or `.csv`), the reach of the review queue
+    /// ([`crate::model::queue`]).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub weights: Option<String>,
 }
 
 /// The manifest's `signoff` section: files of the signer policy (see

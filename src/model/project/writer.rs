@@ -82,6 +82,7 @@ impl ProjectWriter<'_> {
             audit: None,
             limits: None,
             signoff: None,
+            weights: None,
         };
         fsutil::atomic_write(
             &dir.join(MANIFEST_NAME),
