@@ -642,6 +642,8 @@ impl DocQueries for Doc {
 
     fn reverted_signoffs(&self) -> Vec<String> {
         crate::model::history::reverted_signoff_lines(&self.layer.edits)
+    }
+
     fn preview(&self, edit: &Edit) -> Result<crate::model::impact::Impact, String> {
         Workspace::preview(self, edit).map_err(|e| e.to_string())
     }

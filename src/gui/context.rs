@@ -301,6 +301,8 @@ pub trait DocQueries {
     /// Sign-offs cancelled by a revert: one line each with who reverted it and why.
     fn reverted_signoffs(&self) -> Vec<String> {
         Vec::new()
+    }
+
     /// What an edit would do, before it is made ([`crate::model::impact`]).
     fn preview(&self, _edit: &Edit) -> Result<crate::model::impact::Impact, String> {
         Err("not available".into())
