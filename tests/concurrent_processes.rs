@@ -154,6 +154,7 @@ fn unchecked_undo_twin(dir: &Path, loaded: &[u8]) {
 #[test]
 fn undo_racing_edit_loses_nothing_and_the_unchecked_twin_does() {
     let t = tempfile::tempdir().unwrap();
+    let mut undo_refused = 0;
     for round in 0..6 {
         let dir = t.path().join(format!("r{round}"));
         write_demo(&dir).unwrap();
@@ -189,6 +190,7 @@ fn undo_racing_edit_loses_nothing_and_the_unchecked_twin_does() {
         } else {
             // edit first: the undo would have dropped the edit, and is refused instead
             assert!(err(undo).contains("changed on disk"), "{}", err(undo));
+            undo_refused += 1;
             assert_eq!(
                 now,
                 vec![e1.clone(), e2.clone(), e3.clone()],
@@ -196,6 +198,7 @@ fn undo_racing_edit_loses_nothing_and_the_unchecked_twin_does() {
             );
         }
     }
+    eprintln!("undo racing edit: 6 rounds, undo refused as changed on disk in {undo_refused}");
     // the twin in the schedule "both load, edit saves, undo saves": the edit is gone
     let dir = t.path().join("twin");
     write_demo(&dir).unwrap();

@@ -160,6 +160,7 @@ fn npy_headers_claiming_huge_shapes_are_refused() {
     let accepted = std::cell::Cell::new(0usize);
     let refused = std::cell::Cell::new(0usize);
     let worst = std::cell::Cell::new(0.0f64);
+    let largest = std::cell::Cell::new((0usize, 0usize));
     runner()
         .run(&strategy, |(a, b, tail, _small)| {
             let tail = tail.max(0) as usize;
@@ -192,13 +193,19 @@ fn npy_headers_claiming_huge_shapes_are_refused() {
                 npy.len()
             );
             worst.set(worst.get().max(big as f64 / npy.len() as f64));
+            if big > largest.get().0 {
+                largest.set((big, npy.len()));
+            }
             Ok(())
         })
         .unwrap();
     eprintln!(
-        "npy headers: {} accepted, {} refused; largest allocation at most {:.2}× the input size",
+        "npy headers: {} accepted, {} refused; largest allocation {} bytes (for a {}-byte \
+         input); at most {:.2}× the input size",
         accepted.get(),
         refused.get(),
+        largest.get().0,
+        largest.get().1,
         worst.get()
     );
     // the accepting branch really ran (about a quarter of the cases draw an exact fit)
