@@ -6,6 +6,16 @@ use clap::Parser;
 use treewright::cli::{self, Cli};
 
 fn main() -> ExitCode {
+    #[cfg(feature = "test-broken-writer")]
+    eprintln!(
+        "treewright: WARNING: this is a test build with the non-atomic file writer \
+         (feature test-broken-writer){}; never use it on real projects",
+        if treewright::model::fsutil::broken_writer::active() {
+            ", and it is active"
+        } else {
+            ""
+        }
+    );
     let argv: Vec<std::ffi::OsString> = std::env::args_os().collect();
     if let Err(e) = cli::typo::check_first_word(&argv) {
         eprintln!("treewright: {}", e.message);

@@ -170,4 +170,66 @@ fn bulk_csv_is_written_and_parses_back() {
     // the planted wrong-parent tag is flagged: its top offer is not an ancestor
     let bird = rows.iter().find(|r| r.id == "bird-netting").unwrap();
     assert!(bird.flagged(), "{bird:?}");
+
+    // independently of the project's parser: the `csv` crate's generic reader, columns by
+    // header name, every row checked against the demo's own files (phrases.json, tree.json)
+    let phrases: Vec<serde_json::Value> =
+        serde_json::from_slice(&std::fs::read("sample-projects/fernhollow/phrases.json").unwrap())
+            .unwrap();
+    let tree: serde_json::Value =
+        serde_json::from_slice(&std::fs::read("sample-projects/fernhollow/tree.json").unwrap())
+            .unwrap();
+    let label_of: std::collections::HashMap<String, String> = phrases
+        .iter()
+        .map(|p| {
+            let label = p["label"].as_str().unwrap().to_string();
+            let id = p["id"]
+                .as_str()
+                .map(String::from)
+                .unwrap_or_else(|| label.to_lowercase().replace(' ', "-"));
+            (id, label)
+        })
+        .collect();
+    let mut rd = csv::Reader::from_path(&csv).unwrap();
+    let h = rd.headers().unwrap().clone();
+    let col = |name: &str| h.iter().position(|x| x == name).unwrap();
+    let (id, label, top, top_label, cont, not_anc) = (
+        col("id"),
+        col("label"),
+        col("top_broader"),
+        col("top_broader_label"),
+        col("containment"),
+        col("not_ancestor"),
+    );
+    let mut seen = std::collections::HashSet::new();
+    let mut n = 0;
+    for rec in rd.records() {
+        let rec = rec.unwrap();
+        n += 1;
+        assert_eq!(rec.len(), h.len(), "{rec:?}");
+        let me = &rec[id];
+        assert!(seen.insert(me.to_string()), "{me} listed twice");
+        assert!(
+            tree["parent"].get(me).is_some(),
+            "{me} is not a placed non-root"
+        );
+        assert_eq!(&rec[label], label_of[me].as_str(), "{me}");
+        if !rec[top].is_empty() {
+            assert_eq!(&rec[top_label], label_of[&rec[top]].as_str(), "{me}");
+        }
+        let c: f64 = rec[cont].parse().unwrap();
+        assert!((0.0..=1.0).contains(&c), "{me}: containment {c}");
+        // "not an ancestor" agrees with walking tree.json's parent map (no edits in the demo)
+        let mut anc = std::collections::HashSet::new();
+        let mut x = me.to_string();
+        while let Some(p) = tree["parent"].get(&x).and_then(|v| v.as_str()) {
+            anc.insert(p.to_string());
+            x = p.to_string();
+        }
+        if !rec[top].is_empty() {
+            let want = !anc.contains(&rec[top]);
+            assert_eq!(&rec[not_anc], want.to_string().as_str(), "{me}");
+        }
+    }
+    assert_eq!(n, tree["parent"].as_object().unwrap().len());
 }

@@ -20,6 +20,10 @@ pub fn atomic_write_with(
     keep_backup: bool,
     fill: impl FnOnce(&mut dyn Write) -> std::io::Result<()>,
 ) -> std::io::Result<()> {
+    #[cfg(feature = "test-broken-writer")]
+    if broken_writer::active() {
+        return broken_writer::write_in_place(path, keep_backup, fill);
+    }
     let dir = match path.parent() {
         Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
         _ => PathBuf::from("."),
@@ -55,6 +59,48 @@ pub fn atomic_write_with(
         let _ = d.sync_all();
     }
     Ok(())
+}
+
+/// The deliberately broken twin of [`atomic_write_with`], for tests/crash_safety.rs only:
+/// it truncates the target and writes the new bytes straight into it, with no temporary
+/// file, no fsync and no rename, so a process killed mid-write leaves a torn file. Compiled
+/// only with the `test-broken-writer` feature, which itself refuses to compile unless
+/// `TREEWRIGHT_ALLOW_BROKEN_WRITER=1` is set at build time (so `--all-features` cannot pull
+/// it into a release by accident), and active only while `TREEWRIGHT_BROKEN_WRITER=1` is set
+/// in the environment of the process.
+#[cfg(feature = "test-broken-writer")]
+pub mod broken_writer {
+    use std::fs;
+    use std::io::Write;
+    use std::path::Path;
+
+    const _: () = assert!(
+        option_env!("TREEWRIGHT_ALLOW_BROKEN_WRITER").is_some(),
+        "the test-broken-writer feature makes every save non-atomic and is for \
+         tests/crash_safety.rs only; set TREEWRIGHT_ALLOW_BROKEN_WRITER=1 at build time \
+         if you really mean to build it (never ship such a build)"
+    );
+
+    /// Whether this process writes in place (`TREEWRIGHT_BROKEN_WRITER=1`).
+    pub fn active() -> bool {
+        std::env::var_os("TREEWRIGHT_BROKEN_WRITER").is_some_and(|v| v == "1")
+    }
+
+    /// Write in place: truncate, stream, no fsync, no rename.
+    pub fn write_in_place(
+        path: &Path,
+        keep_backup: bool,
+        fill: impl FnOnce(&mut dyn Write) -> std::io::Result<()>,
+    ) -> std::io::Result<()> {
+        if keep_backup && path.exists() {
+            let mut bak = path.as_os_str().to_owned();
+            bak.push(".bak");
+            fs::copy(path, &bak)?;
+        }
+        let mut w = std::io::BufWriter::with_capacity(1 << 16, fs::File::create(path)?);
+        fill(&mut w)?;
+        w.flush()
+    }
 }
 
 /// Serialise `value` as pretty JSON with a trailing newline.

@@ -43,6 +43,9 @@ pub(super) fn load_tree_limited(
 
 /// Parse a CSV edge list (`child,parent` header) into the tree file form.
 pub fn parse_tree_csv(bytes: &[u8], file: &str) -> Result<TreeFile, LoadError> {
+    // spreadsheet programs save "CSV UTF-8" with a byte-order mark; it is not part of the
+    // first column's name (CRLF line ends are handled by the csv reader)
+    let bytes = bytes.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(bytes);
     let mut rdr = csv::ReaderBuilder::new()
         .has_headers(true)
         .from_reader(bytes);
