@@ -114,8 +114,10 @@ impl Auditor {
                 }
             });
         }
-        if !exhaustive {
-            // repair the index: a suspicious node is also reachable under its best candidate,
+        if !exhaustive && fit.fits {
+            // repair the index (skipped when the tree as a whole does not fit: nearly
+            // every node would be suspicious and the repaired links would make the
+            // search quadratic, for a hierarchy that means nothing; treefit.rs): a suspicious node is also reachable under its best candidate,
             // then the suspicious nodes are searched again
             let suspects: Vec<PhraseId> = (0..n as PhraseId)
                 .filter(|&p| suspicious(g, eff, &cfg, &stats, &placement, p))

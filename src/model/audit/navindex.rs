@@ -258,12 +258,15 @@ impl NavIndex {
             beam_cut.max(best)
         };
         // nearest first: a min-heap on the KL bound (balls without a broader member last)
-        let mut heap: BinaryHeap<(std::cmp::Reverse<Key>, u32)> = BinaryHeap::new();
-        let (kl0, _) = self.bounds(&self.balls[0], g, q);
-        heap.push((std::cmp::Reverse(Key(kl0.unwrap_or(f64::INFINITY))), 0));
-        while let Some((std::cmp::Reverse(Key(lb)), bi)) = heap.pop() {
+        let mut heap: BinaryHeap<(std::cmp::Reverse<Key>, u32, bool)> = BinaryHeap::new();
+        let (kl0, dup0) = self.bounds(&self.balls[0], g, q);
+        heap.push((
+            std::cmp::Reverse(Key(kl0.unwrap_or(f64::INFINITY))),
+            0,
+            dup0,
+        ));
+        while let Some((std::cmp::Reverse(Key(lb)), bi, dup)) = heap.pop() {
             let ball = &self.balls[bi as usize];
-            let (_, dup) = self.bounds(ball, g, q);
             if !dup && lb > threshold(&top, best) {
                 continue;
             }
@@ -273,7 +276,7 @@ impl NavIndex {
                         let (kl, dup) = self.bounds(&self.balls[k as usize], g, q);
                         let lb = kl.unwrap_or(f64::INFINITY);
                         if dup || lb <= threshold(&top, best) {
-                            heap.push((std::cmp::Reverse(Key(lb)), k));
+                            heap.push((std::cmp::Reverse(Key(lb)), k, dup));
                         }
                     }
                 }

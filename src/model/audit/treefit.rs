@@ -9,11 +9,11 @@
 //! - the share of the nodes (not the root) whose containment in their parent is at least
 //!   `containment_min`, against the same share for random parents;
 //! - the median of KL(node ‖ parent), against the median of KL(node ‖ r) for a random
-//!   placed node r ≠ node.
+//!   parent r ≠ node.
 //!
-//! The random pairs are [`BASELINE_PAIRS`] nodes spread evenly over the rows, each with a
-//! parent drawn from the placed nodes by a generator seeded from the audit's seed, so the
-//! figures are reproducible. The tree *does not fit* when the median KL to the parent is at
+//! The random pairs are [`BASELINE_PAIRS`] nodes spread evenly over the rows, each with the
+//! parent of another node drawn at random (a generator seeded from the audit's seed, so the
+//! figures are reproducible): random parents with the generality of real ones. The tree *does not fit* when the median KL to the parent is at
 //! least [`KL_RATIO_MAX`] times the random median **and** fewer than [`CONTAINED_MIN`] of
 //! the nodes are contained in their parent; trees with fewer than [`MIN_NODES`] measured
 //! nodes are too small to judge and always fit. A fitting tree's reports are unchanged; a
@@ -49,7 +49,7 @@ pub struct TreeFit {
     pub contained_share: f64,
     /// Median KL(node ‖ parent) in nats.
     pub median_kl: f64,
-    /// Random (node, parent) pairs of the baseline.
+    /// Random (node, parent of a random other node) pairs of the baseline.
     pub baseline_pairs: usize,
     /// Share of the random pairs with containment ≥ `containment_min`.
     pub baseline_contained_share: f64,
@@ -120,13 +120,8 @@ pub(super) fn measure(
     seed: u64,
 ) -> TreeFit {
     let n = eff.tree.table_len();
-    let placed: Vec<PhraseId> = (0..n as PhraseId)
-        .filter(|&p| eff.tree.is_placed(p))
-        .collect();
-    let children: Vec<PhraseId> = placed
-        .iter()
-        .copied()
-        .filter(|&p| eff.tree.parent(p).is_some())
+    let children: Vec<PhraseId> = (0..n as PhraseId)
+        .filter(|&p| eff.tree.is_placed(p) && eff.tree.parent(p).is_some())
         .collect();
     let mut kls: Vec<f64> = Vec::with_capacity(children.len());
     let mut contained = 0usize;
@@ -143,7 +138,7 @@ pub(super) fn measure(
         median_kl: median(&mut kls),
         ..TreeFit::default()
     };
-    if placed.len() < 2 || children.is_empty() {
+    if children.is_empty() {
         return fit;
     }
     let m = BASELINE_PAIRS.min(children.len());
@@ -152,17 +147,23 @@ pub(super) fn measure(
     let mut base_in = 0usize;
     for j in 0..m {
         let c = children[j * children.len() / m];
-        let r = loop {
-            let r = placed[rng.gen_range(0..placed.len())];
-            if r != c {
-                break r;
+        // the parent of a random other node: random parents with the generality
+        // distribution of real ones (a leaf as "parent" would flatter the tree)
+        let mut r = None;
+        for _ in 0..64 {
+            let other = children[rng.gen_range(0..children.len())];
+            let x = eff.tree.parent(other).unwrap_or(other);
+            if x != c {
+                r = Some(x);
+                break;
             }
-        };
+        }
+        let Some(r) = r else { continue };
         base_kl.push(kl(&g.get(c as usize), &g.get(r as usize)));
         base_in += usize::from(engine.containment(g, c, r).value >= containment_min);
     }
-    fit.baseline_pairs = m;
-    fit.baseline_contained_share = base_in as f64 / m as f64;
+    fit.baseline_pairs = base_kl.len();
+    fit.baseline_contained_share = base_in as f64 / base_kl.len().max(1) as f64;
     fit.baseline_median_kl = median(&mut base_kl);
     fit.fits = fit.nodes < MIN_NODES
         || fit.kl_ratio() < KL_RATIO_MAX
