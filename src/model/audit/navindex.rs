@@ -2,10 +2,12 @@
 //! candidate index), so the candidate search does not score every child of a flat tree.
 //!
 //! The index is a ball tree over the children's means, built on demand (the first search
-//! that reaches the node builds it; later searches share it): a range of children is split
-//! in two by projecting the means on the line between two far-apart members (a member
-//! farthest from the first, then the member farthest from that one) and cutting at the
-//! median, down to leaves of at most [`LEAF`] children. Building costs O(m log m · d) for m
+//! that reaches the node builds it; later searches share it): a range of children whose
+//! ln det Σ spreads over more than max(4, d/2) nats is split at the median of ln det Σ (one
+//! broad member would loosen every bound of its ball), any other range by projecting the
+//! means on the line between two far-apart members (a member farthest from the first, then
+//! the member farthest from that one) and cutting at the median, down to leaves of at most
+//! [`LEAF`] children. Building costs O(m log m · d) for m
 //! children.
 //!
 //! Every ball keeps, over its members x: the largest variance per coordinate v̂ₖ, the range
@@ -29,7 +31,7 @@
 //! compared with a relative slack of 10⁻⁴ (plus 10⁻⁶ nats) that covers the `f32` rounding
 //! of the KL kernel.
 
-use std::cmp::Ordering;
+use std::cmp::{Ordering, Reverse};
 use std::collections::BinaryHeap;
 
 use crate::model::gaussian::{Gaussians, PhraseId};
@@ -37,7 +39,7 @@ use crate::model::gaussian::{Gaussians, PhraseId};
 /// A node with more children than this gets a navigation index.
 pub(super) const WIDE: usize = 64;
 /// Children per leaf ball.
-pub(super) const LEAF: usize = 16;
+pub(super) const LEAF: usize = 4;
 /// Relative slack of the bounds.
 const SLACK: f64 = 1e-4;
 
@@ -172,7 +174,19 @@ impl NavIndex {
             ld_hi,
             diag_ld_lo: dld_lo,
         });
-        if hi - lo > LEAF {
+        if hi - lo > LEAF && ld_hi - ld_lo > (0.5 * d as f64).max(4.0) {
+            // generality spread wide (a broad member would loosen every bound of the
+            // ball): cut at the median of ln det Σ
+            let mid = (hi - lo) / 2;
+            self.order[lo..hi].select_nth_unstable_by(mid, |&x, &y| {
+                g.log_det(x as usize)
+                    .total_cmp(&g.log_det(y as usize))
+                    .then(x.cmp(&y))
+            });
+            let l = self.split(g, diag_ld, lo, lo + mid);
+            let r = self.split(g, diag_ld, lo + mid, hi);
+            self.balls[me as usize].kids = Some((l, r));
+        } else if hi - lo > LEAF {
             // two far-apart members a, b; cut at the median of the projection on b − a
             let m0 = g.mean(self.order[lo] as usize);
             let far = |from: &[f32], order: &[PhraseId]| {
@@ -211,24 +225,33 @@ impl NavIndex {
         me
     }
 
-    /// Lower bound of KL(c ‖ x) over the ball's members (−∞ … +∞ when no member is
-    /// broader than c: `None`), and whether a member can be a near-duplicate of c.
+    /// Lower bound of KL(c ‖ x) over the ball's broader members (`None` when no member is
+    /// broader than c), and whether a member can be a near-duplicate of c.
     fn bounds(&self, ball: &Ball, g: &Gaussians, q: &Query) -> (Option<f64>, bool) {
+        let broader = ball.ld_hi > q.ld_c;
+        let in_window = ball.ld_hi >= q.ld_c - q.dup_margin && ball.ld_lo <= q.ld_c + q.dup_margin;
+        if !broader && !in_window {
+            return (None, false);
+        }
         let mc = g.mean(q.c as usize);
         let vc = g.variances(q.c as usize);
-        let dd = wdist2(mc, &ball.centre, &ball.w).sqrt();
-        let gap = (dd - ball.radius).max(0.0);
+        // one pass: Σₖ wₖ (μc,ₖ − μ̄ₖ)² and Σₖ σ²c,ₖ wₖ
+        let (mut dd2, mut var_term) = (0.0f64, 0.0f64);
+        for ((&m, &v), (&c, &w)) in mc.iter().zip(vc).zip(ball.centre.iter().zip(&ball.w)) {
+            let t = m as f64 - c as f64;
+            dd2 += t * t * w as f64;
+            var_term += v as f64 * w as f64;
+        }
+        let gap = (dd2.sqrt() - ball.radius).max(0.0);
         let gap2 = gap * gap;
-        let kl = (ball.ld_hi > q.ld_c).then(|| {
-            let var_term: f64 = vc
-                .iter()
-                .zip(&ball.w)
-                .map(|(&v, &w)| v as f64 * w as f64)
-                .sum();
+        let kl = broader.then(|| {
             let s = (var_term + gap2) * (1.0 - SLACK);
-            0.5 * (s - mc.len() as f64 + ball.diag_ld_lo - q.diag_ld_c) - 1e-6
+            // only broader members count (ln det Σx > ln det Σc), whatever the ball's
+            // lowest ln det Σ; the two log determinants agree to ~10⁻¹² relative
+            let ld_gap = (ball.diag_ld_lo - q.diag_ld_c).max(0.0);
+            0.5 * (s - mc.len() as f64 + ld_gap) - 1e-6 * (1.0 + q.diag_ld_c.abs())
         });
-        let dup = ball.ld_hi >= q.ld_c - q.dup_margin && ball.ld_lo <= q.ld_c + q.dup_margin && {
+        let dup = in_window && {
             let rho = vc
                 .iter()
                 .zip(&ball.w)
@@ -257,26 +280,28 @@ impl NavIndex {
             };
             beam_cut.max(best)
         };
-        // nearest first: a min-heap on the KL bound (balls without a broader member last)
-        let mut heap: BinaryHeap<(std::cmp::Reverse<Key>, u32, bool)> = BinaryHeap::new();
+        // a ball is looked into when a member may be a duplicate or, having a broader
+        // member, its KL bound is within the threshold
+        let wanted = |kl: Option<f64>, dup: bool, top: &BinaryHeap<Key>, best: f64| {
+            dup || kl.is_some_and(|lb| lb <= threshold(top, best))
+        };
+        // nearest first: a min-heap on the KL bound (duplicate-only balls last)
+        let mut heap: BinaryHeap<(Reverse<Key>, u32, bool)> = BinaryHeap::new();
         let (kl0, dup0) = self.bounds(&self.balls[0], g, q);
-        heap.push((
-            std::cmp::Reverse(Key(kl0.unwrap_or(f64::INFINITY))),
-            0,
-            dup0,
-        ));
-        while let Some((std::cmp::Reverse(Key(lb)), bi, dup)) = heap.pop() {
+        if wanted(kl0, dup0, &top, best) {
+            heap.push((Reverse(Key(kl0.unwrap_or(f64::INFINITY))), 0, dup0));
+        }
+        while let Some((Reverse(Key(lb)), bi, dup)) = heap.pop() {
             let ball = &self.balls[bi as usize];
-            if !dup && lb > threshold(&top, best) {
+            if !wanted((lb < f64::INFINITY).then_some(lb), dup, &top, best) {
                 continue;
             }
             match ball.kids {
                 Some((l, r)) => {
                     for k in [l, r] {
                         let (kl, dup) = self.bounds(&self.balls[k as usize], g, q);
-                        let lb = kl.unwrap_or(f64::INFINITY);
-                        if dup || lb <= threshold(&top, best) {
-                            heap.push((std::cmp::Reverse(Key(lb)), k, dup));
+                        if wanted(kl, dup, &top, best) {
+                            heap.push((Reverse(Key(kl.unwrap_or(f64::INFINITY))), k, dup));
                         }
                     }
                 }
