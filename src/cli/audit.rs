@@ -1,5 +1,13 @@
 //! `treewright audit PROJECT [--format text|json|csv|md] [--out FILE] [--fail-on warning|error]
-//! [--rule RULE...] [--known-errors FILE]`.
+//! [--rule RULE...] [--known-errors FILE] [--all-findings]`.
+//!
+//! When the tree as a whole does not fit the embeddings
+//! ([`treefit`](crate::model::audit::treefit)), every format says so first (text: a first
+//! line; Markdown: a quote under the title; JSON: `summary.tree_fit`; CSV: a `#` comment
+//! line before the header) and lists at most
+//! [`LISTED_PER_RULE`](crate::model::audit::treefit::LISTED_PER_RULE) findings per rule
+//! (the counts stay exact; `--all-findings` lists everything). A fitting tree's reports
+//! are unchanged.
 //!
 //! With `--known-errors FILE` the output is the audit measured against that list
 //! ([`evaluate`](crate::model::audit::evaluate)) instead of the report: text or JSON.
@@ -15,6 +23,7 @@ use super::CliError;
 use crate::model::Workspace;
 use crate::model::audit::calibrate;
 use crate::model::audit::evaluate::{evaluate, read_known_errors};
+use crate::model::audit::treefit::{LISTED_PER_RULE, TreeFit};
 use crate::model::audit::{AuditConfig, AuditReport, Finding, RULES, Severity};
 use crate::model::edit::{Edit, EditRecord};
 use crate::model::effective::EffectiveTree;
@@ -66,6 +75,10 @@ pub struct AuditArgs {
     /// (text, or JSON with `--format json`) instead of the report.
     #[arg(long, value_name = "FILE")]
     pub known_errors: Option<PathBuf>,
+    /// List every finding even when the tree as a whole does not fit the embeddings
+    /// (the listing is then capped per rule; the counts are always exact).
+    #[arg(long)]
+    pub all_findings: bool,
 }
 
 /// The sign-off state of the effective tree.
@@ -171,7 +184,26 @@ struct Summary<'a> {
     rules: Vec<RuleCount>,
     samples: usize,
     signoff: SignoffJson<'a>,
+    /// Only when the tree as a whole does not fit the embeddings.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    tree_fit: Option<FitJson>,
     unreviewed: usize,
+}
+
+/// `summary.tree_fit` (keys in alphabetical order).
+#[derive(Serialize)]
+struct FitJson {
+    baseline_contained_share: f64,
+    baseline_median_kl: f64,
+    baseline_pairs: usize,
+    contained_share: f64,
+    fits: bool,
+    kl_ratio: f64,
+    listed: usize,
+    listed_per_rule: Option<usize>,
+    median_kl: f64,
+    message: String,
+    nodes: usize,
 }
 
 /// [`SignoffState`] with its keys in alphabetical order.
@@ -191,8 +223,8 @@ impl Serialize for JsonFindings<'_, '_> {
     fn serialize<S: serde::Serializer>(&self, ser: S) -> Result<S::Ok, S::Error> {
         use serde::ser::SerializeSeq;
         let view = self.0;
-        let mut seq = ser.serialize_seq(Some(view.findings.len()))?;
-        for f in &view.findings {
+        let mut seq = ser.serialize_seq(Some(view.listed.len()))?;
+        for f in &view.listed {
             seq.serialize_element(&JsonFinding {
                 confidence: f.confidence,
                 explanation: &f.explanation,
@@ -226,6 +258,9 @@ struct View<'a> {
     report: &'a AuditReport,
     cfg: &'a AuditConfig,
     findings: Vec<&'a Finding>,
+    /// The findings listed: all of them, or at most [`LISTED_PER_RULE`] per rule when the
+    /// tree does not fit (and `--all-findings` is not given).
+    listed: Vec<&'a Finding>,
     signoff: SignoffState,
     /// Sign-offs cancelled by a revert, with who and why (issue 23; md report only).
     reverted: Vec<String>,
@@ -281,7 +316,41 @@ impl View<'_> {
                 time: self.signoff.time.as_deref(),
                 tree_hash: &self.signoff.tree_hash,
             },
+            tree_fit: self.misfit().map(|f| FitJson {
+                baseline_contained_share: f.baseline_contained_share,
+                baseline_median_kl: f.baseline_median_kl,
+                baseline_pairs: f.baseline_pairs,
+                contained_share: f.contained_share,
+                fits: f.fits,
+                kl_ratio: f.kl_ratio(),
+                listed: self.listed.len(),
+                listed_per_rule: (self.listed.len() < self.findings.len())
+                    .then_some(LISTED_PER_RULE),
+                median_kl: f.median_kl,
+                message: f.headline(),
+                nodes: f.nodes,
+            }),
         }
+    }
+
+    /// The tree-level fit, when the tree does not fit.
+    fn misfit(&self) -> Option<&TreeFit> {
+        (!self.report.fit.fits).then_some(&self.report.fit)
+    }
+
+    /// "N more findings of rule R not listed" lines of a capped listing.
+    fn unlisted(&self) -> Vec<(&'static str, usize)> {
+        if self.listed.len() == self.findings.len() {
+            return Vec::new();
+        }
+        RULES
+            .iter()
+            .filter_map(|(r, _)| {
+                let all = self.findings.iter().filter(|f| f.rule == *r).count();
+                let shown = self.listed.iter().filter(|f| f.rule == *r).count();
+                (all > shown).then_some((*r, all - shown))
+            })
+            .collect()
     }
 
     /// The JSON report, streamed to `w` (no in-memory copy of the whole document).
@@ -296,6 +365,16 @@ impl View<'_> {
 
     /// One CSV row per finding, streamed to `out`.
     fn csv(&self, out: &mut dyn std::io::Write) -> std::io::Result<()> {
+        if let Some(f) = self.misfit() {
+            // a comment line before the header: the message, without the CSV quoting rules
+            writeln!(out, "# {}", f.headline().replace(['\n', '\r'], " "))?;
+            for (r, k) in self.unlisted() {
+                writeln!(
+                    out,
+                    "# {k} more {r} finding(s) not listed (--all-findings lists them)"
+                )?;
+            }
+        }
         let mut w = csv::Writer::from_writer(out);
         let bad = std::io::Error::other;
         w.write_record([
@@ -312,7 +391,7 @@ impl View<'_> {
             "explanation",
         ])
         .map_err(bad)?;
-        for f in &self.findings {
+        for f in &self.listed {
             let (action, target) = f.suggestion.as_ref().map_or(("", ""), |s| {
                 (s.action.as_str(), s.target.as_deref().unwrap_or(""))
             });
@@ -347,6 +426,9 @@ impl View<'_> {
     fn text(&self) -> String {
         let mut s = String::new();
         let sm = self.summary();
+        if let Some(f) = self.misfit() {
+            let _ = writeln!(s, "{}", f.headline());
+        }
         let _ = writeln!(
             s,
             "{}: {} nodes, {} findings open: {} error(s), {} warning(s), {} info; {} accepted",
@@ -361,7 +443,7 @@ impl View<'_> {
         if let Some(c) = &sm.calibration {
             let _ = writeln!(s, "confidence {c}");
         }
-        for f in &self.findings {
+        for f in &self.listed {
             let _ = writeln!(
                 s,
                 "{:<7} {:<19} {:<24} score {:.4} (threshold {:.4}){}  {}  [{}]",
@@ -375,6 +457,12 @@ impl View<'_> {
                 Self::suggestion_text(f)
             );
         }
+        for (r, k) in self.unlisted() {
+            let _ = writeln!(
+                s,
+                "... {k} more {r} finding(s) not listed (--all-findings lists them)"
+            );
+        }
         s
     }
 
@@ -383,6 +471,9 @@ impl View<'_> {
         let sm = self.summary();
         let esc = |t: &str| t.replace('|', "\\|");
         let _ = writeln!(s, "# Audit report: {}\n", esc(sm.project));
+        if let Some(f) = self.misfit() {
+            let _ = writeln!(s, "> **{}**\n", esc(&f.headline()));
+        }
         let so = &self.signoff;
         let state = match so.state {
             "signed-off" => format!(
@@ -437,6 +528,7 @@ impl View<'_> {
         }
         const TOP: usize = 25;
         let open: Vec<&&Finding> = self.findings.iter().filter(|f| !f.accepted).collect();
+        let open_listed: Vec<&&Finding> = self.listed.iter().filter(|f| !f.accepted).collect();
         let _ = writeln!(
             s,
             "\n## Top open findings ({} of {})\n",
@@ -451,7 +543,7 @@ impl View<'_> {
                 "| # | severity | rule | node | score | threshold | confidence | explanation | suggestion |"
             );
             let _ = writeln!(s, "|---:|---|---|---|---:|---:|---:|---|---|");
-            for (i, f) in open.iter().take(TOP).enumerate() {
+            for (i, f) in open_listed.iter().take(TOP).enumerate() {
                 let _ = writeln!(
                     s,
                     "| {} | {} | {} | {} | {:.4} | {:.4} | {:.2} | {} | {} |",
@@ -482,6 +574,20 @@ impl View<'_> {
         }
         s
     }
+}
+
+/// At most [`LISTED_PER_RULE`] findings of each rule, in report order.
+fn capped<'a>(findings: &[&'a Finding]) -> Vec<&'a Finding> {
+    let mut seen = [0usize; RULES.len()];
+    findings
+        .iter()
+        .copied()
+        .filter(|f| {
+            let i = RULES.iter().position(|(r, _)| *r == f.rule).unwrap_or(0);
+            seen[i] += 1;
+            seen[i] <= LISTED_PER_RULE
+        })
+        .collect()
 }
 
 /// Run the audit and print or write the report.
@@ -526,6 +632,11 @@ pub fn run(args: &AuditArgs) -> Result<(), CliError> {
         report: &report,
         cfg: &cfg,
         signoff: signoff_state(eff, &project.phrases, &ws.layer.edits),
+        listed: if report.fit.fits || args.all_findings {
+            findings.clone()
+        } else {
+            capped(&findings)
+        },
         findings,
         reverted: crate::model::history::reverted_signoff_lines(&ws.layer.edits),
     };

@@ -143,6 +143,28 @@ impl FindingsPanel {
     }
 }
 
+/// The banner of a tree that does not fit its embeddings as a whole
+/// ([`treefit`](crate::model::audit::treefit)): above the findings, in the error colour.
+fn misfit_banner(ui: &mut egui::Ui, fit: &crate::model::audit::treefit::TreeFit) {
+    egui::Frame::group(ui.style())
+        .fill(ui.visuals().extreme_bg_color)
+        .show(ui, |ui| {
+            ui.colored_label(
+                ui.visuals().error_fg_color,
+                "The tree as a whole does not fit the embeddings",
+            );
+            ui.label(format!(
+                "median KL to the parent {:.2} nats vs {:.2} for a random parent; {:.1} % of \
+                 the nodes contained in their parent vs {:.1} % for random parents. The \
+                 findings below are mostly consequences: fix the tree or the embeddings first.",
+                fit.median_kl,
+                fit.baseline_median_kl,
+                100.0 * fit.contained_share,
+                100.0 * fit.baseline_contained_share
+            ));
+        });
+}
+
 impl Panel for FindingsPanel {
     fn kind(&self) -> PanelKind {
         PanelKind::Findings
@@ -173,6 +195,9 @@ impl Panel for FindingsPanel {
                     "learned from the reviewer's decisions in the override layer: fixes applied \
                      count as right findings, nodes approved as is as wrong ones",
                 );
+        }
+        if !report.fit.fits {
+            misfit_banner(ui, &report.fit);
         }
         self.refresh(view, &report.findings);
         let rules = self

@@ -5,7 +5,7 @@ use rayon::prelude::*;
 use super::calibrate;
 use super::rules::Rule;
 use super::search::{CandidateIndex, Order, Placement, Searcher, needs_search, suspicious};
-use super::{AuditConfig, AuditReport, Finding, assemble, assemble_with};
+use super::{AuditConfig, AuditReport, Finding, assemble_with, treefit};
 use crate::model::edit::{EditRecord, ReviewStatus};
 use crate::model::effective::{ApplyProblem, EffectiveTree};
 use crate::model::gaussian::{Gaussians, PhraseId};
@@ -72,9 +72,26 @@ impl Auditor {
         problems: &[ApplyProblem],
         cfg: AuditConfig,
     ) -> Self {
+        Self::with_nav_min(g, phrases, eff, problems, cfg, super::navindex::WIDE)
+    }
+
+    /// [`Auditor::new`] with navigation indexes over the nodes with more than `nav_min`
+    /// children (`usize::MAX`: none, every child is scored; for tests).
+    pub(super) fn with_nav_min(
+        g: &Gaussians,
+        phrases: &PhraseTable,
+        eff: &EffectiveTree,
+        problems: &[ApplyProblem],
+        cfg: AuditConfig,
+        nav_min: usize,
+    ) -> Self {
         let engine = StatsEngine::new(g, &cfg.stats());
         let mut index = CandidateIndex::of(eff);
+        index.nav_min = nav_min;
+        index = index.with_nav();
         let stats = engine.compute(g, eff);
+        // the tree-level fit first (treefit.rs)
+        let fit = treefit::measure(g, eff, &engine, &stats, cfg.containment_min, cfg.seed);
         let order = Order::of(eff);
         let n = g.len();
         let exhaustive = n <= cfg.exhaustive_limit;
@@ -101,8 +118,10 @@ impl Auditor {
                 }
             });
         }
-        if !exhaustive {
-            // repair the index: a suspicious node is also reachable under its best candidate,
+        if !exhaustive && fit.fits {
+            // repair the index (skipped when the tree as a whole does not fit: nearly
+            // every node would be suspicious and the repaired links would make the
+            // search quadratic, for a hierarchy that means nothing; treefit.rs): a suspicious node is also reachable under its best candidate,
             // then the suspicious nodes are searched again
             let suspects: Vec<PhraseId> = (0..n as PhraseId)
                 .filter(|&p| suspicious(g, eff, &cfg, &stats, &placement, p))
@@ -112,13 +131,15 @@ impl Auditor {
                     index.children[b as usize].push(p);
                 }
             }
+            index = index.with_nav();
             let s = searcher!();
             let fresh: Vec<Placement> = suspects.par_iter().map(|&p| s.place(p)).collect();
             for (&p, pl) in suspects.iter().zip(fresh) {
                 placement[p as usize] = pl;
             }
         }
-        let report = assemble(g, phrases, eff, problems, &cfg, stats, &placement);
+        let mut report = assemble_with(g, phrases, eff, problems, &cfg, stats, &placement, None);
+        report.fit = fit;
         Auditor {
             snapshot: Snapshot::of(eff),
             cfg,
@@ -233,6 +254,14 @@ impl Auditor {
             .collect();
         let mut stats = std::mem::replace(&mut self.report.stats, empty_stats());
         self.engine.refresh(&mut stats, g, eff, &stat_list, &order);
+        let fit = treefit::measure(
+            g,
+            eff,
+            &self.engine,
+            &stats,
+            self.cfg.containment_min,
+            self.cfg.seed,
+        );
         let searcher = Searcher {
             g,
             engine: &self.engine,
@@ -307,6 +336,7 @@ impl Auditor {
             &self.placement,
             Some((&dirty, kept)),
         );
+        self.report.fit = fit;
         &self.report
     }
 }

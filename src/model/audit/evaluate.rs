@@ -465,6 +465,7 @@ mod tests {
             coverage_threshold: 0.0,
             unreviewed: 0,
             calibration: None,
+            fit: crate::model::audit::treefit::TreeFit::default(),
         }
     }
 

@@ -85,8 +85,10 @@ pub mod calibrate;
 pub mod confidence;
 mod config;
 pub mod evaluate;
+mod navindex;
 mod rules;
 mod search;
+pub mod treefit;
 
 pub use auditor::Auditor;
 pub use config::{AuditConfig, AuditConfigError};
@@ -222,6 +224,10 @@ pub struct AuditReport {
     /// The calibration from the reviewer's decisions in force, if any
     /// ([`calibrate`]).
     pub calibration: Option<calibrate::Calibration>,
+    /// Whether the tree as a whole agrees with the embeddings ([`treefit`]). Not written
+    /// by the report's `Serialize`.
+    #[serde(skip)]
+    pub fit: treefit::TreeFit,
 }
 
 impl AuditReport {
@@ -265,7 +271,9 @@ pub fn audit(
     Auditor::new(g, phrases, eff, problems, cfg.clone()).report
 }
 
-/// Build the ranked finding list.
+/// Build the ranked finding list and measure the tree-level fit (a full audit's report
+/// from given statistics and searches; the tests' reference).
+#[cfg(test)]
 fn assemble(
     g: &Gaussians,
     phrases: &PhraseTable,
@@ -275,7 +283,12 @@ fn assemble(
     stats: Stats,
     placement: &[Placement],
 ) -> AuditReport {
-    assemble_with(g, phrases, eff, problems, cfg, stats, placement, None)
+    // the tree-level fit as the auditor measures it (same engine: same sample bank)
+    let engine = super::stats::StatsEngine::new(g, &cfg.stats());
+    let fit = treefit::measure(g, eff, &engine, &stats, cfg.containment_min, cfg.seed);
+    let mut report = assemble_with(g, phrases, eff, problems, cfg, stats, placement, None);
+    report.fit = fit;
+    report
 }
 
 /// [`assemble`], or with `Some((dirty, kept))` only the node-local findings of the dirty
@@ -336,6 +349,7 @@ fn assemble_with(
         coverage_threshold: cov_thr,
         unreviewed,
         calibration: None,
+        fit: treefit::TreeFit::default(),
     }
 }
 

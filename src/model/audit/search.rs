@@ -2,7 +2,11 @@
 //! for small tables, else a beam over a kept navigation hierarchy (see the module
 //! documentation of [`super`]).
 
+use std::collections::HashMap;
+use std::sync::OnceLock;
+
 use super::AuditConfig;
+use super::navindex::{NavIndex, Query, WIDE};
 use crate::model::effective::EffectiveTree;
 use crate::model::gaussian::{Gaussians, PhraseId, Sampled, bhattacharyya_coefficient, kl};
 use crate::model::kernels;
@@ -28,6 +32,12 @@ pub(super) struct CandidateIndex {
     pub(super) children: Vec<Vec<PhraseId>>,
     /// Phrases not in the hierarchy, always scanned.
     extra: Vec<PhraseId>,
+    /// Navigation indexes of the wide nodes (more than `nav_min` children), built on
+    /// demand by the first search that reaches the node (`navindex.rs`).
+    pub(super) nav: HashMap<PhraseId, OnceLock<NavIndex>>,
+    /// Nodes with more children than this get a navigation index ([`WIDE`]; tests set
+    /// `usize::MAX` to compare with scoring every child).
+    pub(super) nav_min: usize,
 }
 
 impl CandidateIndex {
@@ -41,7 +51,27 @@ impl CandidateIndex {
             extra: (0..n as PhraseId)
                 .filter(|&p| !eff.tree.is_placed(p))
                 .collect(),
+            nav: HashMap::new(),
+            nav_min: WIDE,
         }
+        .with_nav()
+    }
+
+    /// (Re)declare the navigation indexes after the children lists changed: a wide node
+    /// whose index no longer covers its whole list is rebuilt on demand.
+    pub(super) fn with_nav(mut self) -> Self {
+        let mut nav = std::mem::take(&mut self.nav);
+        nav.retain(|&b, slot| {
+            let len = self.children[b as usize].len();
+            len > self.nav_min && slot.get().is_none_or(|x| x.covered == len)
+        });
+        for (b, ch) in self.children.iter().enumerate() {
+            if ch.len() > self.nav_min {
+                nav.entry(b as PhraseId).or_default();
+            }
+        }
+        self.nav = nav;
+        self
     }
 }
 
@@ -107,6 +137,22 @@ impl Searcher<'_> {
         (bc >= self.cfg.duplicate_bc_min).then_some(bc)
     }
 
+    /// The navigation index of wide node `b` (built on first use), for diagonal
+    /// covariance; None for other nodes.
+    fn nav_of(&self, b: PhraseId) -> Option<&NavIndex> {
+        if !self.engine.diagonal {
+            return None;
+        }
+        let slot = self.index.nav.get(&b)?;
+        Some(slot.get_or_init(|| {
+            NavIndex::build(
+                self.g,
+                &self.engine.diag_log_det,
+                &self.index.children[b as usize],
+            )
+        }))
+    }
+
     pub(super) fn place(&self, c: PhraseId) -> Placement {
         let mut out = self.search(c);
         if let (Some((b, kb)), Some(par)) = (out.best, self.eff.tree.parent(c))
@@ -161,10 +207,39 @@ impl Searcher<'_> {
         }
         let mut beam = vec![root];
         let mut next: Vec<(PhraseId, f64)> = Vec::new();
+        let mut scratch: Vec<(PhraseId, Option<f64>)> = Vec::new();
         while !beam.is_empty() {
             next.clear();
             for &b in &beam {
-                for &x in &self.index.children[b as usize] {
+                let kids = &self.index.children[b as usize];
+                let mut from = 0;
+                if let Some(nav) = self.nav_of(b) {
+                    let eligible = |x: PhraseId| {
+                        x != parent && self.eff.tree.is_placed(x) && !self.order.in_subtree(c, x)
+                    };
+                    let kl = |x: PhraseId| self.kl_diag(c, x);
+                    let q = Query {
+                        c,
+                        ld_c: ldc,
+                        diag_ld_c: self.engine.diag_log_det[c as usize],
+                        beam: self.cfg.search_beam,
+                        best_so_far: lowest(&cands).map_or(f64::INFINITY, |e| e.1),
+                        min_ld,
+                        eligible: &eligible,
+                        dup_dmax: -self.cfg.duplicate_bc_min.ln(),
+                        dup_margin: margin,
+                        kl: &kl,
+                    };
+                    nav.query(self.g, &q, &mut scratch);
+                    for &(x, k) in &scratch {
+                        consider(x, k, &mut out, &mut cands);
+                        if let Some(k) = k {
+                            next.push((x, k));
+                        }
+                    }
+                    from = nav.covered;
+                }
+                for &x in &kids[from..] {
                     if x == c {
                         continue;
                     }

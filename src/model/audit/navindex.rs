@@ -1,0 +1,477 @@
+//! Navigation index over the children of a *wide* node (more than [`WIDE`] children in the
+//! candidate index), so the candidate search does not score every child of a flat tree.
+//!
+//! The index is a ball tree over the children's means, built on demand (the first search
+//! that reaches the node builds it; later searches share it): a range of children whose
+//! ln det Σ spreads over more than max(4, d/2) nats is split at the median of ln det Σ (one
+//! broad member would loosen every bound of its ball), any other range by projecting the
+//! means on the line between two far-apart members (a member farthest from the first, then
+//! the member farthest from that one) and cutting at the median, down to leaves of at most
+//! [`LEAF`] children. Building costs O(m log m · d) for m
+//! children.
+//!
+//! Every ball keeps, over its members x: the largest variance per coordinate v̂ₖ, the range
+//! of ln det Σx, the centre of the means μ̄ and the radius R = maxₓ ‖μx − μ̄‖_w in the
+//! norm ‖u‖²_w = Σₖ uₖ²/v̂ₖ. For a query c with D = ‖μc − μ̄‖_w (`docs/maths.md`, section 15,
+//! "Navigation index bounds"):
+//!
+//! - KL(c ‖ x) = ½ [Σₖ (σ²c,ₖ + (μx,ₖ − μc,ₖ)²)/σ²x,ₖ − d + ln det Σx − ln det Σc]
+//!   ≥ ½ [Σₖ σ²c,ₖ/v̂ₖ + max(0, D − R)² − d + min ln det Σx − ln det Σc], since σ²x,ₖ ≤ v̂ₖ
+//!   and, by the triangle inequality, ‖μx − μc‖_w ≥ D − R;
+//! - D_B(c, x) ≥ ¼ Σₖ Δₖ²/(σ²c,ₖ + σ²x,ₖ) ≥ ¼ ρ max(0, D − R)² with
+//!   ρ = minₖ v̂ₖ/(σ²c,ₖ + v̂ₖ) (the duplicate screen of section 15, then σ²x,ₖ ≤ v̂ₖ).
+//!
+//! The search visits the balls nearest first and skips a ball when no member can be a
+//! near-duplicate (generality out of range or the D_B bound over −ln `duplicate_bc_min`)
+//! and its KL bound is above both the `search_beam`-th lowest KL among the broader
+//! children seen so far and the lowest KL of an eligible candidate so far. A skipped child
+//! therefore can neither enter the beam (at least `search_beam` children of the same node
+//! score strictly lower), nor be the best candidate (one scores strictly lower), nor be a
+//! duplicate: the search returns exactly what scoring every child returns. The bounds are
+//! compared with a relative slack of 10⁻⁴ (plus 10⁻⁶ nats) that covers the `f32` rounding
+//! of the KL kernel.
+
+use std::cmp::{Ordering, Reverse};
+use std::collections::BinaryHeap;
+
+use crate::model::gaussian::{Gaussians, PhraseId};
+
+/// A node with more children than this gets a navigation index. Below it, scoring every
+/// child is cheaper than the index: at 1 000 000 × 64 with ~100 leaves per cluster, an
+/// index over every 100-child node made the audit 3× slower and 40 % larger in memory.
+pub(super) const WIDE: usize = 1000;
+/// Children per leaf ball.
+pub(super) const LEAF: usize = 4;
+/// Relative slack of the bounds.
+const SLACK: f64 = 1e-4;
+
+/// One ball: a contiguous range of the index's child order.
+#[derive(Debug, Clone)]
+struct Ball {
+    lo: u32,
+    hi: u32,
+    /// Child balls (indices), none for a leaf.
+    kids: Option<(u32, u32)>,
+    centre: Vec<f32>,
+    /// 1 / v̂ₖ.
+    w: Vec<f32>,
+    radius: f64,
+    /// Range of ln det Σ (the table's values, as `broader` and the margins use them).
+    ld_lo: f64,
+    ld_hi: f64,
+    /// Smallest Σₖ ln σ²ₖ (the KL kernel's log determinant).
+    diag_ld_lo: f64,
+}
+
+/// The ball tree over the first `covered` children of one node.
+#[derive(Debug, Clone)]
+pub(super) struct NavIndex {
+    /// How many children of the node (a prefix of its list) the index covers.
+    pub(super) covered: usize,
+    order: Vec<PhraseId>,
+    balls: Vec<Ball>,
+}
+
+/// What one query needs to know about the search it serves.
+pub(super) struct Query<'q> {
+    /// The node searched for.
+    pub c: PhraseId,
+    /// ln det Σc (table value) and Σₖ ln σ²c,ₖ.
+    pub ld_c: f64,
+    pub diag_ld_c: f64,
+    /// `search_beam`.
+    pub beam: usize,
+    /// Lowest KL of an eligible candidate found before this node (∞ if none).
+    pub best_so_far: f64,
+    /// ln det Σ a candidate must exceed to be eligible.
+    pub min_ld: f64,
+    /// Whether a broader child is an eligible candidate (placed, not the parent, not a
+    /// descendant).
+    pub eligible: &'q dyn Fn(PhraseId) -> bool,
+    /// −ln `duplicate_bc_min` and `duplicate_generality_margin`.
+    pub dup_dmax: f64,
+    pub dup_margin: f64,
+    /// KL(c ‖ x) as the search scores it.
+    pub kl: &'q dyn Fn(PhraseId) -> f64,
+}
+
+/// f64 that orders totally (for the heaps).
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct Key(f64);
+impl Eq for Key {}
+impl PartialOrd for Key {
+    fn partial_cmp(&self, o: &Self) -> Option<Ordering> {
+        Some(self.cmp(o))
+    }
+}
+impl Ord for Key {
+    fn cmp(&self, o: &Self) -> Ordering {
+        self.0.total_cmp(&o.0)
+    }
+}
+
+fn sq_dist(a: &[f32], b: &[f32]) -> f64 {
+    a.iter()
+        .zip(b)
+        .map(|(&x, &y)| {
+            let t = x as f64 - y as f64;
+            t * t
+        })
+        .sum()
+}
+
+impl NavIndex {
+    /// Build the index over `children` (all of them are covered).
+    pub(super) fn build(g: &Gaussians, diag_ld: &[f64], children: &[PhraseId]) -> Self {
+        let mut nav = NavIndex {
+            covered: children.len(),
+            order: children.to_vec(),
+            balls: Vec::with_capacity(2 * children.len() / LEAF + 2),
+        };
+        nav.split(g, diag_ld, 0, children.len());
+        nav
+    }
+
+    /// Make the ball of `order[lo..hi]` (and its sub-balls); returns its index.
+    fn split(&mut self, g: &Gaussians, diag_ld: &[f64], lo: usize, hi: usize) -> u32 {
+        let d = g.dim();
+        let members = &self.order[lo..hi];
+        let mut centre = vec![0.0f64; d];
+        let mut vhi = vec![0.0f32; d];
+        let (mut ld_lo, mut ld_hi, mut dld_lo) = (f64::INFINITY, f64::NEG_INFINITY, f64::INFINITY);
+        for &x in members {
+            for (k, (&m, &v)) in g
+                .mean(x as usize)
+                .iter()
+                .zip(g.variances(x as usize))
+                .enumerate()
+            {
+                centre[k] += m as f64;
+                vhi[k] = vhi[k].max(v);
+            }
+            let ld = g.log_det(x as usize);
+            ld_lo = ld_lo.min(ld);
+            ld_hi = ld_hi.max(ld);
+            dld_lo = dld_lo.min(diag_ld[x as usize]);
+        }
+        let centre: Vec<f32> = centre
+            .iter()
+            .map(|&s| (s / members.len() as f64) as f32)
+            .collect();
+        let w: Vec<f32> = vhi.iter().map(|&v| 1.0 / v).collect();
+        let radius = members
+            .iter()
+            .map(|&x| wdist2(g.mean(x as usize), &centre, &w))
+            .fold(0.0f64, f64::max)
+            .sqrt();
+        let me = self.balls.len() as u32;
+        self.balls.push(Ball {
+            lo: lo as u32,
+            hi: hi as u32,
+            kids: None,
+            centre,
+            w,
+            radius,
+            ld_lo,
+            ld_hi,
+            diag_ld_lo: dld_lo,
+        });
+        if hi - lo > LEAF && ld_hi - ld_lo > (0.5 * d as f64).max(4.0) {
+            // generality spread wide (a broad member would loosen every bound of the
+            // ball): cut at the median of ln det Σ
+            let mid = (hi - lo) / 2;
+            self.order[lo..hi].select_nth_unstable_by(mid, |&x, &y| {
+                g.log_det(x as usize)
+                    .total_cmp(&g.log_det(y as usize))
+                    .then(x.cmp(&y))
+            });
+            let l = self.split(g, diag_ld, lo, lo + mid);
+            let r = self.split(g, diag_ld, lo + mid, hi);
+            self.balls[me as usize].kids = Some((l, r));
+        } else if hi - lo > LEAF {
+            // two far-apart members a, b; cut at the median of the projection on b − a
+            let m0 = g.mean(self.order[lo] as usize);
+            let far = |from: &[f32], order: &[PhraseId]| {
+                order
+                    .iter()
+                    .copied()
+                    .max_by(|&x, &y| {
+                        sq_dist(g.mean(x as usize), from)
+                            .total_cmp(&sq_dist(g.mean(y as usize), from))
+                            .then(y.cmp(&x))
+                    })
+                    .unwrap_or(order[0])
+            };
+            let a = far(m0, &self.order[lo..hi]);
+            let b = far(g.mean(a as usize), &self.order[lo..hi]);
+            let (ma, mb) = (g.mean(a as usize), g.mean(b as usize));
+            let dir: Vec<f64> = mb
+                .iter()
+                .zip(ma)
+                .map(|(&y, &x)| y as f64 - x as f64)
+                .collect();
+            let proj = |x: PhraseId| -> f64 {
+                g.mean(x as usize)
+                    .iter()
+                    .zip(&dir)
+                    .map(|(&m, &u)| m as f64 * u)
+                    .sum()
+            };
+            let mid = (hi - lo) / 2;
+            self.order[lo..hi]
+                .select_nth_unstable_by(mid, |&x, &y| proj(x).total_cmp(&proj(y)).then(x.cmp(&y)));
+            let l = self.split(g, diag_ld, lo, lo + mid);
+            let r = self.split(g, diag_ld, lo + mid, hi);
+            self.balls[me as usize].kids = Some((l, r));
+        }
+        me
+    }
+
+    /// Lower bound of KL(c ‖ x) over the ball's broader members (`None` when no member is
+    /// broader than c), and whether a member can be a near-duplicate of c.
+    fn bounds(&self, ball: &Ball, g: &Gaussians, q: &Query) -> (Option<f64>, bool) {
+        let broader = ball.ld_hi > q.ld_c;
+        let in_window = ball.ld_hi >= q.ld_c - q.dup_margin && ball.ld_lo <= q.ld_c + q.dup_margin;
+        if !broader && !in_window {
+            return (None, false);
+        }
+        let mc = g.mean(q.c as usize);
+        let vc = g.variances(q.c as usize);
+        // one pass: Σₖ wₖ (μc,ₖ − μ̄ₖ)² and Σₖ σ²c,ₖ wₖ
+        let (mut dd2, mut var_term) = (0.0f64, 0.0f64);
+        for ((&m, &v), (&c, &w)) in mc.iter().zip(vc).zip(ball.centre.iter().zip(&ball.w)) {
+            let t = m as f64 - c as f64;
+            dd2 += t * t * w as f64;
+            var_term += v as f64 * w as f64;
+        }
+        let gap = (dd2.sqrt() - ball.radius).max(0.0);
+        let gap2 = gap * gap;
+        let kl = broader.then(|| {
+            let s = (var_term + gap2) * (1.0 - SLACK);
+            // only broader members count (ln det Σx > ln det Σc), whatever the ball's
+            // lowest ln det Σ; the two log determinants agree to ~10⁻¹² relative
+            let ld_gap = (ball.diag_ld_lo - q.diag_ld_c).max(0.0);
+            0.5 * (s - mc.len() as f64 + ld_gap) - 1e-6 * (1.0 + q.diag_ld_c.abs())
+        });
+        let dup = in_window && {
+            let rho = vc
+                .iter()
+                .zip(&ball.w)
+                .map(|(&v, &w)| {
+                    let vh = 1.0 / w as f64;
+                    vh / (v as f64 + vh)
+                })
+                .fold(1.0f64, f64::min);
+            0.25 * rho * gap2 * (1.0 - SLACK) <= q.dup_dmax * (1.0 + SLACK) + 1e-9
+        };
+        (kl, dup)
+    }
+
+    /// The children the search must look at (with their KL when broader than c), in an
+    /// order of its own; every other covered child can be skipped (module documentation).
+    pub(super) fn query(&self, g: &Gaussians, q: &Query, out: &mut Vec<(PhraseId, Option<f64>)>) {
+        out.clear();
+        // the `beam` lowest KLs of broader children so far (max-heap), the best eligible
+        let mut top: BinaryHeap<Key> = BinaryHeap::with_capacity(q.beam + 1);
+        let mut best = q.best_so_far;
+        let threshold = |top: &BinaryHeap<Key>, best: f64| {
+            let beam_cut = if top.len() >= q.beam {
+                top.peek().map_or(f64::INFINITY, |k| k.0)
+            } else {
+                f64::INFINITY
+            };
+            beam_cut.max(best)
+        };
+        // a ball is looked into when a member may be a duplicate or, having a broader
+        // member, its KL bound is within the threshold
+        let wanted = |kl: Option<f64>, dup: bool, top: &BinaryHeap<Key>, best: f64| {
+            dup || kl.is_some_and(|lb| lb <= threshold(top, best))
+        };
+        // nearest first: a min-heap on the KL bound (duplicate-only balls last)
+        let mut heap: BinaryHeap<(Reverse<Key>, u32, bool)> = BinaryHeap::new();
+        let (kl0, dup0) = self.bounds(&self.balls[0], g, q);
+        if wanted(kl0, dup0, &top, best) {
+            heap.push((Reverse(Key(kl0.unwrap_or(f64::INFINITY))), 0, dup0));
+        }
+        while let Some((Reverse(Key(lb)), bi, dup)) = heap.pop() {
+            let ball = &self.balls[bi as usize];
+            if !wanted((lb < f64::INFINITY).then_some(lb), dup, &top, best) {
+                continue;
+            }
+            match ball.kids {
+                Some((l, r)) => {
+                    for k in [l, r] {
+                        let (kl, dup) = self.bounds(&self.balls[k as usize], g, q);
+                        if wanted(kl, dup, &top, best) {
+                            heap.push((Reverse(Key(kl.unwrap_or(f64::INFINITY))), k, dup));
+                        }
+                    }
+                }
+                None => {
+                    for &x in &self.order[ball.lo as usize..ball.hi as usize] {
+                        if x == q.c {
+                            continue;
+                        }
+                        let k = (g.log_det(x as usize) > q.ld_c).then(|| (q.kl)(x));
+                        if let Some(k) = k {
+                            top.push(Key(k));
+                            if top.len() > q.beam {
+                                top.pop();
+                            }
+                            if g.log_det(x as usize) > q.min_ld && (q.eligible)(x) {
+                                best = best.min(k);
+                            }
+                        }
+                        out.push((x, k));
+                    }
+                }
+            }
+        }
+    }
+}
+
+/// Σₖ (aₖ − bₖ)² wₖ in f64.
+fn wdist2(a: &[f32], b: &[f32], w: &[f32]) -> f64 {
+    a.iter()
+        .zip(b)
+        .zip(w)
+        .map(|((&x, &y), &w)| {
+            let t = x as f64 - y as f64;
+            t * t * w as f64
+        })
+        .sum()
+}
+
+#[cfg(test)]
+mod tests {
+    use rand::{Rng, SeedableRng};
+    use rand_distr::{Distribution, StandardNormal};
+    use rand_xoshiro::Xoshiro256PlusPlus;
+
+    use crate::model::audit::treefit::tests::small_tree;
+    use crate::model::audit::{AuditConfig, Auditor};
+
+    /// `n` rows: row 0 the root; with `clustered`, the means come from 20 centres (spread 3,
+    /// members 0.3 around them) so the index can prune, else iid N(0, 1). Variances drawn
+    /// from [0.05, 2] per coordinate (so ln det Σ varies and some rows are broader). With
+    /// `flat` every row hangs under the root, else rows 1..=100 under the root and every
+    /// other row under one of them (wide second-level nodes).
+    fn project(
+        n: usize,
+        d: usize,
+        clustered: bool,
+        flat: bool,
+        seed: u64,
+    ) -> (
+        crate::model::gaussian::Gaussians,
+        crate::model::effective::EffectiveTree,
+    ) {
+        let mut rng = Xoshiro256PlusPlus::seed_from_u64(seed);
+        let centres: Vec<f64> = (0..20 * d)
+            .map(|_| {
+                let z: f64 = StandardNormal.sample(&mut rng);
+                3.0 * z
+            })
+            .collect();
+        let mut means = Vec::with_capacity(n * d);
+        let mut vars = Vec::with_capacity(n * d);
+        for i in 0..n {
+            let c = rng.gen_range(0..20);
+            for k in 0..d {
+                let z: f64 = StandardNormal.sample(&mut rng);
+                means.push(if clustered && i > 0 {
+                    centres[c * d + k] + 0.3 * z
+                } else {
+                    z
+                });
+                vars.push(if i == 0 {
+                    30.0
+                } else {
+                    rng.gen_range(0.05..2.0)
+                });
+            }
+        }
+        let parent: Vec<Option<usize>> = (0..n)
+            .map(|i| match i {
+                0 => None,
+                _ if flat || i <= 100 => Some(0),
+                _ => Some(1 + i % 100),
+            })
+            .collect();
+        small_tree(d, &means, &vars, &parent)
+    }
+
+    fn same_with_and_without_index(n: usize, clustered: bool, flat: bool, seed: u64) {
+        let (g, eff) = project(n, 8, clustered, flat, seed);
+        let t = crate::model::phrase::PhraseTable::from_records(
+            &(0..n)
+                .map(|i| crate::model::phrase::PhraseRecord {
+                    id: Some(format!("n{i}")),
+                    label: format!("node {i}"),
+                })
+                .collect::<Vec<_>>(),
+        )
+        .unwrap();
+        let cfg = AuditConfig {
+            exhaustive_limit: 0,
+            samples: 64,
+            ..AuditConfig::default()
+        };
+        // a low threshold so the two-level projects' nodes are indexed too
+        let with = Auditor::with_nav_min(&g, &t, &eff, &[], cfg.clone(), 16);
+        let without = Auditor::with_nav_min(&g, &t, &eff, &[], cfg, usize::MAX);
+        assert!(
+            !with.index.nav.is_empty(),
+            "the test must exercise the index"
+        );
+        assert!(without.index.nav.is_empty());
+        assert_eq!(with.placement, without.placement);
+        assert_eq!(with.report.findings, without.report.findings);
+    }
+
+    #[test]
+    fn the_index_finds_what_scoring_every_child_finds() {
+        // random data (common practice, no source: the index must change nothing)
+        same_with_and_without_index(3000, false, true, 1);
+        same_with_and_without_index(3000, true, true, 2);
+        same_with_and_without_index(3000, true, false, 3);
+        same_with_and_without_index(1500, false, false, 4);
+    }
+
+    #[test]
+    fn the_index_skips_most_children_of_clustered_data() {
+        let (g, eff) = project(4000, 8, true, true, 7);
+        let kids = eff.tree.children(0).to_vec();
+        let engine = crate::model::stats::StatsEngine::new(&g, &AuditConfig::default().stats());
+        let nav = super::NavIndex::build(&g, &engine.diag_log_det, &kids);
+        let c = kids[10];
+        let never = |_| true;
+        let kl = |x| crate::model::gaussian::kl(&g.get(c as usize), &g.get(x as usize));
+        let q = super::Query {
+            c,
+            ld_c: g.log_det(c as usize),
+            diag_ld_c: engine.diag_log_det[c as usize],
+            beam: 3,
+            best_so_far: f64::INFINITY,
+            min_ld: g.log_det(c as usize) + 1.5,
+            eligible: &never,
+            dup_dmax: -(0.9f64.ln()),
+            dup_margin: 2.0,
+            kl: &kl,
+        };
+        let mut out = Vec::new();
+        nav.query(&g, &q, &mut out);
+        assert!(
+            out.len() < kids.len() / 4,
+            "{} of {}",
+            out.len(),
+            kids.len()
+        );
+        // every child's order position is covered exactly once
+        let mut all = nav.order.clone();
+        all.sort_unstable();
+        let mut want = kids.clone();
+        want.sort_unstable();
+        assert_eq!(all, want);
+    }
+}
