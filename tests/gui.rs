@@ -394,6 +394,7 @@ fn signing_off_changes_the_status_bar() {
     let rename = Edit::Rename {
         node: "gifts".into(),
         label: "gift ideas".into(),
+        language: None,
     };
     h.state_mut().apply(treewright::gui::Action::Edit(rename));
     h.run();

@@ -839,6 +839,7 @@ mod tests {
             Edit::Rename {
                 node: "bulbs".into(),
                 label: "Bulbs".into(),
+                language: None,
             },
             "ben",
             2,
@@ -892,6 +893,7 @@ mod tests {
             Edit::Rename {
                 node: "rake".into(),
                 label: "Rake".into(),
+                language: None,
             },
             "ana",
             1,
@@ -900,6 +902,7 @@ mod tests {
             Edit::Rename {
                 node: "rake".into(),
                 label: "Lawn rake".into(),
+                language: None,
             },
             "ben",
             2,

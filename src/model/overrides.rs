@@ -18,6 +18,7 @@ use super::edit::{Edit, EditRecord, ReviewStatus};
 use super::effective::{ApplyProblem, EffectiveTree};
 use super::fsutil;
 use super::gaussian::PhraseId;
+use super::lang::PhraseLanguages;
 use super::lock::{LockError, ProjectLock};
 use super::merge::Conflict;
 use super::phrase::PhraseTable;
@@ -495,6 +496,8 @@ struct State {
     pinned: Vec<bool>,
     review: Vec<ReviewStatus>,
     review_comment: Vec<String>,
+    /// Default language and labels in the other languages.
+    languages: PhraseLanguages,
     /// For an excluded phrase: the parent it had and the children that moved up, so that
     /// `include` can put them back.
     excluded_from: Vec<Option<(PhraseId, Vec<PhraseId>)>>,
@@ -520,6 +523,7 @@ impl State {
             pinned: eff.pinned.clone(),
             review: eff.review.clone(),
             review_comment: eff.review_comment.clone(),
+            languages: eff.languages.clone(),
             excluded_from: vec![None; n],
         }
     }
@@ -571,6 +575,7 @@ impl State {
             pinned: self.pinned,
             review: self.review,
             review_comment: self.review_comment,
+            languages: self.languages,
         })
     }
 }
@@ -585,6 +590,8 @@ trait View {
     fn excluded(&self, p: PhraseId) -> bool;
     fn pinned(&self, p: PhraseId) -> bool;
     fn label(&self, p: PhraseId) -> &str;
+    /// The default language and the labels in the others.
+    fn languages(&self) -> &PhraseLanguages;
     /// True when `a` is a proper ancestor of `b`.
     fn is_ancestor(&self, a: PhraseId, b: PhraseId) -> bool {
         let mut cur = self.parent(b);
@@ -620,6 +627,9 @@ impl View for State {
     fn label(&self, p: PhraseId) -> &str {
         &self.labels[p as usize]
     }
+    fn languages(&self) -> &PhraseLanguages {
+        &self.languages
+    }
 }
 
 impl View for EffectiveTree {
@@ -644,6 +654,9 @@ impl View for EffectiveTree {
     fn label(&self, p: PhraseId) -> &str {
         &self.labels[p as usize]
     }
+    fn languages(&self) -> &PhraseLanguages {
+        &self.languages
+    }
 }
 
 /// What a validated edit will do, with ids resolved to rows.
@@ -653,6 +666,7 @@ enum Plan {
     Unpin(PhraseId),
     Merge(Vec<PhraseId>, PhraseId),
     Rename(PhraseId, String),
+    RenameIn(PhraseId, String, String),
     Exclude(PhraseId),
     Include(PhraseId),
     Review(PhraseId, ReviewStatus, String),
@@ -776,8 +790,25 @@ fn validate(s: &impl View, phrases: &PhraseTable, edit: &Edit) -> Result<Plan, E
             }
             Ok(Plan::Merge(rows, t))
         }
-        Edit::Rename { node, label } => {
+        Edit::Rename {
+            node,
+            label,
+            language,
+        } => {
             let x = lookup(phrases, node)?;
+            // a language other than the default: the label in that language
+            let other = match language {
+                None => None,
+                Some(t) => {
+                    let t = crate::model::lang::normalize_tag(t).map_err(|why| {
+                        EditRefusal::BadLanguage {
+                            node: own(node),
+                            why,
+                        }
+                    })?;
+                    (t != s.languages().default).then_some(t)
+                }
+            };
             let label = match crate::model::label::clean(label) {
                 Ok(l) => l,
                 Err(crate::model::label::LabelError::Empty) => {
@@ -791,13 +822,25 @@ fn validate(s: &impl View, phrases: &PhraseTable, edit: &Edit) -> Result<Plan, E
                 }
             };
             let label = label.as_ref();
-            if s.label(x) == label {
+            let current = match &other {
+                None => Some(s.label(x)),
+                Some(t) => s
+                    .languages()
+                    .other
+                    .get(&x)
+                    .and_then(|m| m.get(t))
+                    .map(String::as_str),
+            };
+            if current == Some(label) {
                 return Err(EditRefusal::SameLabel {
                     node: own(node),
                     label: own(label),
                 });
             }
-            Ok(Plan::Rename(x, label.to_string()))
+            Ok(match other {
+                None => Plan::Rename(x, label.to_string()),
+                Some(t) => Plan::RenameIn(x, t, label.to_string()),
+            })
         }
         Edit::Exclude { node } => {
             let x = lookup(phrases, node)?;
@@ -868,6 +911,13 @@ fn execute(s: &mut State, plan: Plan) {
             }
         }
         Plan::Rename(x, label) => s.labels[x as usize] = label,
+        Plan::RenameIn(x, language, label) => {
+            s.languages
+                .other
+                .entry(x)
+                .or_default()
+                .insert(language, label);
+        }
         Plan::Exclude(x) => {
             if s.is_node(x) {
                 let up = s.parent[x as usize].unwrap_or(s.root);
@@ -1100,6 +1150,7 @@ mod tests {
             rec(Edit::Rename {
                 node: "gone".into(),
                 label: "x".into(),
+                language: None,
             }),
         ];
         let (eff, probs) = apply(&base, &t, &e);
@@ -1295,6 +1346,7 @@ mod tests {
             rec(Edit::Rename {
                 node: "cactus".into(),
                 label: "cacti".into(),
+                language: None,
             }),
             rec(Edit::Merge {
                 sources: vec!["fern".into()],

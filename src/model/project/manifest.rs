@@ -131,6 +131,10 @@ pub struct Manifest {
     /// Size guards for loading (defaults when absent).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub limits: Option<Limits>,
+    /// Language of the phrases' main labels (a BCP 47 tag; `en` when absent). Labels in
+    /// other languages come from the `labels` map of each row of `phrases.json`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub default_language: Option<String>,
 }
 
 fn is_default_scale(s: &Scale) -> bool {

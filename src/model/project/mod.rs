@@ -14,6 +14,7 @@ mod load;
 mod manifest;
 mod npy;
 mod parquet;
+pub mod phrase_langs;
 mod read;
 mod skos_tree;
 mod taxonomy_import;

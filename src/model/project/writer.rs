@@ -81,6 +81,7 @@ impl ProjectWriter<'_> {
             overrides: Some("overrides.json".into()),
             audit: None,
             limits: None,
+            default_language: None,
         };
         fsutil::atomic_write(
             &dir.join(MANIFEST_NAME),
