@@ -54,14 +54,14 @@ fn read_back(ttl: &str) -> Labels {
         let Some(local) = p.strip_prefix(SKOS_NS) else {
             continue;
         };
-        if let Term::Literal(l) = &t.object {
-            if let Some(lang) = l.language() {
-                out.entry(t.subject.to_string())
-                    .or_default()
-                    .entry(local.to_string())
-                    .or_default()
-                    .push((l.value().to_string(), lang.to_string()));
-            }
+        if let Term::Literal(l) = &t.object
+            && let Some(lang) = l.language()
+        {
+            out.entry(t.subject.to_string())
+                .or_default()
+                .entry(local.to_string())
+                .or_default()
+                .push((l.value().to_string(), lang.to_string()));
         }
     }
     out
@@ -248,4 +248,41 @@ fn a_label_equal_to_another_phrases_label_in_another_language_is_reported_not_me
     // nothing was merged
     let eff = ws.effective().unwrap();
     assert!(eff.aliases.iter().all(Vec::is_empty));
+}
+
+#[test]
+fn the_cli_renames_in_a_language_and_refuses_a_malformed_tag() {
+    let dir = tempfile::tempdir().unwrap();
+    for f in [
+        "project.json",
+        "phrases.json",
+        "embeddings.json",
+        "tree.json",
+    ] {
+        std::fs::copy(sample().join(f), dir.path().join(f)).unwrap();
+    }
+    let run = |lang: &str| {
+        std::process::Command::new(env!("CARGO_BIN_EXE_treewright"))
+            .arg("edit")
+            .arg(dir.path())
+            .args(["rename", "fern", "Echter Farn", "--language", lang])
+            .args(["--author", "ines"])
+            .output()
+            .unwrap()
+    };
+    let bad = run("de_DE");
+    assert_eq!(bad.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&bad.stderr);
+    assert!(err.contains("de_DE") && err.contains("BCP 47"), "{err}");
+    let ok = run("de");
+    assert!(
+        ok.status.success(),
+        "{}",
+        String::from_utf8_lossy(&ok.stderr)
+    );
+    let ws = Workspace::open(dir.path()).unwrap();
+    let p = ws.project.phrases.get("fern").unwrap();
+    let eff = ws.effective().unwrap();
+    assert_eq!(eff.label_in(p, "de"), "Echter Farn");
+    assert_eq!(eff.label(p), "fern");
 }
