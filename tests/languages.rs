@@ -286,3 +286,33 @@ fn the_cli_renames_in_a_language_and_refuses_a_malformed_tag() {
     assert_eq!(eff.label_in(p, "de"), "Echter Farn");
     assert_eq!(eff.label(p), "fern");
 }
+
+#[test]
+fn two_renames_of_one_label_in_another_language_conflict_in_a_merge() {
+    // broken twin: comparing only the default-language label (as before languages; tried by
+    // editing merge.rs) reports an "order" conflict only, not that the labels disagree
+    use treewright::model::edit::EditRecord;
+    use treewright::model::merge::merge;
+    let ws = Workspace::open(&sample()).unwrap();
+    let rec = |label: &str, who: &str| EditRecord {
+        edit: Edit::Rename {
+            node: "fern".into(),
+            label: label.into(),
+            language: Some("de".into()),
+        },
+        author: who.into(),
+        time: "2026-12-04T10:00:00Z".into(),
+        note: None,
+    };
+    let base_tree = ws.base().unwrap();
+    let phrases = &ws.project.phrases;
+    let m = merge(
+        base_tree,
+        phrases,
+        &[],
+        &[rec("Echter Farn", "ana")],
+        &[rec("Wurmfarn", "ben")],
+    );
+    assert_eq!(m.conflicts.len(), 1, "{:?}", m.conflicts);
+    assert_eq!(m.conflicts[0].kinds, vec!["label".to_string()]);
+}
