@@ -482,6 +482,9 @@ pub fn record(edit: Edit, author: &str, note: Option<String>) -> EditRecord {
     }
 }
 
+/// The check of a rename (in the default or another language).
+mod rename;
+
 /// Working state of [`apply`]: a mutable tree plus the per-phrase layers.
 #[derive(Debug, Clone)]
 struct State {
@@ -794,54 +797,7 @@ fn validate(s: &impl View, phrases: &PhraseTable, edit: &Edit) -> Result<Plan, E
             node,
             label,
             language,
-        } => {
-            let x = lookup(phrases, node)?;
-            // a language other than the default: the label in that language
-            let other = match language {
-                None => None,
-                Some(t) => {
-                    let t = crate::model::lang::normalize_tag(t).map_err(|why| {
-                        EditRefusal::BadLanguage {
-                            node: own(node),
-                            why,
-                        }
-                    })?;
-                    (t != s.languages().default).then_some(t)
-                }
-            };
-            let label = match crate::model::label::clean(label) {
-                Ok(l) => l,
-                Err(crate::model::label::LabelError::Empty) => {
-                    return Err(EditRefusal::EmptyLabel);
-                }
-                Err(why) => {
-                    return Err(EditRefusal::BadLabel {
-                        node: own(node),
-                        why,
-                    });
-                }
-            };
-            let label = label.as_ref();
-            let current = match &other {
-                None => Some(s.label(x)),
-                Some(t) => s
-                    .languages()
-                    .other
-                    .get(&x)
-                    .and_then(|m| m.get(t))
-                    .map(String::as_str),
-            };
-            if current == Some(label) {
-                return Err(EditRefusal::SameLabel {
-                    node: own(node),
-                    label: own(label),
-                });
-            }
-            Ok(match other {
-                None => Plan::Rename(x, label.to_string()),
-                Some(t) => Plan::RenameIn(x, t, label.to_string()),
-            })
-        }
+        } => rename::plan(s, phrases, node, label, language.as_deref()),
         Edit::Exclude { node } => {
             let x = lookup(phrases, node)?;
             if x == s.root() {
