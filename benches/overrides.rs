@@ -41,6 +41,7 @@ fn setup(n: usize, edits: usize) -> (PhraseTable, Tree, Vec<EditRecord>) {
                 _ => Edit::Rename {
                     node: id(&mut rng),
                     label: format!("renamed {k}"),
+                    language: None,
                 },
             },
             author: "bench".into(),

@@ -68,6 +68,7 @@ fn arb_project() -> impl Strategy<Value = (PhraseTable, Tree, Vec<EditRecord>)> 
                         2 => Edit::Rename {
                             node: id(a),
                             label: t.label((b % n) as PhraseId).to_string(),
+                            language: None,
                         },
                         _ => Edit::Reparent {
                             node: id(a),

@@ -392,6 +392,7 @@ fn signing_off_changes_the_status_bar() {
     let rename = Edit::Rename {
         node: "gifts".into(),
         label: "gift ideas".into(),
+        language: None,
     };
     h.state_mut().apply(treewright::gui::Action::Edit(rename));
     h.run();

@@ -45,6 +45,7 @@ fn the_status_bar_counts_the_changes_since_sign_off_and_opens_the_comparison() {
         Edit::Rename {
             node: "gifts".into(),
             label: "gift ideas".into(),
+            language: None,
         },
         Edit::Exclude {
             node: "aloe".into(),

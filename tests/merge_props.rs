@@ -69,6 +69,7 @@ fn make(n: usize, (kind, a, b, s): Raw, who: &str, k: usize) -> EditRecord {
         4 => Edit::Rename {
             node: id(a),
             label: format!("{who} {}", s),
+            language: None,
         },
         5 => Edit::Exclude { node: id(a) },
         6 => Edit::Include { node: id(a) },

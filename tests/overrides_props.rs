@@ -79,6 +79,7 @@ fn make_edit(n: usize, (kind, a, b, c, s): (u8, usize, usize, usize, u8)) -> Edi
         5 => Edit::Rename {
             node: id(a),
             label: format!("renamed {}", b % 3),
+            language: None,
         },
         6 => Edit::Exclude { node: id(a) },
         7 => Edit::Include { node: id(a) },

@@ -85,6 +85,7 @@ fn edit(kind: u8, a: u8, b: u8) -> Edit {
         4 => Edit::Rename {
             node,
             label: format!("label {a} {b}"),
+            language: None,
         },
         5 => Edit::Exclude { node },
         _ => Edit::Include { node },

@@ -84,6 +84,10 @@ pub enum EditOp {
         node: String,
         /// New label.
         label: String,
+        /// Language of the new label (BCP 47 tag such as de or ja); default: the project's
+        /// default language.
+        #[arg(long, value_name = "TAG")]
+        language: Option<String>,
         #[command(flatten)]
         meta: Meta,
     },
@@ -165,10 +169,16 @@ pub fn run(args: EditArgs) -> Result<(), CliError> {
                 meta,
             )
         }
-        EditOp::Rename { node, label, meta } => (
+        EditOp::Rename {
+            node,
+            label,
+            language,
+            meta,
+        } => (
             Edit::Rename {
                 node: ws.resolve(&node)?,
                 label,
+                language,
             },
             meta,
         ),

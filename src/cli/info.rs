@@ -61,6 +61,26 @@ pub fn render_text(info: &ProjectInfo) -> String {
             let _ = writeln!(s, "tree        none");
         }
     }
+    if !info.languages.is_empty() {
+        let _ = writeln!(s, "languages   {}", info.languages.join(", "));
+    }
+    for c in &info.label_clashes {
+        let _ = writeln!(
+            s,
+            "label clash \"{}\"@{} ({}) and \"{}\"@{} ({}) are equal after case folding{}",
+            c.a.label,
+            c.a.language,
+            c.a.id,
+            c.b.label,
+            c.b.language,
+            c.b.id,
+            if c.cross_language {
+                " (two languages: not merged, check they mean different things)"
+            } else {
+                ""
+            }
+        );
+    }
     if info.unplaced.is_empty() {
         let _ = writeln!(s, "unplaced    none");
     } else {

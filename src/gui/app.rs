@@ -304,6 +304,7 @@ impl App {
             },
             Action::SetDark(d) => self.settings.dark = d,
             Action::SetCentral(c) => self.settings.central = c,
+            Action::SetDisplayLanguage(l) => self.settings.display_language = l,
             Action::SetAuthor(name) => self.settings.author = name,
             Action::ExpandAll => self.tree_panel.expand_all(),
             Action::CollapseAll => {

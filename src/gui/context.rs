@@ -129,6 +129,8 @@ pub enum Action {
     SetDark(bool),
     /// Choose what the centre of the window shows.
     SetCentral(Central),
+    /// Choose the language labels are shown in (`None`: the project's default).
+    SetDisplayLanguage(Option<String>),
     /// Remember a new author name (stored with every later edit and offered as reviewer).
     /// Emit it before the edits it should apply to.
     SetAuthor(String),
@@ -243,6 +245,9 @@ pub struct Settings {
     pub author: String,
     /// What the centre of the window shows.
     pub central: Central,
+    /// Language the labels are shown in (a BCP 47 tag); `None`: the project's default. A
+    /// phrase without a label in it shows its default-language label.
+    pub display_language: Option<String>,
 }
 
 /// The views of the centre area.
@@ -269,6 +274,7 @@ impl Default for Settings {
                 .filter(|u| !u.is_empty())
                 .unwrap_or_else(|| "curator".into()),
             central: Central::Ellipses,
+            display_language: None,
         }
     }
 }
@@ -367,10 +373,38 @@ impl ViewCtx<'_> {
         self.open_by_severity[severity_index(min)..].iter().sum()
     }
 
-    /// A node's current label (effective tree first, else the phrase table).
+    /// A node's current label (effective tree first, else the phrase table), in the display
+    /// language when it has a label in it, else in the project's default language.
     pub fn label(&self, p: PhraseId) -> &str {
-        self.eff
-            .map_or_else(|| self.project.phrases.label(p), |e| e.label(p))
+        let lang = self.settings.display_language.as_deref();
+        match (self.eff, lang) {
+            (Some(e), Some(l)) => e.label_in(p, l),
+            (Some(e), None) => e.label(p),
+            (None, Some(l)) => self
+                .project
+                .phrases
+                .label_in(p, l)
+                .unwrap_or_else(|| self.project.phrases.label(p)),
+            (None, None) => self.project.phrases.label(p),
+        }
+    }
+
+    /// Whether any label of `p`, in any language, contains `query` after NFC and case
+    /// folding (the search of the tree, the picker and the suggestion panel).
+    pub fn matches_any_language(&self, p: PhraseId, query_folded: &str) -> bool {
+        match self.eff {
+            Some(e) => e.any_label_contains(p, query_folded),
+            None => {
+                let t = &self.project.phrases;
+                crate::model::lang::fold(t.label(p), None).contains(query_folded)
+                    || t.languages().is_some_and(|l| {
+                        l.other.get(&p).is_some_and(|m| {
+                            m.values()
+                                .any(|v| crate::model::lang::fold(v, None).contains(query_folded))
+                        })
+                    })
+            }
+        }
     }
 }
 

@@ -435,10 +435,8 @@ impl Panel for EllipsePanel {
             ey * 100.0
         ));
         let eff = view.eff;
-        let label_of = |p: PhraseId| match eff {
-            Some(e) => e.label(p).to_string(),
-            None => view.project.phrases.label(p).to_string(),
-        };
+        // in the display language (View ▸ Label language)
+        let label_of = |p: PhraseId| super::fonts::display_label(view.label(p)).into_owned();
         let alphas = projection::sigma_levels();
         let levels = self.levels;
         let labels = self.labels;

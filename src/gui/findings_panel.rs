@@ -256,11 +256,8 @@ impl Panel for FindingsPanel {
                 cache.open
             )
         });
-        let eff = view.eff;
-        let label = |p| match eff {
-            Some(e) => e.label(p).to_string(),
-            None => view.project.phrases.label(p).to_string(),
-        };
+        // in the display language (View ▸ Label language)
+        let label = |p| super::fonts::display_label(view.label(p)).into_owned();
         egui::ScrollArea::vertical()
             .id_salt("findings-rows")
             .max_height(list_height)

@@ -127,6 +127,29 @@ fn menu(ui: &mut egui::Ui, view: &ViewCtx) -> Vec<Action> {
             if item(ui, "Dark theme", None, !settings.dark) {
                 actions.push(Action::SetDark(true));
             }
+            // the language labels are shown in (only when the project has more than one)
+            if let Some(eff) = view.eff {
+                let langs = eff.languages.languages();
+                if langs.len() > 1 {
+                    ui.separator();
+                    ui.label("Label language");
+                    let current = settings
+                        .display_language
+                        .clone()
+                        .unwrap_or_else(|| eff.languages.default.clone());
+                    for l in langs {
+                        let text = if l == eff.languages.default {
+                            format!("{l} (default)")
+                        } else {
+                            l.clone()
+                        };
+                        if ui.radio(current == l, text).clicked() {
+                            let pick = (l != eff.languages.default).then_some(l);
+                            actions.push(Action::SetDisplayLanguage(pick));
+                        }
+                    }
+                }
+            }
         });
         ui.menu_button("Help", |ui| {
             if item(ui, "Keyboard shortcuts", Some(Command::Help), true) {

@@ -13,6 +13,7 @@ pub mod dialogs;
 pub mod doc;
 pub mod ellipse_panel;
 pub mod findings_panel;
+pub mod fonts;
 pub mod menu_bar;
 pub mod queue_panel;
 pub mod shortcuts;
@@ -62,7 +63,11 @@ pub fn run(project: Option<PathBuf>, select: Option<String>) -> ExitCode {
                 .storage
                 .and_then(|s| eframe::get_value(s, context::SETTINGS_KEY))
                 .unwrap_or_default();
+            let fonts = fonts::install(&cc.egui_ctx);
             let mut app = App::new(doc, settings);
+            if let Some(line) = fonts.status_line() {
+                app.message = Some((line, false));
+            }
             if let Some(id) = select
                 && let Err(e) = app.preselect(&id)
             {

@@ -129,10 +129,8 @@ impl Panel for StatsPanel {
         };
         self.refresh(view, p);
         let g = &view.project.gaussians;
-        let label = |q: PhraseId| match view.eff {
-            Some(e) => e.label(q).to_string(),
-            None => view.project.phrases.label(q).to_string(),
-        };
+        // in the display language (View ▸ Label language)
+        let label = |q: PhraseId| super::fonts::display_label(view.label(q)).into_owned();
         ui.label(egui::RichText::new(label(p)).strong().size(16.0));
         if view.selection.len() > 1 {
             ui.label(format!("(first of {} selected)", view.selection.len()));

@@ -296,10 +296,10 @@ impl SuggestPanel {
             let fresh =
                 matches!(&self.matches, Some((mq, mr, _)) if *mq == q && *mr == view.revision);
             if !fresh {
+                // labels in every language, after NFC and case folding
+                let qf = crate::model::lang::fold(&q, None);
                 let found: Vec<PhraseId> = (0..phrases.len() as PhraseId)
-                    .filter(|&p| {
-                        view.eff.label(p).to_lowercase().contains(&q) || phrases.id(p).contains(&q)
-                    })
+                    .filter(|&p| view.eff.any_label_contains(p, &qf) || phrases.id(p).contains(&q))
                     .take(8)
                     .collect();
                 self.matches = Some((q.clone(), view.revision, found));

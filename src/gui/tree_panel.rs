@@ -158,12 +158,14 @@ impl TreePanel {
         if q.is_empty() {
             return;
         }
+        // labels in every language, compared after NFC and case folding
+        let qf = crate::model::lang::fold(self.query.trim(), None);
         for p in eff.tree.preorder() {
-            let hit = eff.label(p).to_lowercase().contains(&q)
+            let hit = eff.any_label_contains(p, &qf)
                 || ctx.project.phrases.id(p).contains(&q)
                 || eff.aliases[p as usize]
                     .iter()
-                    .any(|&a| eff.label(a).to_lowercase().contains(&q));
+                    .any(|&a| eff.any_label_contains(a, &qf));
             if hit {
                 self.matches.push(p);
                 self.is_match[p as usize] = true;
@@ -258,7 +260,9 @@ impl TreePanel {
         if excluded.is_empty() && unplaced.is_empty() {
             return;
         }
-        let Some(eff) = ctx.eff else { return };
+        if ctx.eff.is_none() {
+            return;
+        }
         egui::CollapsingHeader::new(format!(
             "Outside the tree: {} unplaced, {} excluded",
             unplaced.len(),
@@ -273,7 +277,10 @@ impl TreePanel {
                     for &p in unplaced {
                         ui.horizontal(|ui| {
                             ui.label(badges::pill("unplaced", badges::YELLOW));
-                            let r = ui.selectable_label(ctx.selection.contains(&p), eff.label(p));
+                            let r = ui.selectable_label(
+                                ctx.selection.contains(&p),
+                                super::fonts::display_label(ctx.label(p)),
+                            );
                             if r.clicked() {
                                 actions.push(Action::Select(p));
                             }
@@ -292,7 +299,10 @@ impl TreePanel {
                     for &p in excluded {
                         ui.horizontal(|ui| {
                             ui.label(badges::pill("excluded", Color32::from_gray(190)));
-                            let r = ui.selectable_label(ctx.selection.contains(&p), eff.label(p));
+                            let r = ui.selectable_label(
+                                ctx.selection.contains(&p),
+                                super::fonts::display_label(ctx.label(p)),
+                            );
                             if r.clicked() {
                                 actions.push(Action::Select(p));
                             }
@@ -428,7 +438,7 @@ impl Panel for TreePanel {
                         let (t, tip) = badges::aliases(n_alias);
                         ui.label(t).on_hover_text(tip);
                     }
-                    let label = eff.label(p);
+                    let label = super::fonts::display_label(ctx.label(p));
                     let mut text = RichText::new(if kids > 0 {
                         format!("{label}  ({kids})")
                     } else {

@@ -346,6 +346,7 @@ mod tests {
             rec(Edit::Rename {
                 node: "fern".into(),
                 label: "ferns".into(),
+                language: None,
             }),
             rec(Edit::Exclude {
                 node: "fern".into(),
@@ -399,6 +400,7 @@ mod tests {
             rec(Edit::Rename {
                 node: "cactus".into(),
                 label: "cacti".into(),
+                language: None,
             }),
         ];
         // re-trained: cactus vanished, hosta now under succulent, a new phrase "aloe"

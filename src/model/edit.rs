@@ -80,6 +80,10 @@ pub enum Edit {
         node: String,
         /// New label.
         label: String,
+        /// The language of the new label (a BCP 47 tag); absent: the project's default
+        /// language, the label every view shows by default.
+        #[serde(default, skip_serializing_if = "Option::is_none")]
+        language: Option<String>,
     },
     /// Leave `node` out of the deployed tree; its children move to its parent.
     Exclude {
@@ -138,14 +142,22 @@ impl Edit {
     /// given, for the edit check to refuse with its reason.
     pub fn normalized(self) -> Edit {
         match self {
-            Edit::Rename { node, label } => {
+            Edit::Rename {
+                node,
+                label,
+                language,
+            } => {
                 let cleaned = match crate::model::label::clean(&label) {
                     Ok(l) if l != label.as_str() => Some(l.into_owned()),
                     _ => None,
                 };
+                // a well-formed tag is stored in its canonical case; a bad one is left for
+                // the edit check to refuse
+                let language = language.map(|t| crate::model::lang::normalize_tag(&t).unwrap_or(t));
                 Edit::Rename {
                     node,
                     label: cleaned.unwrap_or(label),
+                    language,
                 }
             }
             e => e,

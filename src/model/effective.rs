@@ -7,6 +7,7 @@ use serde::Serialize;
 
 use super::edit::ReviewStatus;
 use super::gaussian::PhraseId;
+use super::lang::PhraseLanguages;
 use super::phrase::PhraseTable;
 use super::tree::Tree;
 
@@ -29,6 +30,9 @@ pub struct EffectiveTree {
     pub review: Vec<ReviewStatus>,
     /// Latest review comment of every phrase (empty when none).
     pub review_comment: Vec<String>,
+    /// The default language (that of [`EffectiveTree::labels`]) and the effective labels in
+    /// the other languages (renames in a language applied).
+    pub languages: PhraseLanguages,
 }
 
 /// Reason prefix of a problem caused by a phrase that is no longer in the phrase table
@@ -66,7 +70,49 @@ impl EffectiveTree {
             pinned: vec![false; n],
             review: vec![ReviewStatus::Unreviewed; n],
             review_comment: vec![String::new(); n],
+            languages: languages_of(phrases),
         }
+    }
+
+    /// Effective label of a phrase in `language`, falling back to the default language's
+    /// label when the phrase has none in it.
+    pub fn label_in(&self, p: PhraseId, language: &str) -> &str {
+        self.label_in_opt(p, language)
+            .unwrap_or_else(|| self.label(p))
+    }
+
+    /// Effective label of a phrase in `language`, `None` when it has none in that language.
+    pub fn label_in_opt(&self, p: PhraseId, language: &str) -> Option<&str> {
+        if language == self.languages.default {
+            return Some(self.label(p));
+        }
+        self.languages
+            .other
+            .get(&p)?
+            .get(language)
+            .map(String::as_str)
+    }
+
+    /// Every effective label of a phrase with its language: the default language first,
+    /// then the others by tag.
+    pub fn labels_of(&self, p: PhraseId) -> Vec<(&str, &str)> {
+        let mut out = vec![(self.languages.default.as_str(), self.label(p))];
+        if let Some(m) = self.languages.other.get(&p) {
+            out.extend(
+                m.iter()
+                    .filter(|(l, _)| **l != self.languages.default)
+                    .map(|(l, s)| (l.as_str(), s.as_str())),
+            );
+        }
+        out
+    }
+
+    /// Whether any effective label of `p`, in any language, contains `needle_folded` (a
+    /// query already passed through [`crate::model::lang::fold`]).
+    pub fn any_label_contains(&self, p: PhraseId, needle_folded: &str) -> bool {
+        self.labels_of(p)
+            .iter()
+            .any(|(_, l)| crate::model::lang::fold(l, None).contains(needle_folded))
     }
 
     /// Effective label of a phrase.
@@ -91,5 +137,17 @@ impl EffectiveTree {
                 !self.tree.is_placed(p) && self.alias_of[i].is_none() && !self.excluded[i]
             })
             .collect()
+    }
+}
+
+/// The languages of a phrase table as the effective tree starts them: the project's, or the
+/// fallback language with no other labels.
+pub fn languages_of(phrases: &PhraseTable) -> PhraseLanguages {
+    match phrases.languages() {
+        Some(l) => l.clone(),
+        None => PhraseLanguages {
+            default: phrases.default_language().to_string(),
+            other: Default::default(),
+        },
     }
 }

@@ -17,8 +17,8 @@ use super::phrase::PhraseTable;
 
 /// The SKOS core namespace (W3C SKOS Reference, 2009).
 pub const SKOS_NS: &str = "http://www.w3.org/2004/02/skos/core#";
-/// Language tag of every label written.
-pub const LABEL_LANGUAGE: &str = "en";
+/// Language tag of every label of a single-language project.
+pub const LABEL_LANGUAGE: &str = crate::model::lang::FALLBACK_LANGUAGE;
 /// Base IRI used when none is given (example.org is reserved for examples, RFC 2606).
 pub const DEFAULT_BASE_IRI: &str = "http://example.org/treewright/";
 
@@ -184,19 +184,28 @@ fn named(iri: String) -> Result<NamedNode, ExportError> {
     })
 }
 
-fn lang(label: &str) -> Literal {
-    // "en" is a well-formed BCP 47 tag, so the checked constructor cannot fail
-    Literal::new_language_tagged_literal_unchecked(label, LABEL_LANGUAGE)
+fn lang(label: &str, tag: &str) -> Literal {
+    // every tag was checked as BCP 47 (and put in canonical case) when it entered the
+    // project, so the checked constructor is not needed
+    Literal::new_language_tagged_literal_unchecked(label, tag)
 }
 
 /// Alternative labels of a node: the labels of its aliases, without duplicates and without
 /// its preferred label (SKOS Reference S13: prefLabel and altLabel are disjoint).
 pub fn alt_labels(eff: &EffectiveTree, p: PhraseId) -> Vec<&str> {
-    let pref = eff.label(p);
+    alt_labels_in(eff, p, &eff.languages.default)
+}
+
+/// [`alt_labels`] in one language: the aliases' labels in `language` (aliases without one
+/// in it give none), without duplicates and without the node's preferred label in it.
+pub fn alt_labels_in<'a>(eff: &'a EffectiveTree, p: PhraseId, language: &str) -> Vec<&'a str> {
+    let pref = eff.label_in_opt(p, language);
     let mut out: Vec<&str> = Vec::new();
     for &a in &eff.aliases[p as usize] {
-        let l = eff.label(a);
-        if l != pref && !out.contains(&l) {
+        let Some(l) = eff.label_in_opt(a, language) else {
+            continue;
+        };
+        if Some(l) != pref && !out.contains(&l) {
             out.push(l);
         }
     }
@@ -231,10 +240,12 @@ pub fn export_skos(
     let root = eff.tree.root();
     let s = scheme.as_ref();
     w.serialize_triple(TripleRef::new(s, rdf::TYPE, skos::CONCEPT_SCHEME))?;
+    let default = eff.languages.default.as_str();
+    let languages = eff.languages.languages();
     w.serialize_triple(TripleRef::new(
         s,
         skos::PREF_LABEL,
-        lang(scheme_label).as_ref(),
+        lang(scheme_label, default).as_ref(),
     ))?;
     w.serialize_triple(TripleRef::new(
         s,
@@ -248,15 +259,20 @@ pub fn export_skos(
         if p == root {
             w.serialize_triple(TripleRef::new(c, skos::TOP_CONCEPT_OF, s))?;
         }
-        w.serialize_triple(TripleRef::new(
-            c,
-            skos::PREF_LABEL,
-            lang(eff.label(p)).as_ref(),
-        ))?;
+        // SKOS Reference S14: at most one prefLabel per language tag
+        for (tag, label) in eff.labels_of(p) {
+            w.serialize_triple(TripleRef::new(
+                c,
+                skos::PREF_LABEL,
+                lang(label, tag).as_ref(),
+            ))?;
+        }
         let notation = Literal::new_simple_literal(phrases.id(p));
         w.serialize_triple(TripleRef::new(c, skos::NOTATION, notation.as_ref()))?;
-        for a in alt_labels(eff, p) {
-            w.serialize_triple(TripleRef::new(c, skos::ALT_LABEL, lang(a).as_ref()))?;
+        for tag in &languages {
+            for a in alt_labels_in(eff, p, tag) {
+                w.serialize_triple(TripleRef::new(c, skos::ALT_LABEL, lang(a, tag).as_ref()))?;
+            }
         }
         if let Some(par) = eff.tree.parent(p) {
             w.serialize_triple(TripleRef::new(c, skos::BROADER, iri[&par].as_ref()))?;
@@ -277,18 +293,19 @@ pub fn export_csv(eff: &EffectiveTree, phrases: &PhraseTable) -> String {
     let mut w = csv::WriterBuilder::new()
         .terminator(csv::Terminator::Any(b'\n'))
         .from_writer(Vec::new());
-    let mut rows: Vec<[String; 6]> = vec![[
-        "id".into(),
-        "label".into(),
-        "parent".into(),
-        "depth".into(),
-        "aliases".into(),
-        "status".into(),
-    ]];
+    // one `label@<tag>` column per language beyond the default (none in a single-language
+    // project, whose file is unchanged)
+    let others: Vec<String> = eff.languages.languages().into_iter().skip(1).collect();
+    let mut header: Vec<String> = ["id", "label", "parent", "depth", "aliases", "status"]
+        .iter()
+        .map(|s| s.to_string())
+        .collect();
+    header.extend(others.iter().map(|t| format!("label@{t}")));
+    let mut rows: Vec<Vec<String>> = vec![header];
     for p in eff.tree.preorder() {
         let i = p as usize;
         let aliases: Vec<&str> = eff.aliases[i].iter().map(|&a| eff.label(a)).collect();
-        rows.push([
+        let mut row = vec![
             phrases.id(p).to_string(),
             eff.label(p).to_string(),
             eff.tree
@@ -298,7 +315,13 @@ pub fn export_csv(eff: &EffectiveTree, phrases: &PhraseTable) -> String {
             depths[i].to_string(),
             aliases.join("|"),
             eff.review[i].as_str().to_string(),
-        ]);
+        ];
+        row.extend(
+            others
+                .iter()
+                .map(|t| eff.label_in_opt(p, t).unwrap_or_default().to_string()),
+        );
+        rows.push(row);
     }
     for r in &rows {
         // writing to an in-memory buffer does not fail
@@ -324,6 +347,13 @@ pub struct EffectiveTreeFile {
     /// Node or alias id → effective label, where it differs from `phrases.json`.
     #[serde(default, skip_serializing_if = "BTreeMap::is_empty")]
     pub renamed: BTreeMap<String, String>,
+    /// The default language, in a project that names its languages.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub default_language: Option<String>,
+    /// Node or alias id → language → effective label, for every phrase with a label in a
+    /// language other than the default (the default-language label included).
+    #[serde(default, skip_serializing_if = "BTreeMap::is_empty")]
+    pub labels: BTreeMap<String, BTreeMap<String, String>>,
 }
 
 /// Build the JSON export's value.
@@ -331,6 +361,7 @@ pub fn effective_tree_file(eff: &EffectiveTree, phrases: &PhraseTable) -> Effect
     let tf = eff.tree.to_file(phrases);
     let mut aliases = BTreeMap::new();
     let mut renamed = BTreeMap::new();
+    let mut labels = BTreeMap::new();
     let mut excluded = Vec::new();
     for p in 0..phrases.len() as PhraseId {
         let i = p as usize;
@@ -344,10 +375,18 @@ pub fn effective_tree_file(eff: &EffectiveTree, phrases: &PhraseTable) -> Effect
         }
         if eff.excluded[i] {
             excluded.push(phrases.id(p).to_string());
-        } else if (eff.tree.is_placed(p) || eff.alias_of[i].is_some())
-            && eff.label(p) != phrases.label(p)
-        {
-            renamed.insert(phrases.id(p).to_string(), eff.label(p).to_string());
+        } else if eff.tree.is_placed(p) || eff.alias_of[i].is_some() {
+            if eff.label(p) != phrases.label(p) {
+                renamed.insert(phrases.id(p).to_string(), eff.label(p).to_string());
+            }
+            if eff.languages.other.get(&p).is_some_and(|m| !m.is_empty()) {
+                let m = eff
+                    .labels_of(p)
+                    .into_iter()
+                    .map(|(t, l)| (t.to_string(), l.to_string()))
+                    .collect();
+                labels.insert(phrases.id(p).to_string(), m);
+            }
         }
     }
     excluded.sort();
@@ -357,6 +396,9 @@ pub fn effective_tree_file(eff: &EffectiveTree, phrases: &PhraseTable) -> Effect
         aliases,
         excluded,
         renamed,
+        default_language: (phrases.languages().is_some() || !eff.languages.other.is_empty())
+            .then(|| eff.languages.default.clone()),
+        labels,
     }
 }
 

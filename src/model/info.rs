@@ -68,6 +68,13 @@ pub struct ProjectInfo {
     pub tree: Option<TreeInfo>,
     /// Ids of phrases not in the tree (all phrases when there is no tree).
     pub unplaced: Vec<String>,
+    /// The languages of the labels, default first (empty for a single-language project).
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub languages: Vec<String>,
+    /// Phrases whose labels are equal after NFC and case folding, in one language or across
+    /// two (reported, never merged).
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub label_clashes: Vec<crate::model::label_clash::LabelClash>,
 }
 
 impl ProjectInfo {
@@ -103,6 +110,12 @@ impl ProjectInfo {
                 .into_iter()
                 .map(|x| p.phrases.id(x).to_string())
                 .collect(),
+            languages: p
+                .phrases
+                .languages()
+                .map(|l| l.languages())
+                .unwrap_or_default(),
+            label_clashes: crate::model::label_clash::table_clashes(&p.phrases),
         }
     }
 }

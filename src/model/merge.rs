@@ -242,7 +242,8 @@ fn subjects(e: &Edit) -> Vec<(&str, Cat)> {
 struct NodeState {
     parent: Option<PhraseId>,
     pinned: bool,
-    label: String,
+    /// Every effective label with its language (default first): renames in any language.
+    labels: Vec<(String, String)>,
     alias_of: Option<PhraseId>,
     excluded: bool,
     placed: bool,
@@ -254,7 +255,11 @@ fn state(eff: &EffectiveTree, p: PhraseId) -> NodeState {
     NodeState {
         parent: eff.tree.parent(p),
         pinned: eff.pinned[i],
-        label: eff.labels[i].clone(),
+        labels: eff
+            .labels_of(p)
+            .into_iter()
+            .map(|(l, s)| (l.to_string(), s.to_string()))
+            .collect(),
         alias_of: eff.alias_of[i],
         excluded: eff.excluded[i],
         placed: eff.tree.is_placed(p),
@@ -401,7 +406,7 @@ pub fn merge(
                     {
                         Some("placement")
                     }
-                    (Cat::Label, Cat::Label) if so.label != st.label => Some("label"),
+                    (Cat::Label, Cat::Label) if so.labels != st.labels => Some("label"),
                     (Cat::Remove, Cat::Remove)
                         if (so.alias_of, so.excluded) != (st.alias_of, st.excluded) =>
                     {
@@ -844,6 +849,7 @@ mod tests {
             Edit::Rename {
                 node: "bulbs".into(),
                 label: "Bulbs".into(),
+                language: None,
             },
             "ben",
             2,
@@ -897,6 +903,7 @@ mod tests {
             Edit::Rename {
                 node: "rake".into(),
                 label: "Rake".into(),
+                language: None,
             },
             "ana",
             1,
@@ -905,6 +912,7 @@ mod tests {
             Edit::Rename {
                 node: "rake".into(),
                 label: "Lawn rake".into(),
+                language: None,
             },
             "ben",
             2,

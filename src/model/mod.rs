@@ -19,6 +19,8 @@ mod kernels;
 pub mod kmeans;
 pub mod kneedle;
 pub mod label;
+pub mod label_clash;
+pub mod lang;
 pub mod lock;
 pub mod merge;
 pub mod overrides;

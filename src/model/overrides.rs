@@ -20,6 +20,7 @@ use super::effective::{ApplyProblem, EffectiveTree};
 use super::fsutil;
 use super::gaussian::PhraseId;
 use super::history::{self, StoredRecord};
+use super::lang::PhraseLanguages;
 use super::lock::{LockError, ProjectLock};
 use super::merge::Conflict;
 use super::phrase::PhraseTable;
@@ -518,6 +519,9 @@ pub fn record(edit: Edit, author: &str, note: Option<String>) -> EditRecord {
     }
 }
 
+/// The check of a rename (in the default or another language).
+mod rename;
+
 /// Working state of [`apply`]: a mutable tree plus the per-phrase layers.
 #[derive(Debug, Clone)]
 struct State {
@@ -532,6 +536,8 @@ struct State {
     pinned: Vec<bool>,
     review: Vec<ReviewStatus>,
     review_comment: Vec<String>,
+    /// Default language and labels in the other languages.
+    languages: PhraseLanguages,
     /// For an excluded phrase: the parent it had and the children that moved up, so that
     /// `include` can put them back.
     excluded_from: Vec<Option<(PhraseId, Vec<PhraseId>)>>,
@@ -557,6 +563,7 @@ impl State {
             pinned: eff.pinned.clone(),
             review: eff.review.clone(),
             review_comment: eff.review_comment.clone(),
+            languages: eff.languages.clone(),
             excluded_from: vec![None; n],
         }
     }
@@ -608,6 +615,7 @@ impl State {
             pinned: self.pinned,
             review: self.review,
             review_comment: self.review_comment,
+            languages: self.languages,
         })
     }
 }
@@ -622,6 +630,8 @@ trait View {
     fn excluded(&self, p: PhraseId) -> bool;
     fn pinned(&self, p: PhraseId) -> bool;
     fn label(&self, p: PhraseId) -> &str;
+    /// The default language and the labels in the others.
+    fn languages(&self) -> &PhraseLanguages;
     /// True when `a` is a proper ancestor of `b`.
     fn is_ancestor(&self, a: PhraseId, b: PhraseId) -> bool {
         let mut cur = self.parent(b);
@@ -657,6 +667,9 @@ impl View for State {
     fn label(&self, p: PhraseId) -> &str {
         &self.labels[p as usize]
     }
+    fn languages(&self) -> &PhraseLanguages {
+        &self.languages
+    }
 }
 
 impl View for EffectiveTree {
@@ -681,6 +694,9 @@ impl View for EffectiveTree {
     fn label(&self, p: PhraseId) -> &str {
         &self.labels[p as usize]
     }
+    fn languages(&self) -> &PhraseLanguages {
+        &self.languages
+    }
 }
 
 /// What a validated edit will do, with ids resolved to rows.
@@ -690,6 +706,7 @@ enum Plan {
     Unpin(PhraseId),
     Merge(Vec<PhraseId>, PhraseId),
     Rename(PhraseId, String),
+    RenameIn(PhraseId, String, String),
     Exclude(PhraseId),
     Include(PhraseId),
     Review(PhraseId, ReviewStatus, String),
@@ -813,29 +830,11 @@ fn validate(s: &impl View, phrases: &PhraseTable, edit: &Edit) -> Result<Plan, E
             }
             Ok(Plan::Merge(rows, t))
         }
-        Edit::Rename { node, label } => {
-            let x = lookup(phrases, node)?;
-            let label = match crate::model::label::clean(label) {
-                Ok(l) => l,
-                Err(crate::model::label::LabelError::Empty) => {
-                    return Err(EditRefusal::EmptyLabel);
-                }
-                Err(why) => {
-                    return Err(EditRefusal::BadLabel {
-                        node: own(node),
-                        why,
-                    });
-                }
-            };
-            let label = label.as_ref();
-            if s.label(x) == label {
-                return Err(EditRefusal::SameLabel {
-                    node: own(node),
-                    label: own(label),
-                });
-            }
-            Ok(Plan::Rename(x, label.to_string()))
-        }
+        Edit::Rename {
+            node,
+            label,
+            language,
+        } => rename::plan(s, phrases, node, label, language.as_deref()),
         Edit::Exclude { node } => {
             let x = lookup(phrases, node)?;
             if x == s.root() {
@@ -906,6 +905,13 @@ fn execute(s: &mut State, plan: Plan) {
             }
         }
         Plan::Rename(x, label) => s.labels[x as usize] = label,
+        Plan::RenameIn(x, language, label) => {
+            s.languages
+                .other
+                .entry(x)
+                .or_default()
+                .insert(language, label);
+        }
         Plan::Exclude(x) => {
             if s.is_node(x) {
                 let up = s.parent[x as usize].unwrap_or(s.root);
@@ -1150,6 +1156,7 @@ mod tests {
             rec(Edit::Rename {
                 node: "gone".into(),
                 label: "x".into(),
+                language: None,
             }),
         ];
         let (eff, probs) = apply(&base, &t, &e);
@@ -1346,6 +1353,7 @@ mod tests {
             rec(Edit::Rename {
                 node: "cactus".into(),
                 label: "cacti".into(),
+                language: None,
             }),
             rec(Edit::Merge {
                 sources: vec!["fern".into()],

@@ -3,6 +3,7 @@
 use serde::{Deserialize, Serialize};
 
 use super::gaussian::PhraseId;
+use super::lang::{FALLBACK_LANGUAGE, PhraseLanguages};
 
 /// One phrase as stored in `phrases.json`.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
@@ -34,6 +35,8 @@ pub struct PhraseTable {
     labels: Vec<String>,
     /// Rows ordered by id.
     by_id: Vec<PhraseId>,
+    /// The project's languages, when it names any (`default_language`, `labels` maps).
+    langs: Option<Box<PhraseLanguages>>,
 }
 
 /// Why a phrase table could not be built.
@@ -104,7 +107,12 @@ impl PhraseTable {
                 second: w[1] as usize,
             });
         }
-        Ok(PhraseTable { ids, labels, by_id })
+        Ok(PhraseTable {
+            ids,
+            labels,
+            by_id,
+            langs: None,
+        })
     }
 
     /// A table from ids alone, each labelled with its id with `-` read as a space (handy for
@@ -157,10 +165,38 @@ impl PhraseTable {
             return Some(i as PhraseId);
         }
         let q = query.to_lowercase();
-        self.labels
+        if let Some(i) = self.labels.iter().position(|l| l.to_lowercase() == q) {
+            return Some(i as PhraseId);
+        }
+        // then a label in another language, exactly or after folding
+        let langs = self.langs.as_deref()?;
+        let exact = langs
+            .other
             .iter()
-            .position(|l| l.to_lowercase() == q)
-            .map(|i| i as PhraseId)
+            .find(|(_, m)| m.values().any(|l| l == query))
+            .map(|(&p, _)| p);
+        exact.or_else(|| {
+            let q = super::lang::fold(query, None);
+            langs
+                .other
+                .iter()
+                .find(|(_, m)| m.values().any(|l| super::lang::fold(l, None) == q))
+                .map(|(&p, _)| p)
+        })
+    }
+
+    /// The label of a phrase in `language` as given in `phrases.json` (the main label for
+    /// the default language), or `None` when it has none in that language.
+    pub fn label_in(&self, p: PhraseId, language: &str) -> Option<&str> {
+        if language == self.default_language() {
+            return Some(self.label(p));
+        }
+        self.langs
+            .as_deref()?
+            .other
+            .get(&p)?
+            .get(language)
+            .map(String::as_str)
     }
 
     /// All ids in row order.
@@ -171,6 +207,25 @@ impl PhraseTable {
     /// All labels in row order.
     pub fn labels(&self) -> &[String] {
         &self.labels
+    }
+
+    /// Attach the project's languages: the default language and the labels in the others.
+    pub fn set_languages(&mut self, langs: PhraseLanguages) {
+        self.langs = Some(Box::new(langs));
+    }
+
+    /// The project's languages, when it names any.
+    pub fn languages(&self) -> Option<&PhraseLanguages> {
+        self.langs.as_deref()
+    }
+
+    /// The default language: the one of [`PhraseTable::label`] (`en` when the project names
+    /// none).
+    pub fn default_language(&self) -> &str {
+        self.langs
+            .as_deref()
+            .map(|l| l.default.as_str())
+            .unwrap_or(FALLBACK_LANGUAGE)
     }
 
     /// Records for writing `phrases.json`.

@@ -159,6 +159,14 @@ pub enum EditRefusal {
         /// What is wrong with the label.
         why: crate::model::label::LabelError,
     },
+    /// A rename names a language that is not a well-formed BCP 47 tag.
+    #[error("rename of \"{node}\": {why}")]
+    BadLanguage {
+        /// The node.
+        node: String,
+        /// What is wrong with the tag.
+        why: crate::model::lang::BadLanguageTag,
+    },
     /// A rename to the label the node already has.
     #[error("\"{node}\" is already labelled \"{label}\"")]
     SameLabel {

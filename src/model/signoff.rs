@@ -220,7 +220,16 @@ pub fn describe_edit(e: &Edit) -> String {
         Edit::Pin { node, parent } => format!("pin {node} under {parent}"),
         Edit::Unpin { node } => format!("unpin {node}"),
         Edit::Merge { sources, into } => format!("merge {} into {into}", sources.join(", ")),
-        Edit::Rename { node, label } => format!("rename {node} to \"{label}\""),
+        Edit::Rename {
+            node,
+            label,
+            language: None,
+        } => format!("rename {node} to \"{label}\""),
+        Edit::Rename {
+            node,
+            label,
+            language: Some(t),
+        } => format!("rename {node} to \"{label}\"@{t}"),
         Edit::Exclude { node } => format!("exclude {node}"),
         Edit::Include { node } => format!("include {node}"),
         Edit::Review { node, status, .. } => format!("review {node}: {}", status.as_str()),
@@ -283,6 +292,7 @@ mod tests {
             Edit::Rename {
                 node: "fern".into(),
                 label: "ferns".into(),
+                language: None,
             },
             Edit::Exclude {
                 node: "fern".into(),

@@ -105,7 +105,11 @@ impl PickerDialog {
                     .preorder()
                     .into_iter()
                     .filter(|p| !self.nodes.contains(p))
-                    .filter(|&p| q.is_empty() || eff.label(p).to_lowercase().contains(&q))
+                    .filter(|&p| {
+                        // labels in every language, after NFC and case folding
+                        q.is_empty()
+                            || eff.any_label_contains(p, &crate::model::lang::fold(&q, None))
+                    })
                     .take(MAX_LISTED)
                     .collect();
                 self.candidates = Some((key, list));
@@ -134,9 +138,17 @@ impl PickerDialog {
                         let parent = eff
                             .tree
                             .parent(p)
-                            .map(|q| format!("  (under {})", eff.label(q)))
+                            .map(|q| {
+                                format!(
+                                    "  (under {})",
+                                    super::super::fonts::display_label(view.label(q))
+                                )
+                            })
                             .unwrap_or_default();
-                        let text = format!("{}{parent}", eff.label(p));
+                        let text = format!(
+                            "{}{parent}",
+                            super::super::fonts::display_label(view.label(p))
+                        );
                         let r = ui.add_enabled(
                             why.is_none(),
                             egui::Button::selectable(self.target == Some(p), text),

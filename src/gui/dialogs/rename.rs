@@ -12,6 +12,8 @@ use super::{DialogOut, ok_cancel};
 pub struct RenameDialog {
     node: PhraseId,
     label: String,
+    /// Language of the new label (`None`: the project's default).
+    language: Option<String>,
     focused: bool,
 }
 
@@ -19,9 +21,15 @@ impl RenameDialog {
     /// Start with the node's current label.
     pub fn new(view: &ViewCtx, node: PhraseId) -> Self {
         let label = view.label(node).to_string();
+        // the label shown is the one renamed: a display language the node has a label in
+        let language = view.settings.display_language.clone().filter(|l| {
+            view.eff.and_then(|e| e.label_in_opt(node, l)).is_some()
+                && view.eff.is_some_and(|e| *l != e.languages.default)
+        });
         RenameDialog {
             node,
             label,
+            language,
             focused: false,
         }
     }
@@ -44,9 +52,30 @@ impl RenameDialog {
                 r.request_focus();
                 self.focused = true;
             }
+            if let Some(e) = view.eff {
+                let langs = e.languages.languages();
+                if langs.len() > 1 {
+                    let shown = self
+                        .language
+                        .clone()
+                        .unwrap_or_else(|| e.languages.default.clone());
+                    egui::ComboBox::from_label("Language of the label")
+                        .selected_text(shown.as_str())
+                        .show_ui(ui, |ui| {
+                            for l in &langs {
+                                let pick = (*l != e.languages.default).then(|| l.clone());
+                                if ui.selectable_label(shown == *l, l.as_str()).clicked() {
+                                    self.label = e.label_in(self.node, l).to_string();
+                                    self.language = pick;
+                                }
+                            }
+                        });
+                }
+            }
             let edit = Edit::Rename {
                 node: id.clone(),
                 label: self.label.trim().to_string(),
+                language: self.language.clone(),
             };
             let check = if self.label.trim().is_empty() {
                 Err("the label is empty".to_string())

@@ -9,11 +9,13 @@ use serde::{Deserialize, Serialize};
 use super::LoadError;
 use super::embeddings::load_embeddings;
 use super::manifest::{FORMAT_NAME, FORMAT_VERSION, Limits, MANIFEST_NAME, Manifest};
+use super::phrase_langs::{PhraseFileRecord, split_languages};
 use super::read::{read_json, read_json_limited, resolve_inside};
 use super::tree_file::load_tree_limited;
 use crate::model::fsutil;
 use crate::model::gaussian::{DEFAULT_VARIANCE_FLOOR, Gaussians, OwnedGaussian};
 use crate::model::label::{self, LabelError};
+use crate::model::lang::PhraseLanguages;
 use crate::model::phrase::{PhraseError, PhraseRecord, PhraseTable};
 use crate::model::tree::Tree;
 
@@ -114,10 +116,29 @@ impl Project {
         // phrases
         let ppath = resolve_inside(&dir, &manifest.phrases, "phrases")?;
         let pfile = ppath.display().to_string();
-        let records: Vec<PhraseRecord> = if super::parquet::is_parquet_path(&ppath) {
-            super::parquet::phrases_for(&ppath, &manifest, &limits)?
+        let default_language =
+            super::phrase_langs::default_language(manifest.default_language.as_deref(), &mfile)?;
+        let (records, languages) = if super::parquet::is_parquet_path(&ppath) {
+            let recs: Vec<PhraseRecord> = super::parquet::phrases_for(&ppath, &manifest, &limits)?;
+            let langs = default_language.map(|default| PhraseLanguages {
+                default,
+                other: Default::default(),
+            });
+            (recs, langs)
         } else {
-            read_json_limited(&ppath, &limits)?
+            let rows: Vec<PhraseFileRecord> = read_json_limited(&ppath, &limits)?;
+            if rows.len() > limits.max_phrases {
+                return Err(LoadError::invalid(
+                    &pfile,
+                    "phrases",
+                    format!(
+                        "{} phrases exceed the limit of {} (raise limits.max_phrases in project.json)",
+                        rows.len(),
+                        limits.max_phrases
+                    ),
+                ));
+            }
+            split_languages(rows, default_language, &pfile)?
         };
         if records.len() > limits.max_phrases {
             return Err(LoadError::invalid(
@@ -131,7 +152,7 @@ impl Project {
             ));
         }
         let records = clean_phrase_labels(records, &pfile)?;
-        let phrases = PhraseTable::from_record_vec(records).map_err(|e| match &e {
+        let mut phrases = PhraseTable::from_record_vec(records).map_err(|e| match &e {
             PhraseError::DuplicateId { id, second, .. } => {
                 LoadError::invalid(&pfile, format!("row {second} id \"{id}\""), e.to_string())
             }
@@ -141,6 +162,9 @@ impl Project {
         })?;
         if phrases.is_empty() {
             return Err(LoadError::invalid(&pfile, "phrases", "the list is empty"));
+        }
+        if let Some(l) = languages {
+            phrases.set_languages(l);
         }
 
         let gaussians = load_embeddings(&dir, &manifest, &phrases, floor, &limits)?;

@@ -139,6 +139,10 @@ pub struct Manifest {
     /// ([`crate::model::queue`]).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub weights: Option<String>,
+    /// Language of the phrases' main labels (a BCP 47 tag; `en` when absent). Labels in
+    /// other languages come from the `labels` map of each row of `phrases.json`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub default_language: Option<String>,
 }
 
 /// The manifest's `signoff` section: files of the signer policy (see

@@ -16,6 +16,7 @@ mod npy;
 mod occurrences;
 mod parquet;
 mod quiet_panic;
+pub mod phrase_langs;
 mod read;
 mod skos_tree;
 mod taxonomy_import;

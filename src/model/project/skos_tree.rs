@@ -23,7 +23,12 @@ use crate::model::phrase::PhraseTable;
 use crate::model::tree::TreeFile;
 
 /// Notations, preferred labels and alternative labels of one subject, in document order.
-type ConceptLabels = (Vec<String>, Vec<String>, Vec<String>);
+type ConceptLabels = (
+    Vec<String>,
+    Vec<String>,
+    Vec<String>,
+    Vec<(bool, String, String)>,
+);
 
 /// Whether `path` names a SKOS file this build reads (by extension: `.ttl` for Turtle,
 /// `.rdf` or `.owl` for RDF/XML).
@@ -75,14 +80,14 @@ struct Concept {
     notations: Vec<String>,
     pref: Vec<String>,
     alt: Vec<String>,
+    /// Language-tagged labels: (is a prefLabel, language in lower case, value).
+    tagged: Vec<(bool, String, String)>,
 }
 
-/// Lower-case with runs of white space made one space, ends trimmed.
+/// Runs of white space made one space, ends trimmed, then NFC and Unicode case folding
+/// ([`crate::model::lang::fold`]), so a label matches in any case and either normal form.
 fn norm(s: &str) -> String {
-    s.split_whitespace()
-        .collect::<Vec<_>>()
-        .join(" ")
-        .to_lowercase()
+    crate::model::lang::fold(&s.split_whitespace().collect::<Vec<_>>().join(" "), None)
 }
 
 fn subject_key(s: &NamedOrBlankNode) -> String {
@@ -172,6 +177,9 @@ pub fn parse_skos_tree(
         ) {
             let e = props.entry(s).or_default();
             let v = l.value().to_string();
+            if let Some(lang) = l.language().filter(|_| p != skos::NOTATION) {
+                e.3.push((p == skos::PREF_LABEL, lang.to_ascii_lowercase(), v.clone()));
+            }
             if p == skos::NOTATION {
                 e.0.push(v)
             } else if p == skos::PREF_LABEL {
@@ -182,10 +190,11 @@ pub fn parse_skos_tree(
         }
     }
     for c in &mut concepts {
-        if let Some((n, pl, al)) = props.remove(&c.key) {
+        if let Some((n, pl, al, tg)) = props.remove(&c.key) {
             c.notations = n;
             c.pref = pl;
             c.alt = al;
+            c.tagged = tg;
         }
     }
     let nc = concepts.len();
@@ -268,6 +277,32 @@ pub fn parse_skos_tree(
     for (i, l) in phrases.labels().iter().enumerate() {
         by_label.entry(norm(l)).or_insert(i as PhraseId);
     }
+    // then the labels in the project's other languages (a default-language label wins)
+    // and, for language-tagged literals, the labels by language: "Gift"@de finds the phrase
+    // whose German label is "Gift" before any phrase whose English label is "gift"
+    let mut by_lang: HashMap<(String, String), PhraseId> = HashMap::new();
+    if let Some(langs) = phrases.languages() {
+        let default = langs.default.to_ascii_lowercase();
+        for (i, l) in phrases.labels().iter().enumerate() {
+            by_lang
+                .entry((default.clone(), norm(l)))
+                .or_insert(i as PhraseId);
+        }
+        for (&p, m) in &langs.other {
+            for (lang, l) in m {
+                by_label.entry(norm(l)).or_insert(p);
+                by_lang
+                    .entry((lang.to_ascii_lowercase(), norm(l)))
+                    .or_insert(p);
+            }
+        }
+    }
+    let tagged = |c: &Concept, pref: bool| {
+        c.tagged
+            .iter()
+            .filter(|(is_pref, _, _)| *is_pref == pref)
+            .find_map(|(_, lang, v)| by_lang.get(&(lang.clone(), norm(v))).copied())
+    };
     let mut phrase_of: Vec<Option<PhraseId>> = vec![None; nc];
     let mut taken: Vec<Option<usize>> = vec![None; phrases.len()];
     for (ci, c) in concepts.iter().enumerate() {
@@ -275,7 +310,9 @@ pub fn parse_skos_tree(
             .notations
             .iter()
             .find_map(|n| phrases.get(n.trim()))
+            .or_else(|| tagged(c, true))
             .or_else(|| c.pref.iter().find_map(|l| by_label.get(&norm(l)).copied()))
+            .or_else(|| tagged(c, false))
             .or_else(|| c.alt.iter().find_map(|l| by_label.get(&norm(l)).copied()));
         match found {
             None => report.unmatched_concepts.push(label_of(c)),

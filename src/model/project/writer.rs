@@ -83,6 +83,7 @@ impl ProjectWriter<'_> {
             limits: None,
             signoff: None,
             weights: None,
+            default_language: None,
         };
         fsutil::atomic_write(
             &dir.join(MANIFEST_NAME),
