@@ -167,6 +167,7 @@ fn same_canonical_agrees_with_the_sign_off_hash() {
         Edit::Rename {
             node: id(leaf),
             label: "renamed".into(),
+            language: None,
         },
         Edit::Review {
             node: id(leaf),
