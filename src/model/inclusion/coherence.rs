@@ -52,6 +52,8 @@ pub(super) struct Coherence<'a> {
     s0: Vec<f64>,
     s1: Vec<f64>,
     s2: Vec<f64>,
+    /// Current weighted disagreement of every node.
+    dis: Vec<f64>,
     weight: f64,
 }
 
@@ -84,6 +86,7 @@ impl<'a> Coherence<'a> {
             s0: vec![0.0; m],
             s1: vec![0.0; m * d],
             s2: if points { vec![0.0; m * d] } else { Vec::new() },
+            dis: Vec::new(),
             weight,
         };
         if points {
@@ -113,10 +116,15 @@ impl<'a> Coherence<'a> {
                 }
             }
         }
+        c.dis = c.all_disagreements();
         c
     }
 
     pub(super) fn total(&self) -> f64 {
+        self.dis.iter().sum()
+    }
+
+    fn all_disagreements(&self) -> Vec<f64> {
         let d = self.d;
         (0..self.members.len())
             .map(|x| {
@@ -127,7 +135,7 @@ impl<'a> Coherence<'a> {
                 };
                 self.disagreement(x, self.s0[x], &self.s1[x * d..(x + 1) * d], s2)
             })
-            .sum()
+            .collect()
     }
 
     /// σ²_x + (μ_x − μ_y)² per dimension, into `out`.
@@ -175,8 +183,10 @@ impl<'a> Coherence<'a> {
     }
 
     /// The change of the summed disagreement if `v` moved from its parent to `q`, and the
-    /// per-node changes that the move would apply.
-    fn delta(&self, shape: &Shape, v: usize, q: usize) -> (f64, Vec<Change>) {
+    /// per-node changes that the move would apply; None when the move cannot pay for an
+    /// edge-cost rise of `rise` (the disagreement of the nodes it touches, its largest
+    /// possible fall, is not above `rise`).
+    fn delta(&self, shape: &Shape, v: usize, q: usize, rise: f64) -> Option<(f64, Vec<Change>)> {
         let a = shape.parent[v].expect("not the root") as usize;
         let mut pa = Self::path(shape, a, v);
         let mut pb = Self::path(shape, q, v);
@@ -191,6 +201,13 @@ impl<'a> Coherence<'a> {
         }
         let s = self.size[v];
         let d = self.d;
+        if rise > 0.0 {
+            let mut room: f64 = pa.iter().map(|x| self.dis[x.0]).sum();
+            room += pb.iter().map(|x| self.dis[x.0]).sum::<f64>();
+            if room <= rise {
+                return None;
+            }
+        }
         let mut changes: Vec<Change> = Vec::with_capacity(pa.len() + pb.len());
         if self.points {
             // the common ancestor keeps v's subtree: only the nodes below it change
@@ -254,10 +271,9 @@ impl<'a> Coherence<'a> {
                     b2[j] = o2[j] + ds2[j];
                 }
             }
-            total += self.disagreement(*x, self.s0[*x] + ds0, &b1, &b2)
-                - self.disagreement(*x, self.s0[*x], o1, o2);
+            total += self.disagreement(*x, self.s0[*x] + ds0, &b1, &b2) - self.dis[*x];
         }
-        (total, changes)
+        Some((total, changes))
     }
 
     fn apply(&mut self, v: usize, changes: Vec<Change>) {
@@ -278,6 +294,12 @@ impl<'a> Coherence<'a> {
                     *a += b;
                 }
             }
+            let s2 = if self.points {
+                &self.s2[x * d..(x + 1) * d]
+            } else {
+                &[][..]
+            };
+            self.dis[x] = self.disagreement(x, self.s0[x], &self.s1[x * d..(x + 1) * d], s2);
         }
     }
 }
@@ -324,7 +346,9 @@ impl Shape {
                     if max_depth.is_some_and(|dm| self.depth_of(q) + 1 + h > dm) {
                         continue;
                     }
-                    let (dc, ch) = coh.delta(self, v, q);
+                    let Some((dc, ch)) = coh.delta(self, v, q, w - cur) else {
+                        continue;
+                    };
                     let gain = (w - cur) + dc;
                     // strictly better by more than rounding; ties keep the earlier option
                     if gain < -1e-9 * cur.abs().max(1.0) && best.as_ref().is_none_or(|b| gain < b.0)
