@@ -95,8 +95,8 @@ impl<'a> Coherence<'a> {
                 if let Some(p) = shape.parent[v] {
                     let (p, mv) = (p as usize, g.mean(members[v] as usize));
                     c.s0[p] += c.s0[v] + 1.0;
-                    for j in 0..d {
-                        let x = mv[j] as f64;
+                    for (j, &x) in mv.iter().enumerate() {
+                        let x = x as f64;
                         c.s1[p * d + j] += c.s1[v * d + j] + x;
                         c.s2[p * d + j] += c.s2[v * d + j] + x * x;
                     }
