@@ -1,7 +1,10 @@
-//! Inclusion-builder benchmark (issue 14): synthetic nested Gaussians from
+//! Build benchmark of both methods (issue 14): synthetic nested Gaussians from
 //! `model::sample::synthetic_gaussians` (branching 8, 3 cluster levels, the rest leaves),
 //! 64 dimensions, default parameters, at 20 000 phrases and — with `INCL_BENCH_100K=1` —
-//! 100 000 phrases (the index is used above `exact_limit` = 8192 phrases).
+//! 100 000 phrases (the index is used above `exact_limit` = 8192 phrases); the divisive
+//! build (`model::builder::build`, default parameters) on the same data in the group
+//! `divisive`. A filter that matches no benchmark (`cargo bench --bench inclusion -- none`)
+//! prints only the one-build figures.
 //!
 //! Before timing, each size is built once and the bench prints the ancestor-pair F1 and
 //! exact-parent share against the generator's true tree, and the peak resident memory of
@@ -14,6 +17,7 @@ use std::sync::atomic::AtomicBool;
 use std::time::Instant;
 
 use criterion::{Criterion, criterion_group, criterion_main};
+use treewright::model::builder::{BuildParams, build};
 use treewright::model::inclusion::{InclusionParams, build_inclusion};
 use treewright::model::sample::{SyntheticSpec, synthetic_gaussians};
 use treewright::model::tree::TreeFile;
@@ -89,6 +93,38 @@ fn bench_size(c: &mut Criterion, n: usize) {
         b.iter(|| {
             let t = build_inclusion(&g, &phrases, None, &[], &params, &|_| {}, &cancel)
                 .expect("build succeeds");
+            black_box(t.tree_file.parent.len())
+        })
+    });
+    group.finish();
+
+    // the divisive build on the same data
+    let dparams = BuildParams::default();
+    reset_hwm();
+    let start = Instant::now();
+    let d = build(&g, &phrases, None, &dparams, &|_| {}, &cancel).expect("build succeeds");
+    let secs = start.elapsed().as_secs_f64();
+    let after = vm_hwm_kb();
+    let pp = pairs(&d.tree_file);
+    let inter = pp.intersection(&tp).count() as f64;
+    let f1 = 2.0 * inter / (pp.len() + tp.len()) as f64;
+    let exact = truth
+        .parent
+        .iter()
+        .filter(|(k, v)| d.tree_file.parent.get(*k) == Some(*v))
+        .count() as f64
+        / truth.parent.len().max(1) as f64;
+    println!(
+        "divisive {n}x64: one build {secs:.2} s, F1 {f1:.3}, exact parent {exact:.3}, depth {}, \
+         peak RSS {} kB",
+        d.report.depth,
+        after.map_or("?".into(), |x| x.to_string()),
+    );
+    let mut group = c.benchmark_group("divisive");
+    group.sample_size(10);
+    group.bench_function(format!("{n}x64_diagonal_defaults"), |b| {
+        b.iter(|| {
+            let t = build(&g, &phrases, None, &dparams, &|_| {}, &cancel).expect("build succeeds");
             black_box(t.tree_file.parent.len())
         })
     });

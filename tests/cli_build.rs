@@ -95,7 +95,7 @@ fn build_replaces_the_tree_keeps_a_backup_and_is_repeatable() {
     let out = treewright()
         .arg("build")
         .arg(d.path())
-        .args(["--seed", "3"])
+        .args(["--seed", "3", "--method", "divisive"])
         .output()
         .unwrap();
     assert!(
@@ -126,7 +126,7 @@ fn build_replaces_the_tree_keeps_a_backup_and_is_repeatable() {
     let again = treewright()
         .arg("build")
         .arg(d.path())
-        .args(["--seed", "3"])
+        .args(["--seed", "3", "--method", "divisive"])
         .output()
         .unwrap();
     assert!(again.status.success());
@@ -285,4 +285,38 @@ fn the_demo_project_builds_the_same_twice() {
     }
     assert_covers_all(&outputs[0].0, &project.phrases);
     assert_eq!(outputs[0], outputs[1]);
+}
+
+/// Since issue 14 the default method is inclusion; an option of the divisive method alone
+/// still selects the divisive method (so older command lines keep working).
+#[test]
+fn the_default_method_is_inclusion_unless_a_divisive_option_is_given() {
+    let d = tempfile::tempdir().unwrap();
+    let phrases = write_project(d.path(), true);
+    let report = |args: &[&str]| -> serde_json::Value {
+        let out = treewright()
+            .arg("build")
+            .arg(d.path())
+            .args(args)
+            .output()
+            .unwrap();
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        assert_covers_all(&fs::read(d.path().join("tree.json")).unwrap(), &phrases);
+        serde_json::from_slice(&fs::read(d.path().join("build-report.json")).unwrap()).unwrap()
+    };
+    assert_eq!(report(&[])["method"], "inclusion");
+    assert_eq!(report(&["--similarity", "kl"])["method"], "divisive");
+    assert_eq!(report(&["--method", "divisive"])["method"], "divisive");
+    // an explicit method still refuses the other method's options
+    let out = treewright()
+        .arg("build")
+        .arg(d.path())
+        .args(["--method", "inclusion", "--k-max", "4"])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
 }

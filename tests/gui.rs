@@ -277,6 +277,10 @@ fn the_build_dialog_runs_to_completion_and_replaces_the_base_tree() {
     let (_t, dir) = demo_dir();
     let mut h = open(&dir);
     menu(&mut h, "Tree", "Build tree…");
+    // the dialog opens on the inclusion method (the default); this test reads the divisive
+    // build's elbow curve
+    h.get_by_label("divisive").click();
+    h.run();
     h.get_by_label("Start build").click();
     h.run_steps(2);
     step_until(&mut h, 120, |h| h.query_by_label("Use this tree").is_some());
@@ -314,6 +318,9 @@ fn the_build_dialog_offers_the_inclusion_method() {
     // the method's one-line explanation is shown, the divisive-only fields are gone
     h.get_by_label_contains("contains it best");
     assert!(h.query_by_label("Largest k tried per node").is_none());
+    // the inclusion method's own limits: a depth limit switched on (default 6)
+    h.get_by_label("Depth limit").click();
+    h.run();
     h.get_by_label("Start build").click();
     h.run_steps(2);
     step_until(&mut h, 120, |h| h.query_by_label("Use this tree").is_some());
@@ -322,6 +329,9 @@ fn the_build_dialog_offers_the_inclusion_method() {
     let report: serde_json::Value =
         serde_json::from_slice(&std::fs::read(dir.join("build-report.json")).unwrap()).unwrap();
     assert_eq!(report["method"], "inclusion");
+    assert_eq!(report["inclusion"]["params"]["max_depth"], 6);
+    assert!(report["inclusion"]["params"]["max_fanout"].is_null());
+    assert!(report["depth"].as_u64().unwrap() <= 6);
     let nodes = report["inclusion"]["nodes"].as_array().unwrap();
     // every phrase but the root has its parent's cost recorded
     assert_eq!(nodes.len() + 1, h.state().doc.project.phrases.len());
@@ -359,9 +369,12 @@ fn a_running_build_can_be_cancelled() {
     menu(&mut h, "Tree", "Build tree…");
     // exact representatives over the whole table make the first split take a while
     if let Some(treewright::gui::dialogs::Dialog::Build(b)) = &mut h.state_mut().dialog {
+        b.method = treewright::model::builder::BuildMethod::Divisive;
         b.params.exact_limit = 1_000_000;
         b.params.kmeans_restarts = 20;
     }
+    // the divisive fields appear: let the dialog settle before the click
+    h.run();
     h.get_by_label("Start build").click();
     // the click lands in the next frame, the frames after show the running build (the
     // centred dialog settles its new size over two frames)

@@ -250,7 +250,8 @@ proptest! {
 
 /// Without limits and with a margin ≥ 0 every candidate edge points to a strictly broader
 /// phrase, so the arborescence is each phrase's cheapest candidate (the greedy choice) and
-/// nothing is refined: checked against a direct scan of KL(c ‖ p) over all broader p.
+/// nothing is refined (coherence pass off): checked against a direct scan of KL(c ‖ p) over
+/// all broader p.
 #[test]
 fn unlimited_inclusion_equals_the_cheapest_broader_parent() {
     use treewright::model::gaussian::kl;
@@ -265,6 +266,8 @@ fn unlimited_inclusion_equals_the_cheapest_broader_parent() {
             root: InclusionRoot::Broadest,
             generality_margin: 0.0,
             candidates_per_node: 3,
+            // the coherence pass is what departs from the per-phrase cheapest candidate
+            coherence_weight: 0.0,
             ..InclusionParams::default()
         },
     );

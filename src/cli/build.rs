@@ -31,9 +31,10 @@ pub struct BuildArgs {
     pub project: PathBuf,
     /// divisive: k-means on the means, top-down (the published recipe); inclusion: each
     /// phrase under the broader phrase that contains it best, chosen for the whole tree at
-    /// once (minimum-cost arborescence over KL costs).
-    #[arg(long, value_name = "METHOD", default_value = "divisive", value_parser = parse_method)]
-    pub method: BuildMethod,
+    /// once (minimum-cost arborescence over KL costs, then the coherence pass). Default:
+    /// inclusion, or divisive when an option of the divisive method only is given.
+    #[arg(long, value_name = "METHOD", value_parser = parse_method)]
+    pub method: Option<BuildMethod>,
     /// Where to write the tree (default: the project's tree file). `.csv` writes a
     /// `child,parent` edge list, anything else JSON.
     #[arg(long, value_name = "FILE")]
@@ -80,6 +81,24 @@ fn parse_similarity(s: &str) -> Result<Similarity, String> {
 }
 
 impl BuildArgs {
+    /// The method: `--method`, else divisive when an option of the divisive method only
+    /// (`--k-max`, `--min-cluster`, `--similarity`, `--with-variance`) is given, else
+    /// inclusion (the default since issue 14: it agrees far better with real hierarchies;
+    /// README "Two methods").
+    pub fn method(&self) -> BuildMethod {
+        match self.method {
+            Some(m) => m,
+            None if self.k_max.is_some()
+                || self.min_cluster.is_some()
+                || self.similarity.is_some()
+                || self.with_variance.is_some() =>
+            {
+                BuildMethod::Divisive
+            }
+            None => BuildMethod::Inclusion,
+        }
+    }
+
     /// The build parameters: the defaults with every given option applied.
     pub fn params(&self) -> BuildParams {
         // (the divisive parameters; see `inclusion_params` for the other method)
@@ -137,12 +156,13 @@ fn write(path: &Path, bytes: &[u8], backup: bool) -> Result<(), CliError> {
 pub fn run(args: &BuildArgs) -> Result<(), CliError> {
     let params = args.params();
     params.validate().map_err(CliError::bad_input)?;
-    if args.method == BuildMethod::Divisive && args.max_fanout.is_some() {
+    let method = args.method();
+    if method == BuildMethod::Divisive && args.max_fanout.is_some() {
         return Err(CliError::bad_input(
             "--max-fanout applies to the inclusion method only (--method inclusion)",
         ));
     }
-    let inclusion = match args.method {
+    let inclusion = match method {
         BuildMethod::Inclusion => Some(
             args.inclusion_params()?
                 .check()

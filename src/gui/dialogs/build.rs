@@ -35,6 +35,16 @@ impl BuildJob {
     /// Start building on a worker thread with `method`. The inclusion method takes the seed
     /// from `params` and its own defaults otherwise (no depth or fan-out limit).
     pub fn start_with(project: &Project, method: BuildMethod, params: BuildParams) -> Self {
+        Self::start_limited(project, method, params, (None, None))
+    }
+
+    /// As [`BuildJob::start_with`], with the inclusion method's (depth, fan-out) limits.
+    pub fn start_limited(
+        project: &Project,
+        method: BuildMethod,
+        params: BuildParams,
+        limits: (Option<usize>, Option<usize>),
+    ) -> Self {
         let cancel = Arc::new(AtomicBool::new(false));
         let progress = Arc::new(Mutex::new(None));
         let (tx, rx) = channel();
@@ -49,7 +59,15 @@ impl BuildJob {
             };
             let r = match method {
                 BuildMethod::Divisive => build(&g, &phrases, None, &params, &report, &c),
-                BuildMethod::Inclusion => inclusion(&g, &phrases, params.seed, &report, &c),
+                BuildMethod::Inclusion => {
+                    let ip = InclusionParams {
+                        seed: params.seed,
+                        max_depth: limits.0,
+                        max_fanout: limits.1,
+                        ..InclusionParams::default()
+                    };
+                    inclusion(&g, &phrases, ip, &report, &c)
+                }
             };
             // the dialog may have been closed; nobody listening is fine
             let _ = tx.send(r);
@@ -91,7 +109,7 @@ impl BuildJob {
 fn inclusion(
     g: &crate::model::Gaussians,
     phrases: &crate::model::PhraseTable,
-    seed: u64,
+    params: InclusionParams,
     report: &(dyn Fn(BuildProgress) + Sync),
     cancel: &AtomicBool,
 ) -> Result<BuiltTree, BuildError> {
@@ -99,12 +117,7 @@ fn inclusion(
         InclusionError::Cancelled => BuildError::Cancelled,
         other => BuildError::Inclusion(other),
     };
-    let params = InclusionParams {
-        seed,
-        ..InclusionParams::default()
-    }
-    .check()
-    .map_err(failed)?;
+    let params = params.check().map_err(failed)?;
     let progress = |p: crate::model::inclusion::InclusionProgress| {
         report(BuildProgress {
             placed: p.done,
@@ -129,6 +142,10 @@ pub struct BuildDialog {
     pub method: BuildMethod,
     /// The parameters edited in the dialog.
     pub params: BuildParams,
+    /// The inclusion method's depth limit (None: no limit).
+    pub inclusion_max_depth: Option<usize>,
+    /// The inclusion method's fan-out limit (None: no limit).
+    pub inclusion_max_fanout: Option<usize>,
     job: Option<BuildJob>,
     outcome: Option<String>,
     built: Option<BuiltTree>,
@@ -138,8 +155,11 @@ impl BuildDialog {
     /// Start with the builder's defaults.
     pub fn new(_view: &ViewCtx) -> Self {
         BuildDialog {
-            method: BuildMethod::default(),
+            // the default method since issue 14 (README "Two methods")
+            method: BuildMethod::Inclusion,
             params: BuildParams::default(),
+            inclusion_max_depth: None,
+            inclusion_max_fanout: None,
             job: None,
             outcome: None,
             built: None,
@@ -165,14 +185,35 @@ impl BuildDialog {
                     let l = ui.label("Seed");
                     ui.add(egui::DragValue::new(&mut p.seed)).labelled_by(l.id);
                     ui.end_row();
+                    for (label, limit, lo, hi, default) in [
+                        (
+                            "Depth limit",
+                            &mut self.inclusion_max_depth,
+                            1,
+                            crate::model::inclusion::MAX_DEPTH_LIMIT,
+                            6,
+                        ),
+                        (
+                            "Fan-out limit",
+                            &mut self.inclusion_max_fanout,
+                            1,
+                            100_000,
+                            20,
+                        ),
+                    ] {
+                        let mut on = limit.is_some();
+                        if ui.checkbox(&mut on, label).changed() {
+                            *limit = on.then_some(limit.unwrap_or(default));
+                        }
+                        if let Some(v) = limit {
+                            ui.add(egui::DragValue::new(v).range(lo..=hi))
+                                .on_hover_text(format!("{label} ({lo} … {hi})"));
+                        } else {
+                            ui.label("none");
+                        }
+                        ui.end_row();
+                    }
                 });
-            ui.label(
-                egui::RichText::new(
-                    "No depth or fan-out limit here; `treewright build --method inclusion \
-                     --max-depth N --max-fanout N` sets them.",
-                )
-                .small(),
-            );
             return;
         }
         egui::Grid::new("build-params")
@@ -273,10 +314,11 @@ impl BuildDialog {
                     if ui.button("Start build").clicked() {
                         self.outcome = None;
                         self.built = None;
-                        self.job = Some(BuildJob::start_with(
+                        self.job = Some(BuildJob::start_limited(
                             view.project,
                             self.method,
                             self.params.clone(),
+                            (self.inclusion_max_depth, self.inclusion_max_fanout),
                         ));
                     }
                     if let Some(b) = &self.built

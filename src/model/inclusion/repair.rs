@@ -4,10 +4,11 @@
 use super::Scorer;
 
 /// A mutable tree on local indices, for repair and refinement.
+#[derive(Clone)]
 pub(super) struct Shape {
     pub(super) parent: Vec<Option<u32>>,
-    children: Vec<Vec<u32>>,
-    root: usize,
+    pub(super) children: Vec<Vec<u32>>,
+    pub(super) root: usize,
 }
 
 impl Shape {
@@ -36,7 +37,7 @@ impl Shape {
         d
     }
 
-    fn bfs(&self) -> Vec<usize> {
+    pub(super) fn bfs(&self) -> Vec<usize> {
         let mut out = vec![self.root];
         let mut i = 0;
         while i < out.len() {
@@ -47,7 +48,7 @@ impl Shape {
         out
     }
 
-    fn depth_of(&self, mut v: usize) -> usize {
+    pub(super) fn depth_of(&self, mut v: usize) -> usize {
         let mut k = 0;
         while let Some(p) = self.parent[v] {
             v = p as usize;
@@ -57,7 +58,7 @@ impl Shape {
     }
 
     /// Height of v's subtree (0 for a leaf).
-    fn height(&self, v: usize) -> usize {
+    pub(super) fn height(&self, v: usize) -> usize {
         let mut h = 0;
         let mut stack = vec![(v, 0usize)];
         while let Some((x, k)) = stack.pop() {
@@ -70,7 +71,7 @@ impl Shape {
     }
 
     /// Whether `q` lies in the subtree of `v` (v included).
-    fn in_subtree(&self, mut q: usize, v: usize) -> bool {
+    pub(super) fn in_subtree(&self, mut q: usize, v: usize) -> bool {
         loop {
             if q == v {
                 return true;
@@ -82,7 +83,7 @@ impl Shape {
         }
     }
 
-    fn move_to(&mut self, v: usize, q: usize) {
+    pub(super) fn move_to(&mut self, v: usize, q: usize) {
         if let Some(p) = self.parent[v] {
             let ch = &mut self.children[p as usize];
             if let Some(pos) = ch.iter().position(|&x| x as usize == v) {
