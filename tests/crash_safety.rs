@@ -183,6 +183,7 @@ fn project_with_big_overrides(notes: usize) -> tempfile::TempDir {
             Edit::Rename {
                 node: "succulent".into(),
                 label: format!("succulent {i}"),
+                language: None,
             },
             "seed",
             Some(note.clone()),

@@ -114,6 +114,7 @@ fn csv_export_of_awkward_labels_reads_back_with_the_csv_crate() {
             treewright::model::edit::Edit::Rename {
                 node: id.into(),
                 label: label.into(),
+                language: None,
             },
             "t",
             None,

@@ -82,6 +82,7 @@ fn edits_during_the_background_audit_never_show_a_stale_report() {
                 Edit::Rename {
                     node: id(leaves[200]),
                     label: "renamed while auditing".into(),
+                    language: None,
                 },
             ],
             root,
