@@ -3,12 +3,14 @@
 //! decisions in its override layer, taken from its truth file, shows "Confidence calibrated
 //! on … decisions" in the findings panel; the same set without decisions does not.
 
+mod common;
+
 use std::collections::{HashMap, HashSet};
 use std::path::{Path, PathBuf};
 
 use egui_kittest::Harness;
 use egui_kittest::kittest::Queryable;
-use treewright::gui::{App, Settings};
+use treewright::gui::App;
 use treewright::model::Workspace;
 use treewright::model::audit::evaluate::{is_placement_rule, read_known_errors};
 use treewright::model::edit::{Edit, ReviewStatus};
@@ -27,20 +29,8 @@ fn copy_set(name: &str) -> (tempfile::TempDir, PathBuf) {
     (tmp, dir)
 }
 
-fn open(dir: &Path) -> Harness<'static, App> {
-    let mut doc = treewright::gui::Doc::open(dir).unwrap();
-    doc.wait_for_audit();
-    let settings = Settings {
-        author: "tester".into(),
-        ..Settings::default()
-    };
-    let app = App::new(doc, settings);
-    let mut h = Harness::builder()
-        .with_size([1280.0, 800.0])
-        .with_max_steps(12)
-        .build_ui_state(|ui, app: &mut App| app.ui(ui), app);
-    h.run();
-    h
+fn open(dir: &std::path::Path) -> Harness<'static, App> {
+    common::workbench::open_workbench(dir, [1280.0, 800.0])
 }
 
 #[test]

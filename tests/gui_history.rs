@@ -3,37 +3,19 @@
 //! without a reason, a reverted sign-off shows in the status bar, and the sign-off dialog's
 //! key-file field signs the sign-off so that `verify` with an allowed-signers file passes.
 
-use std::path::{Path, PathBuf};
+mod common;
+
+use std::path::Path;
 
 use egui::accesskit::Role;
 use egui_kittest::Harness;
 use egui_kittest::kittest::{NodeT, Queryable};
-use treewright::gui::{Action, App, Settings};
+use treewright::gui::{Action, App};
 use treewright::model::edit::Edit;
 use treewright::model::overrides::OverrideLayer;
-use treewright::model::sample::write_demo;
 
-fn demo_dir() -> (tempfile::TempDir, PathBuf) {
-    let t = tempfile::tempdir().unwrap();
-    let dir = t.path().join("fernhollow");
-    write_demo(&dir).unwrap();
-    (t, dir)
-}
-
-fn open(dir: &Path) -> Harness<'static, App> {
-    let mut doc = treewright::gui::Doc::open(dir).unwrap();
-    doc.wait_for_audit();
-    let settings = Settings {
-        author: "tester".into(),
-        ..Settings::default()
-    };
-    let app = App::new(doc, settings);
-    let mut h = Harness::builder()
-        .with_size([1280.0, 800.0])
-        .with_max_steps(12)
-        .build_ui_state(|ui, app: &mut App| app.ui(ui), app);
-    h.run();
-    h
+fn open(dir: &std::path::Path) -> Harness<'static, App> {
+    common::workbench::open_workbench(dir, [1280.0, 800.0])
 }
 
 fn saved(dir: &Path) -> Vec<treewright::model::edit::EditRecord> {
@@ -44,7 +26,7 @@ fn saved(dir: &Path) -> Vec<treewright::model::edit::EditRecord> {
 
 #[test]
 fn undo_after_save_appends_a_revert_and_the_file_only_grows() {
-    let (_t, dir) = demo_dir();
+    let (_t, dir) = common::workbench::demo_dir();
     let mut h = open(&dir);
     let base_tree = h.state().doc.eff.as_ref().unwrap().tree.clone();
     h.state_mut().apply(Action::Edit(Edit::Exclude {
@@ -88,7 +70,7 @@ fn undo_after_save_appends_a_revert_and_the_file_only_grows() {
 
 #[test]
 fn a_saved_sign_off_is_not_undone_and_a_reverted_one_shows() {
-    let (_t, dir) = demo_dir();
+    let (_t, dir) = common::workbench::demo_dir();
     let mut h = open(&dir);
     let e = h.state().doc.signoff_edit("rowan").unwrap();
     h.state_mut().apply(Action::Edit(e));
@@ -118,7 +100,7 @@ fn a_saved_sign_off_is_not_undone_and_a_reverted_one_shows() {
 
 #[test]
 fn the_sign_off_dialog_signs_with_a_key_file() {
-    let (t, dir) = demo_dir();
+    let (t, dir) = common::workbench::demo_dir();
     let keys = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/signing");
     let key = t.path().join("rowan_ed25519");
     std::fs::copy(keys.join("rowan_ed25519"), &key).unwrap();

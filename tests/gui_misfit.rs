@@ -1,6 +1,8 @@
 //! The workbench's banner for a tree that does not fit its embeddings (issue 17, part 6),
 //! found by its label with egui_kittest; the demo (a tree that fits) has none.
 
+mod common;
+
 use std::path::Path;
 
 use egui_kittest::Harness;
@@ -8,7 +10,7 @@ use egui_kittest::kittest::Queryable;
 use rand::SeedableRng;
 use rand_distr::{Distribution, StandardNormal};
 use rand_xoshiro::Xoshiro256PlusPlus;
-use treewright::gui::{App, Settings};
+use treewright::gui::App;
 use treewright::model::phrase::{PhraseRecord, PhraseTable};
 use treewright::model::project::ProjectWriter;
 use treewright::model::sample::write_demo;
@@ -52,20 +54,8 @@ fn random_project(dir: &Path, n: usize, d: usize) {
     .unwrap();
 }
 
-fn open(dir: &Path) -> Harness<'static, App> {
-    let mut doc = treewright::gui::Doc::open(dir).unwrap();
-    doc.wait_for_audit();
-    let settings = Settings {
-        author: "tester".into(),
-        ..Settings::default()
-    };
-    let app = App::new(doc, settings);
-    let mut h = Harness::builder()
-        .with_size([1280.0, 800.0])
-        .with_max_steps(12)
-        .build_ui_state(|ui, app: &mut App| app.ui(ui), app);
-    h.run();
-    h
+fn open(dir: &std::path::Path) -> Harness<'static, App> {
+    common::workbench::open_workbench(dir, [1280.0, 800.0])
 }
 
 #[test]

@@ -2,37 +2,17 @@
 //! opens on the top of the queue, the keyboard flow (approve, skip), applying a suggestion
 //! with its impact preview on hover, and the two-parent view of a placement finding.
 
-use std::path::{Path, PathBuf};
+mod common;
 
 use egui::Key;
 use egui_kittest::Harness;
 use egui_kittest::kittest::Queryable;
-use treewright::gui::{App, Settings};
+use treewright::gui::App;
 use treewright::model::edit::Edit;
 use treewright::model::queue::ItemState;
-use treewright::model::sample::write_demo;
 
-fn demo_dir() -> (tempfile::TempDir, PathBuf) {
-    let t = tempfile::tempdir().unwrap();
-    let dir = t.path().join("fernhollow");
-    write_demo(&dir).unwrap();
-    (t, dir)
-}
-
-fn open(dir: &Path) -> Harness<'static, App> {
-    let mut doc = treewright::gui::Doc::open(dir).unwrap();
-    doc.wait_for_audit();
-    let settings = Settings {
-        author: "tester".into(),
-        ..Settings::default()
-    };
-    let app = App::new(doc, settings);
-    let mut h = Harness::builder()
-        .with_size([1280.0, 900.0])
-        .with_max_steps(12)
-        .build_ui_state(|ui, app: &mut App| app.ui(ui), app);
-    h.run();
-    h
+fn open(dir: &std::path::Path) -> Harness<'static, App> {
+    common::workbench::open_workbench(dir, [1280.0, 900.0])
 }
 
 fn progress(h: &Harness<'_, App>) -> String {
@@ -62,7 +42,7 @@ fn select_item_with_edit(h: &mut Harness<'_, App>) -> (usize, Edit) {
 
 #[test]
 fn the_workbench_opens_on_the_top_of_the_queue() {
-    let (_t, dir) = demo_dir();
+    let (_t, dir) = common::workbench::demo_dir();
     let h = open(&dir);
     let app = h.state();
     let q = app
@@ -89,7 +69,7 @@ fn the_workbench_opens_on_the_top_of_the_queue() {
 
 #[test]
 fn approve_three_skip_one_apply_one_and_the_progress_follows() {
-    let (_t, dir) = demo_dir();
+    let (_t, dir) = common::workbench::demo_dir();
     let mut h = open(&dir);
     let start = progress(&h);
     // apply one suggestion (the button; its preview is checked in the next test)
@@ -137,7 +117,7 @@ fn approve_three_skip_one_apply_one_and_the_progress_follows() {
 
 #[test]
 fn the_impact_preview_on_hover_equals_applying_and_re_auditing() {
-    let (_t, dir) = demo_dir();
+    let (_t, dir) = common::workbench::demo_dir();
     let mut h = open(&dir);
     let (_, edit) = select_item_with_edit(&mut h);
     let impact = h.state().doc.preview(&edit).unwrap();
@@ -166,7 +146,7 @@ fn the_impact_preview_on_hover_equals_applying_and_re_auditing() {
 
 #[test]
 fn a_placement_finding_shows_both_parents() {
-    let (_t, dir) = demo_dir();
+    let (_t, dir) = common::workbench::demo_dir();
     let mut h = open(&dir);
     // a better-parent item of the queue
     let (k, label) = {
@@ -201,7 +181,7 @@ fn a_placement_finding_shows_both_parents() {
 
 #[test]
 fn the_picker_shows_the_impact_before_it_confirms() {
-    let (_t, dir) = demo_dir();
+    let (_t, dir) = common::workbench::demo_dir();
     let mut h = open(&dir);
     // "drought resistant" sits under "plants"; merge it into "drought tolerant" by the picker
     let dr = h
@@ -248,7 +228,7 @@ fn the_picker_shows_the_impact_before_it_confirms() {
 
 #[test]
 fn the_suggestion_tab_follows_the_selection_unless_pinned() {
-    let (_t, dir) = demo_dir();
+    let (_t, dir) = common::workbench::demo_dir();
     let mut h = open(&dir);
     h.get_by_label("Shopper suggestions").click();
     h.run();

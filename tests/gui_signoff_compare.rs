@@ -1,26 +1,16 @@
 //! The workbench's sign-off state and its Compare trees window use the comparison `verify`
 //! makes (issue 22), driven by visible labels on a fresh copy of the Fernhollow demo.
 
+mod common;
+
 use egui_kittest::Harness;
 use egui_kittest::kittest::Queryable;
-use treewright::gui::{Action, App, Settings};
+use treewright::gui::{Action, App};
 use treewright::model::edit::Edit;
 use treewright::model::sample::write_demo;
 
 fn open(dir: &std::path::Path) -> Harness<'static, App> {
-    let mut doc = treewright::gui::Doc::open(dir).unwrap();
-    doc.wait_for_audit();
-    let settings = Settings {
-        author: "tester".into(),
-        ..Settings::default()
-    };
-    let app = App::new(doc, settings);
-    let mut h = Harness::builder()
-        .with_size([1280.0, 800.0])
-        .with_max_steps(12)
-        .build_ui_state(|ui, app: &mut App| app.ui(ui), app);
-    h.run();
-    h
+    common::workbench::open_workbench(dir, [1280.0, 800.0])
 }
 
 #[test]

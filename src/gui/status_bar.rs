@@ -66,11 +66,6 @@ fn status(ui: &mut egui::Ui, view: &ViewCtx, actions: &mut Vec<Action>) {
             ));
             ui.separator();
         }
-        if let Some(q) = view.queue {
-            ui.label(format!("queue: {}", q.progress().text()))
-                .on_hover_text("The review queue's progress towards sign-off");
-            ui.separator();
-        }
         match view.queries.sign_state() {
             SignState::Unsigned => {
                 ui.label("not signed off");
@@ -108,6 +103,13 @@ fn status(ui: &mut egui::Ui, view: &ViewCtx, actions: &mut Vec<Action>) {
         if !reverted.is_empty() {
             ui.label(badges::pill("SIGN-OFF REVERTED", badges::ORANGE))
                 .on_hover_text(badges::plain(&reverted.join("\n")));
+        }
+        // the queue's progress after the sign-off state, so the sign-off link keeps its place
+        // on the first row of a 1 280-point window
+        if let Some(q) = view.queue {
+            ui.separator();
+            ui.label(format!("queue: {}", q.progress().text()))
+                .on_hover_text("The review queue's progress towards sign-off");
         }
         if !view.problems.is_empty() {
             ui.separator();

@@ -64,3 +64,4 @@ pub fn project() -> tempfile::TempDir {
     write_valid(d.path());
     d
 }
+pub mod workbench;
