@@ -2,41 +2,23 @@
 //! 64 dimensions (diagonal covariance, `sample::synthetic_gaussians`, 10 children per
 //! cluster, 4 cluster levels, 5 % of the leaves moved to other clusters). Run with `cargo bench --bench audit -- --sample-size 10`.
 
+mod common;
+
 use std::hint::black_box;
 
 use criterion::{Criterion, criterion_group, criterion_main};
 use treewright::model::Tree;
 use treewright::model::audit::{AuditConfig, Auditor};
 use treewright::model::effective::EffectiveTree;
-use treewright::model::sample::{SyntheticSpec, synthetic_gaussians};
 
 fn bench(c: &mut Criterion) {
-    let spec = SyntheticSpec {
-        phrases: 100_000,
-        dim: 64,
-        branching: 10,
-        depth: 4,
-        full_covariance: false,
-        seed: 2026,
-    };
-    let (phrases, g, mut tf) = synthetic_gaussians(&spec);
-    // misplace 5 % of the leaves under clusters picked by a fixed stride, so the audit has
-    // findings to rank (moving leaves keeps the tree valid)
-    let clusters: Vec<String> = {
-        let set: std::collections::BTreeSet<&String> = tf.parent.values().collect();
-        set.into_iter().cloned().collect()
-    };
-    let leaves: Vec<String> = tf
-        .parent
-        .keys()
-        .filter(|c| clusters.binary_search(c).is_err())
-        .cloned()
-        .collect();
-    for (i, leaf) in leaves.iter().step_by(20).enumerate() {
-        let to = clusters[(i * 7919) % clusters.len()].clone();
-        tf.parent.insert(leaf.clone(), to);
-    }
-    let tree = Tree::from_id_map(&phrases, &tf.root, &tf.parent).expect("valid tree");
+    let common::Misplaced {
+        phrases,
+        g,
+        tf,
+        tree,
+        ..
+    } = common::misplaced_100k();
     let eff_a = EffectiveTree::from_base(&tree, &phrases);
     // one edit: move the last leaf under another cluster
     let mut parent = tf.parent.clone();

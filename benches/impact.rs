@@ -6,42 +6,26 @@
 //! Target: ≤ 50 ms median (fast enough for the hover of "Apply fix").
 //! Run with `cargo bench --bench impact -- --sample-size 10`.
 
+mod common;
+
 use std::hint::black_box;
 
 use criterion::{Criterion, criterion_group, criterion_main};
-use treewright::model::Tree;
 use treewright::model::audit::{AuditConfig, Auditor};
 use treewright::model::edit::Edit;
 use treewright::model::effective::EffectiveTree;
 use treewright::model::impact::{PreviewInput, preview};
-use treewright::model::sample::{SyntheticSpec, synthetic_gaussians};
 use treewright::model::suggest::SuggestParams;
 
 fn bench(c: &mut Criterion) {
-    let spec = SyntheticSpec {
-        phrases: 100_000,
-        dim: 64,
-        branching: 10,
-        depth: 4,
-        full_covariance: false,
-        seed: 2026,
-    };
-    let (phrases, g, mut tf) = synthetic_gaussians(&spec);
-    let clusters: Vec<String> = {
-        let set: std::collections::BTreeSet<&String> = tf.parent.values().collect();
-        set.into_iter().cloned().collect()
-    };
-    let leaves: Vec<String> = tf
-        .parent
-        .keys()
-        .filter(|c| clusters.binary_search(c).is_err())
-        .cloned()
-        .collect();
-    for (i, leaf) in leaves.iter().step_by(20).enumerate() {
-        let to = clusters[(i * 7919) % clusters.len()].clone();
-        tf.parent.insert(leaf.clone(), to);
-    }
-    let tree = Tree::from_id_map(&phrases, &tf.root, &tf.parent).expect("valid tree");
+    let common::Misplaced {
+        phrases,
+        g,
+        tree,
+        clusters,
+        leaves,
+        ..
+    } = common::misplaced_100k();
     let eff = EffectiveTree::from_base(&tree, &phrases);
     let auditor = Auditor::new(&g, &phrases, &eff, &[], AuditConfig::default());
     let leaf = leaves.last().expect("a leaf").clone();
