@@ -180,19 +180,31 @@ pub fn run(args: &BuildArgs) -> Result<(), CliError> {
     // the edits play no part in installing a base tree; the workspace remembers what the
     // tree file and the manifest looked like before the build
     let mut ws = Workspace::from_project(project, OverrideLayer::new(), AuditMode::Off)?;
-    let built = match &inclusion {
-        Some(p) => run_inclusion(&ws.project.gaussians, &ws.project.phrases, p)?,
-        None => run_build(&ws.project.gaussians, &ws.project.phrases, &params)?,
-    };
-
-    if args.out.is_none() {
+    let built = if args.out.is_none() {
+        let built = build_with(&ws.project, inclusion.as_ref(), &params)?;
         ws.set_base_reporting(&built.tree_file, Some((&built.report, &report_path)))?;
+        built
     } else {
+        // nothing is installed: keep the project alone and free the workspace's effective
+        // tree before the build (less peak memory)
+        let project = {
+            let ws = ws;
+            ws.project
+        };
+        let built = build_with(&project, inclusion.as_ref(), &params)?;
         let tree_bytes = tree_bytes(&built.tree_file, &out)
             .map_err(|e| CliError::bad_input(format!("{}: {e}", out.display())))?;
         write(&out, &tree_bytes, true)?;
-        write(&report_path, &fsutil::to_json_pretty(&built.report), false)?;
-    }
+        // streamed: the same bytes as `fsutil::to_json_pretty`, without a copy in memory
+        fsutil::atomic_write_with(&report_path, false, |w| {
+            serde_json::to_writer_pretty(&mut *w, &built.report)?;
+            w.write_all(b"\n")
+        })
+        .map_err(|e| {
+            CliError::bad_input(format!("{}: cannot write: {e}", report_path.display()))
+        })?;
+        built
+    };
     // a closed pipe (`| head`) is not an error worth a panic: the files are written
     let mut o = std::io::stdout().lock();
     let _ = writeln!(
@@ -206,6 +218,18 @@ pub fn run(args: &BuildArgs) -> Result<(), CliError> {
     let _ = writeln!(o, "tree    {}", out.display());
     let _ = writeln!(o, "report  {}", report_path.display());
     Ok(())
+}
+
+/// Build with the chosen method.
+fn build_with(
+    project: &Project,
+    inclusion: Option<&crate::model::inclusion::CheckedInclusionParams>,
+    params: &BuildParams,
+) -> Result<BuiltTree, CliError> {
+    match inclusion {
+        Some(p) => run_inclusion(&project.gaussians, &project.phrases, p),
+        None => run_build(&project.gaussians, &project.phrases, params),
+    }
 }
 
 fn run_build(

@@ -73,6 +73,8 @@ mod coherence;
 mod index;
 pub use coherence::SpreadModel;
 use index::build_index;
+mod options;
+use options::{Opt, OptionBlock, Options, cheapest_if_acyclic};
 mod repair;
 use repair::Shape;
 
@@ -704,106 +706,137 @@ pub fn build_inclusion(
         }
         top
     };
+    // per local node: its candidates with local parents, sorted by (cost, row), root
+    // included (before duplicates are dropped: the arborescence's edges of that child)
+    let child_options = |li: usize| -> (Vec<Opt>, bool) {
+        let c = members[li] as usize;
+        match fixed_parent[li] {
+            Some(p) => (
+                vec![(scorer.cost(c, members[p as usize] as usize), p)],
+                false,
+            ),
+            None => {
+                let cand = candidates_of(li);
+                let mut v: Vec<Opt> = cand.iter().map(|&(w, p)| (w, local[p as usize])).collect();
+                v.push((scorer.cost(c, root as usize), root_local as u32));
+                v.sort_by(|a, b| {
+                    a.0.partial_cmp(&b.0)
+                        .unwrap_or(std::cmp::Ordering::Equal)
+                        .then(members[a.1 as usize].cmp(&members[b.1 as usize]))
+                });
+                (v, cand.is_empty())
+            }
+        }
+    };
+    // a block of nodes: their lists (duplicates dropped), edges before dropping, fallback
+    // flags, whether a duplicate was dropped
+    struct Scanned {
+        block: OptionBlock,
+        edges: usize,
+        fallback: Vec<bool>,
+        dropped: bool,
+    }
     let chunk = 256;
-    let cand: Vec<Vec<Cand>> = (0..m)
+    let scanned: Vec<Scanned> = (0..m)
         .collect::<Vec<_>>()
         .par_chunks(chunk)
         .map(|ch| {
+            let mut s = Scanned {
+                block: OptionBlock::with_capacity(ch.len(), k + 1),
+                edges: 0,
+                fallback: Vec::with_capacity(ch.len()),
+                dropped: false,
+            };
             if cancel.load(Ordering::Relaxed) {
-                return Vec::new();
+                return s;
             }
-            let out: Vec<Vec<Cand>> = ch
-                .iter()
-                .map(|&li| {
-                    if li == root_local || fixed_parent[li].is_some() {
-                        Vec::new()
-                    } else {
-                        candidates_of(li)
-                    }
-                })
-                .collect();
+            for &li in ch {
+                let (mut opts, fb) = if li == root_local {
+                    (Vec::new(), false)
+                } else {
+                    child_options(li)
+                };
+                s.edges += opts.len();
+                let before = opts.len();
+                opts.dedup_by_key(|x| x.1);
+                s.dropped |= opts.len() != before;
+                s.block.push(&opts);
+                s.fallback.push(fb);
+            }
+            s.block.shrink();
             let d = done.fetch_add(ch.len(), Ordering::Relaxed) + ch.len();
             progress(InclusionProgress {
                 stage: InclusionStage::Candidates,
                 done: d,
                 total: m,
             });
-            out
+            s
         })
-        .collect::<Vec<_>>()
-        .into_iter()
-        .flatten()
         .collect();
     if cancel.load(Ordering::Relaxed) {
         return Err(InclusionError::Cancelled);
     }
 
     // 2.–3. edges and the arborescence, on local indices
-    let mut edges: Vec<Edge> = Vec::with_capacity(m * (k + 1));
-    // per local node: its candidates with local parents, sorted by (cost, row), root included
-    let mut options: Vec<Vec<(f64, u32)>> = vec![Vec::new(); m];
-    let mut fallback = vec![false; m];
-    for li in 0..m {
-        if li == root_local {
-            continue;
-        }
-        let c = members[li] as usize;
-        let mut opts: Vec<(f64, u32)> = match fixed_parent[li] {
-            Some(p) => vec![(scorer.cost(c, members[p as usize] as usize), p)],
-            None => {
-                let mut v: Vec<(f64, u32)> = cand[li]
-                    .iter()
-                    .map(|&(w, p)| (w, local[p as usize]))
-                    .collect();
-                v.push((scorer.cost(c, root as usize), root_local as u32));
-                fallback[li] = cand[li].is_empty();
-                v.sort_by(|a, b| {
-                    a.0.partial_cmp(&b.0)
-                        .unwrap_or(std::cmp::Ordering::Equal)
-                        .then(members[a.1 as usize].cmp(&members[b.1 as usize]))
-                });
-                v
-            }
-        };
-        // edges of one child in parent-row order: equal costs go to the lower row
-        let mut by_row = opts.clone();
-        by_row.sort_by_key(|x| members[x.1 as usize]);
-        for (w, p) in by_row {
-            edges.push(Edge {
-                from: p,
-                to: li as u32,
-                cost: w,
-            });
-        }
-        opts.dedup_by_key(|x| x.1);
-        options[li] = opts;
+    let mut fallback = Vec::with_capacity(m);
+    let mut blocks = Vec::with_capacity(scanned.len());
+    let mut dropped = false;
+    for s in scanned {
+        stats.candidate_edges += s.edges;
+        fallback.extend(s.fallback);
+        dropped |= s.dropped;
+        blocks.push(s.block);
     }
-    stats.candidate_edges = edges.len();
+    let options = Options::from_blocks(chunk, blocks);
     stats.fallback_to_root = fallback.iter().filter(|&&f| f).count();
-    drop(cand);
     progress(InclusionProgress {
         stage: InclusionStage::Arborescence,
         done: 0,
         total: 1,
     });
-    let arb = min_arborescence(m, root_local as u32, &edges)?;
-    stats.arborescence_cost = arb.cost;
-    let mut parent: Vec<Option<u32>> = arb.parent;
-    let mut cost_of: Vec<f64> = (0..m)
-        .map(|v| arb.edge[v].map_or(0.0, |e| edges[e].cost))
-        .collect();
-    drop(edges);
+    let (parent, mut cost_of, arb_cost) = match cheapest_if_acyclic(&options, root_local) {
+        Some(t) => t,
+        None => {
+            // the general algorithm, over every child's edges in parent-row order (equal
+            // costs go to the lower row)
+            let mut edges: Vec<Edge> = Vec::with_capacity(stats.candidate_edges);
+            for li in 0..m {
+                if li == root_local {
+                    continue;
+                }
+                // without dropped duplicates a child's edges are its list
+                let mut by_row = if dropped {
+                    child_options(li).0
+                } else {
+                    options[li].to_vec()
+                };
+                by_row.sort_by_key(|x| members[x.1 as usize]);
+                for (w, p) in by_row {
+                    edges.push(Edge {
+                        from: p,
+                        to: li as u32,
+                        cost: w,
+                    });
+                }
+            }
+            let arb = min_arborescence(m, root_local as u32, &edges)?;
+            let cost_of: Vec<f64> = (0..m)
+                .map(|v| arb.edge[v].map_or(0.0, |e| edges[e].cost))
+                .collect();
+            (arb.parent, cost_of, arb.cost)
+        }
+    };
+    stats.arborescence_cost = arb_cost;
     if cancel.load(Ordering::Relaxed) {
         return Err(InclusionError::Cancelled);
     }
-
     // 4.–5. repair and refinement
     progress(InclusionProgress {
         stage: InclusionStage::Refine,
         done: 0,
         total: 1,
     });
-    let mut shape = Shape::new(parent.clone(), root_local);
+    let mut shape = Shape::new(parent, root_local);
     let is_fixed: Vec<bool> = fixed_parent.iter().map(|f| f.is_some()).collect();
     if let Some(f) = params.max_fanout {
         stats.fanout_moves = shape.repair_fanout(
@@ -850,19 +883,19 @@ pub fn build_inclusion(
             return Err(InclusionError::Cancelled);
         }
     }
-    parent.clone_from(&shape.parent);
     progress(InclusionProgress {
         stage: InclusionStage::Refine,
         done: 1,
         total: 1,
     });
 
-    // output
-    let mut tree_parent = BTreeMap::new();
+    // output: the report's nodes while the candidate lists are at hand, then the tree file
+    // from them once the lists are gone
+    let depth = shape.depths().into_iter().max().unwrap_or(0);
     let mut nodes = Vec::with_capacity(m.saturating_sub(1));
     let mut total_cost = 0.0;
     for li in 0..m {
-        let Some(p) = parent[li] else { continue };
+        let Some(p) = shape.parent[li] else { continue };
         let child_id = phrases.id(members[li]).to_string();
         let parent_id = phrases.id(members[p as usize]).to_string();
         total_cost += cost_of[li];
@@ -874,16 +907,19 @@ pub fn build_inclusion(
                 cost: w,
             });
         nodes.push(InclusionNode {
-            node: child_id.clone(),
-            parent: parent_id.clone(),
+            node: child_id,
+            parent: parent_id,
             cost: cost_of[li],
             runner_up,
             fallback: fallback[li] && p as usize == root_local,
             fixed: is_fixed[li],
         });
-        tree_parent.insert(child_id, parent_id);
     }
-    let depth = shape.depths().into_iter().max().unwrap_or(0);
+    drop((options, shape, cost_of));
+    let tree_parent: BTreeMap<String, String> = nodes
+        .iter()
+        .map(|n| (n.node.clone(), n.parent.clone()))
+        .collect();
     Ok(InclusionTree {
         tree_file: TreeFile {
             root: phrases.id(root).to_string(),

@@ -2,6 +2,7 @@
 //! parent module's documentation, steps 4 and 5).
 
 use super::Scorer;
+use super::options::Options;
 
 /// A mutable tree on local indices, for repair and refinement.
 #[derive(Clone)]
@@ -135,7 +136,7 @@ impl Shape {
         &mut self,
         f: usize,
         max_depth: Option<usize>,
-        options: &[Vec<(f64, u32)>],
+        options: &Options,
         fixed: &[bool],
         members: &[u32],
         scorer: &Scorer,
@@ -199,7 +200,7 @@ impl Shape {
         &mut self,
         dmax: usize,
         max_fanout: Option<usize>,
-        options: &[Vec<(f64, u32)>],
+        options: &Options,
         fixed: &[bool],
         cost_of: &mut [f64],
     ) -> usize {
@@ -256,7 +257,7 @@ impl Shape {
         rounds: usize,
         max_depth: Option<usize>,
         max_fanout: Option<usize>,
-        options: &[Vec<(f64, u32)>],
+        options: &Options,
         fixed: &[bool],
         cost_of: &mut [f64],
     ) -> usize {
