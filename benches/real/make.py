@@ -48,6 +48,10 @@ real tree, same schema), known-errors.json (list of {"node", "true_parent", "kin
 
 Usage (see README.md beside this file):
     HF_HUB_OFFLINE=1 TRANSFORMERS_OFFLINE=1 python3.11 benches/real/make.py [--seed 13]
+
+``--held-out`` makes, the same way, the two HELD-OUT sets instead (WordNet food.n.01 and
+ICD-10-CM chapter IV, E00-E89) under ``held-out/``: they are never used to choose any
+setting (README.md, section "HELD OUT").
 """
 
 from __future__ import annotations
