@@ -1,5 +1,9 @@
 //! CPU time of one workbench frame (layout + tessellation, no GPU): the Fernhollow demo, and
 //! a generated 100 000-node tree fully expanded with a node selected in the middle.
+//!
+//! `FRAME_PROJECT=DIR cargo bench --bench frame` benches that project instead (e.g. the
+//! 1 000 000-phrase project of `SCALE_MILLION=1 bash benches/scale.sh`), fully expanded
+//! with a node selected in the middle, and prints the time to open and audit it.
 
 use std::hint::black_box;
 use std::path::Path;
@@ -38,6 +42,28 @@ fn frames(c: &mut Criterion) {
     let tmp = tempfile::tempdir().expect("temporary folder");
     let mut group = c.benchmark_group("frame");
     group.sample_size(60);
+    if let Some(dir) = std::env::var_os("FRAME_PROJECT") {
+        let mut app = app_for(Path::new(&dir));
+        let t = Instant::now();
+        app.tree_panel.expand_all();
+        let eff = app.doc.eff.as_ref().expect("the project has a tree");
+        let order = eff.tree.preorder();
+        let (nodes, middle) = (eff.tree.node_count(), order[order.len() / 2]);
+        app.apply(Action::Reveal(middle));
+        let ctx = egui::Context::default();
+        for _ in 0..3 {
+            frame(&ctx, &mut app);
+        }
+        eprintln!(
+            "expanded {nodes} nodes and drew 3 frames in {:.2} s",
+            t.elapsed().as_secs_f64()
+        );
+        group.bench_function(format!("{nodes} nodes fully expanded, one selected"), |b| {
+            b.iter(|| black_box(frame(&ctx, &mut app)))
+        });
+        group.finish();
+        return;
+    }
 
     let demo = tmp.path().join("demo");
     write_demo(&demo).expect("demo written");

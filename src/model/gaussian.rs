@@ -10,6 +10,7 @@ use nalgebra::{DMatrix, DVector};
 use rand::SeedableRng;
 use rand_distr::{Distribution, StandardNormal};
 use rand_xoshiro::Xoshiro256PlusPlus;
+use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
 /// ln(2π).
@@ -245,25 +246,32 @@ impl Gaussians {
             }
         }
         let floor32 = floor as f32;
-        let mut log_det = Vec::with_capacity(n);
-        for row in 0..n {
-            let mut ld = 0.0;
-            for col in 0..d {
-                let v = &mut variances[row * d + col];
-                if *v <= 0.0 {
-                    return Err(GaussError::NonPositiveVariance {
-                        row,
-                        col,
-                        value: *v as f64,
-                    });
-                }
-                if (*v as f64) < floor {
-                    *v = floor32;
-                }
-                ld += (*v as f64).ln();
-            }
-            log_det.push(ld);
+        // the first non-positive variance (row order) is the error; then each row is floored
+        // and summed on the worker threads (rows are independent: same values as one loop)
+        if let Some(idx) = variances.par_iter().position_first(|&v| v <= 0.0) {
+            return Err(GaussError::NonPositiveVariance {
+                row: idx / d,
+                col: idx % d,
+                value: variances[idx] as f64,
+            });
         }
+        let log_det: Vec<f64> = if d == 0 {
+            vec![0.0; n]
+        } else {
+            variances
+                .par_chunks_mut(d)
+                .map(|row| {
+                    let mut ld = 0.0;
+                    for v in row.iter_mut() {
+                        if (*v as f64) < floor {
+                            *v = floor32;
+                        }
+                        ld += (*v as f64).ln();
+                    }
+                    ld
+                })
+                .collect()
+        };
         Ok(Gaussians {
             n,
             d,

@@ -71,6 +71,7 @@ use super::tree::TreeFile;
 
 mod coherence;
 mod index;
+mod lanes;
 pub use coherence::SpreadModel;
 use index::build_index;
 mod options;

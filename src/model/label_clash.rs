@@ -6,8 +6,7 @@
 //! are different concepts that only look alike; two phrases both labelled "Fern" in German
 //! may be a duplicate worth merging. Which it is, the curator decides.
 
-use std::collections::BTreeMap;
-
+use rayon::prelude::*;
 use serde::Serialize;
 
 use super::effective::EffectiveTree;
@@ -44,12 +43,21 @@ fn clashes_of(
     ids: &PhraseTable,
     same_node: &dyn Fn(PhraseId, PhraseId) -> bool,
 ) -> Vec<LabelClash> {
-    let mut by_key: BTreeMap<String, Vec<usize>> = BTreeMap::new();
-    for (i, (_, lang, label)) in items.iter().enumerate() {
-        by_key.entry(fold(label, Some(lang))).or_default().push(i);
-    }
+    // (folded key, item) sorted: the groups of equal keys in key order, each in item order
+    // (what a map from key to items gave, without a million-entry tree of small vectors);
+    // the keys are folded and sorted on the worker threads
+    let mut keyed: Vec<(String, usize)> = items
+        .par_iter()
+        .enumerate()
+        .map(|(i, (_, lang, label))| (fold(label, Some(lang)), i))
+        .collect();
+    keyed.par_sort_unstable();
     let mut out = Vec::new();
-    for group in by_key.values() {
+    for run in keyed.chunk_by(|x, y| x.0 == y.0) {
+        if run.len() < 2 {
+            continue;
+        }
+        let group: Vec<usize> = run.iter().map(|e| e.1).collect();
         for (k, &i) in group.iter().enumerate() {
             for &j in &group[k + 1..] {
                 let (pa, la, sa) = &items[i];
@@ -157,6 +165,7 @@ mod tests {
     use crate::model::lang::PhraseLanguages;
     use crate::model::phrase::PhraseRecord;
     use crate::model::tree::Tree;
+    use std::collections::BTreeMap;
 
     fn table() -> PhraseTable {
         let recs: Vec<PhraseRecord> = [("gifts", "gift"), ("pest-poison", "pest poison")]

@@ -164,15 +164,27 @@ impl Tree {
             id: root.into(),
         })?;
         let mut edges = Vec::with_capacity(parent.len());
+        // the children come in id order (a merge walk over the table's id order); parents
+        // repeat (a million-phrase tree has ~10⁵ distinct ones), so they are remembered
+        let mut from = 0;
+        let mut parent_rows: std::collections::HashMap<&str, PhraseId> = Default::default();
         for (c, p) in parent {
-            let ci = phrases.get(c).ok_or_else(|| TreeError::UnknownId {
-                field: "parent (child key)".into(),
-                id: c.clone(),
-            })?;
-            let pi = phrases.get(p).ok_or_else(|| TreeError::UnknownId {
-                field: format!("parent of \"{c}\""),
-                id: p.clone(),
-            })?;
+            let ci = phrases
+                .get_sorted(c, &mut from)
+                .ok_or_else(|| TreeError::UnknownId {
+                    field: "parent (child key)".into(),
+                    id: c.clone(),
+                })?;
+            let known = parent_rows.get(p.as_str()).copied();
+            let pi = known
+                .or_else(|| phrases.get(p))
+                .ok_or_else(|| TreeError::UnknownId {
+                    field: format!("parent of \"{c}\""),
+                    id: p.clone(),
+                })?;
+            if known.is_none() {
+                parent_rows.insert(p, pi);
+            }
             edges.push((ci, pi));
         }
         Tree::from_edges(phrases, root_id, &edges)

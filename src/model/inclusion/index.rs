@@ -9,17 +9,12 @@ use rand_xoshiro::Xoshiro256PlusPlus;
 use rayon::prelude::*;
 
 use super::InclusionError;
+use super::lanes::Lanes;
 use crate::model::gaussian::Gaussians;
-
-/// Squared Euclidean distance.
-fn dist2(a: &[f32], b: &[f32]) -> f32 {
-    a.iter().zip(b).map(|(x, y)| (x - y) * (x - y)).sum()
-}
 
 /// The inverted-file index: cells of members (sorted by decreasing breadth) and centroids.
 pub(super) struct Index {
-    d: usize,
-    centroids: Vec<f32>,
+    centroids: Lanes,
     pub(super) cells: Vec<Vec<u32>>,
 }
 
@@ -42,20 +37,24 @@ pub(super) fn build_index(
         centroids.extend_from_slice(g.mean(r as usize));
     }
     let assign = |centroids: &[f32]| -> Vec<u32> {
+        let lanes = Lanes::of(centroids, d);
         members
             .par_chunks(1024)
             .flat_map_iter(|chunk| {
-                chunk.iter().map(|&r| {
-                    let m = g.mean(r as usize);
-                    let mut best = (f32::INFINITY, 0u32);
-                    for (j, c) in centroids.chunks_exact(d).enumerate() {
-                        let x = dist2(m, c);
-                        if x < best.0 {
-                            best = (x, j as u32);
+                let mut dists = Vec::with_capacity(k);
+                chunk
+                    .iter()
+                    .map(|&r| {
+                        lanes.dists(g.mean(r as usize), &mut dists);
+                        let mut best = (f32::INFINITY, 0u32);
+                        for (j, &x) in dists.iter().enumerate() {
+                            if x < best.0 {
+                                best = (x, j as u32);
+                            }
                         }
-                    }
-                    best.1
-                })
+                        best.1
+                    })
+                    .collect::<Vec<u32>>()
             })
             .collect()
     };
@@ -90,8 +89,7 @@ pub(super) fn build_index(
         c.sort_by(by_breadth);
     }
     Ok(Index {
-        d,
-        centroids,
+        centroids: Lanes::of(&centroids, d),
         cells: cell_lists,
     })
 }
@@ -100,8 +98,9 @@ impl Index {
     /// The `probe` cells nearest to `m` (ties: lower cell).
     pub(super) fn nearest(&self, m: &[f32], probe: usize) -> Vec<u32> {
         let mut best: Vec<(f32, u32)> = Vec::with_capacity(probe + 1);
-        for (j, c) in self.centroids.chunks_exact(self.d).enumerate() {
-            let x = dist2(m, c);
+        let mut dists = Vec::new();
+        self.centroids.dists(m, &mut dists);
+        for (j, &x) in dists.iter().enumerate() {
             if best.len() == probe {
                 let last = best[probe - 1];
                 if (x, j as u32) >= last {
