@@ -85,9 +85,24 @@ impl Auditor {
         cfg: AuditConfig,
         nav_min: usize,
     ) -> Self {
+        Self::with_nav_opts(g, phrases, eff, problems, cfg, nav_min, 0.0)
+    }
+
+    /// [`Auditor::with_nav_min`] with `nav_bias` nats added to the navigation indexes' KL
+    /// bounds (tests only: a positive value is a deliberately broken twin).
+    pub(super) fn with_nav_opts(
+        g: &Gaussians,
+        phrases: &PhraseTable,
+        eff: &EffectiveTree,
+        problems: &[ApplyProblem],
+        cfg: AuditConfig,
+        nav_min: usize,
+        nav_bias: f64,
+    ) -> Self {
         let engine = StatsEngine::new(g, &cfg.stats());
         let mut index = CandidateIndex::of(eff);
         index.nav_min = nav_min;
+        index.nav_bias = nav_bias;
         index = index.with_nav();
         let stats = engine.compute(g, eff);
         // the tree-level fit first (treefit.rs)

@@ -38,6 +38,12 @@ pub(super) struct CandidateIndex {
     /// Nodes with more children than this get a navigation index ([`WIDE`]; tests set
     /// `usize::MAX` to compare with scoring every child).
     pub(super) nav_min: usize,
+    /// Per node: whether one of its children has children of its own (recomputed by
+    /// [`CandidateIndex::with_nav`], which every change of the children lists calls).
+    pub(super) grand: Vec<bool>,
+    /// Nats added to the navigation indexes' KL bounds: 0 except in tests (a deliberately
+    /// broken twin, `navindex.rs`).
+    pub(super) nav_bias: f64,
 }
 
 impl CandidateIndex {
@@ -53,6 +59,8 @@ impl CandidateIndex {
                 .collect(),
             nav: HashMap::new(),
             nav_min: WIDE,
+            grand: Vec::new(),
+            nav_bias: 0.0,
         }
         .with_nav()
     }
@@ -71,6 +79,11 @@ impl CandidateIndex {
             }
         }
         self.nav = nav;
+        self.grand = self
+            .children
+            .iter()
+            .map(|ch| ch.iter().any(|&x| !self.children[x as usize].is_empty()))
+            .collect();
         self
     }
 }
@@ -210,6 +223,7 @@ impl Searcher<'_> {
         let mut scratch: Vec<(PhraseId, Option<f64>)> = Vec::new();
         while !beam.is_empty() {
             next.clear();
+            let beam_matters = beam.iter().any(|&b| self.index.grand[b as usize]);
             for &b in &beam {
                 let kids = &self.index.children[b as usize];
                 let mut from = 0;
@@ -223,6 +237,8 @@ impl Searcher<'_> {
                         ld_c: ldc,
                         diag_ld_c: self.engine.diag_log_det[c as usize],
                         beam: self.cfg.search_beam,
+                        beam_matters,
+                        bias: self.index.nav_bias,
                         best_so_far: lowest(&cands).map_or(f64::INFINITY, |e| e.1),
                         min_ld,
                         eligible: &eligible,
