@@ -5,8 +5,9 @@
 mod common;
 
 use egui::Key;
+use egui::accesskit::Toggled;
 use egui_kittest::Harness;
-use egui_kittest::kittest::Queryable;
+use egui_kittest::kittest::{NodeT, Queryable};
 use treewright::gui::App;
 use treewright::model::edit::Edit;
 use treewright::model::queue::ItemState;
@@ -167,16 +168,30 @@ fn a_placement_finding_shows_both_parents() {
     h.get_by_label_contains("(now): KL");
     h.get_by_label_contains("(suggested): KL");
     h.get_by_label_contains("Contrast axis through the two parents");
+    // the projection row says which projection this is: the two parents' contrast is the
+    // active choice, not PCA (the panel's mode underneath stays PCA)
+    let toggled = |h: &Harness<'_, App>, label: &str| {
+        h.get_by_label(label).accesskit_node().toggled() == Some(Toggled::True)
+    };
+    assert!(toggled(&h, "Two parents: contrast"));
+    assert!(!toggled(&h, "PCA"));
     // the finding row shows the explanation sentence; the numbers are in words on hover
     assert!(
         h.get_all_by_label_contains("better than its parent")
             .count()
             >= 1
     );
-    // unticking "both parents" brings back the usual view
+    // unticking "both parents" brings back the usual view, and PCA is active again
     h.get_by_label("both parents").click();
     h.run();
     assert!(h.query_by_label_contains("Both parents:").is_none());
+    assert!(toggled(&h, "PCA"));
+    assert!(!toggled(&h, "Two parents: contrast"));
+    // picking the two-parent projection in the row shows the view again
+    h.get_by_label("Two parents: contrast").click();
+    h.run();
+    h.get_by_label("Both parents: the node, its current parent and the suggested one");
+    assert!(toggled(&h, "Two parents: contrast"));
 }
 
 #[test]

@@ -76,6 +76,9 @@ impl Role {
     }
 }
 
+/// The label of the projection choice of the two-parent view.
+pub const TWO_PARENTS_PROJECTION: &str = "Two parents: contrast";
+
 /// Projection choice.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
 pub enum Mode {
@@ -244,7 +247,9 @@ impl EllipsePanel {
         self.fit = true;
     }
 
-    fn controls(&mut self, ui: &mut egui::Ui, view: &ViewCtx) {
+    /// `two`: whether the two-parent view can be shown for the selection (then the
+    /// projection row offers it) and whether it is shown (then it is the active choice).
+    fn controls(&mut self, ui: &mut egui::Ui, view: &ViewCtx, two: (bool, bool)) {
         let d = view.project.gaussians.dim();
         ui.horizontal_wrapped(|ui| {
             ui.label("Show:");
@@ -275,7 +280,9 @@ impl EllipsePanel {
         });
         ui.horizontal_wrapped(|ui| {
             ui.label("Projection:");
+            let (two_available, two_shown) = two;
             let mut kind = match self.mode {
+                _ if two_shown => 3,
                 Mode::Pca => 0,
                 Mode::Dims(..) => 1,
                 Mode::Contrast => 2,
@@ -284,11 +291,22 @@ impl EllipsePanel {
             ui.radio_value(&mut kind, 0, "PCA");
             ui.radio_value(&mut kind, 1, "two dimensions");
             ui.radio_value(&mut kind, 2, "contrast of two selected");
+            if two_available {
+                ui.radio_value(&mut kind, 3, TWO_PARENTS_PROJECTION)
+                    .on_hover_text(
+                        "The axis through the current and the suggested parent's means, plus \
+                         the best orthogonal axis",
+                    );
+            }
             if kind != before {
+                // the two-parent view is a projection choice too: picking another one
+                // leaves it, picking it turns it on
+                self.both_parents = kind == 3;
                 self.mode = match kind {
                     0 => Mode::Pca,
                     1 => Mode::Dims(0, 1.min(d.saturating_sub(1))),
-                    _ => Mode::Contrast,
+                    2 => Mode::Contrast,
+                    _ => self.mode,
                 };
             }
             if let Mode::Dims(a, b) = &mut self.mode {
@@ -327,9 +345,9 @@ impl EllipsePanel {
 }
 
 impl EllipsePanel {
-    /// The two-parent view of the selected node when it has an open placement finding with
-    /// a suggested parent; false (nothing drawn) otherwise.
-    fn two_parent_view(&mut self, ui: &mut egui::Ui, view: &ViewCtx) -> bool {
+    /// Whether the selected node has an open placement finding with a suggested parent and
+    /// a two-parent projection (computed once per node, parents and generation).
+    fn two_parents_ready(&mut self, view: &ViewCtx) -> bool {
         let ([node], Some(report), Some(eff)) = (view.selection, view.report, view.eff) else {
             return false;
         };
@@ -347,9 +365,17 @@ impl EllipsePanel {
             let t = two_parents(&view.project.gaussians, *node, current, suggested);
             self.two = Some((key, t));
         }
-        let Some((_, Some(t))) = &self.two else {
+        matches!(&self.two, Some((_, Some(_))))
+    }
+
+    /// The two-parent view of the selected node when [`Self::two_parents_ready`]; false
+    /// (nothing drawn) otherwise.
+    fn two_parent_view(&mut self, ui: &mut egui::Ui, view: &ViewCtx) -> bool {
+        let (Some(((node, current, suggested, _), Some(t))), Some(eff)) = (&self.two, view.eff)
+        else {
             return false;
         };
+        let (node, current, suggested) = (node, *current, *suggested);
         let label = |p: PhraseId| eff.label(p).to_string();
         ui.strong("Both parents: the node, its current parent and the suggested one");
         ui.add(egui::Label::new(t.caption(&label)).wrap());
@@ -396,12 +422,14 @@ impl Panel for EllipsePanel {
     fn ui(&mut self, ui: &mut egui::Ui, view: &ViewCtx) -> Vec<Action> {
         let mut actions = Vec::new();
         ui.heading("Ellipse projection");
-        self.controls(ui, view);
+        let two_available = self.two_parents_ready(view);
+        let two_shown = self.both_parents && two_available;
+        self.controls(ui, view, (two_available, two_shown));
         if view.selection.is_empty() {
             ui.label("Select a node in the tree (Ctrl-click for more) to see its ellipses.");
             return actions;
         }
-        if self.both_parents && self.two_parent_view(ui, view) {
+        if two_shown && self.two_parent_view(ui, view) {
             return actions;
         }
         let shown = self.shown(view);

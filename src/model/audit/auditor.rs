@@ -3,6 +3,7 @@
 use rayon::prelude::*;
 
 use super::calibrate;
+use super::confidence_inc::IncConfidence;
 use super::rules::Rule;
 use super::search::{CandidateIndex, Order, Placement, Searcher, needs_search, suspicious};
 use super::{AuditConfig, AuditReport, Finding, assemble_with, treefit};
@@ -57,6 +58,10 @@ pub struct Auditor {
     pub(super) placement: Vec<Placement>,
     snapshot: Snapshot,
     pub(super) report: AuditReport,
+    /// The scores behind the placement findings' confidence, kept sorted across edits.
+    pub(super) conf: IncConfidence,
+    /// The random-parent pairs of the tree-level fit, measured once each.
+    fit_cache: treefit::BaselineCache,
     /// The audit of the base tree that the calibration reads its features from (computed
     /// once, the first time there are enough decisions; see [`Auditor::calibrate`]).
     before: Option<Box<AuditReport>>,
@@ -106,7 +111,16 @@ impl Auditor {
         index = index.with_nav();
         let stats = engine.compute(g, eff);
         // the tree-level fit first (treefit.rs)
-        let fit = treefit::measure(g, eff, &engine, &stats, cfg.containment_min, cfg.seed);
+        let mut fit_cache = treefit::BaselineCache::default();
+        let fit = treefit::measure_cached(
+            g,
+            eff,
+            &engine,
+            &stats,
+            cfg.containment_min,
+            cfg.seed,
+            &mut fit_cache,
+        );
         let order = Order::of(eff);
         let n = g.len();
         let exhaustive = n <= cfg.exhaustive_limit;
@@ -153,7 +167,18 @@ impl Auditor {
                 placement[p as usize] = pl;
             }
         }
-        let mut report = assemble_with(g, phrases, eff, problems, &cfg, stats, &placement, None);
+        let mut conf = IncConfidence::new(eff, &stats, &placement);
+        let mut report = assemble_with(
+            g,
+            phrases,
+            eff,
+            problems,
+            &cfg,
+            stats,
+            &placement,
+            None,
+            Some(&mut conf),
+        );
         report.fit = fit;
         Auditor {
             snapshot: Snapshot::of(eff),
@@ -162,6 +187,8 @@ impl Auditor {
             index,
             placement,
             report,
+            conf,
+            fit_cache,
             before: None,
         }
     }
@@ -269,13 +296,14 @@ impl Auditor {
             .collect();
         let mut stats = std::mem::replace(&mut self.report.stats, empty_stats());
         self.engine.refresh(&mut stats, g, eff, &stat_list, &order);
-        let fit = treefit::measure(
+        let fit = treefit::measure_cached(
             g,
             eff,
             &self.engine,
             &stats,
             self.cfg.containment_min,
             self.cfg.seed,
+            &mut self.fit_cache,
         );
         let searcher = Searcher {
             g,
@@ -336,9 +364,15 @@ impl Auditor {
         let kept: Vec<Finding> = old
             .into_iter()
             .filter(|f| {
-                Rule::from_id(f.rule).is_some_and(Rule::node_local) && !dirty[f.node as usize]
+                Rule::from_id(f.rule)
+                    .is_some_and(|r| r.node_local() || r.node_local_but_confidence())
+                    && !dirty[f.node as usize]
             })
             .collect();
+        // the scores behind the confidences change only where figures or searches did
+        self.conf.refresh(eff, &stats, &self.placement, |i| {
+            stat_dirty[i] || search_dirty[i]
+        });
         self.snapshot.parent = new_parent;
         self.snapshot.placed = new_placed;
         self.report = assemble_with(
@@ -350,6 +384,7 @@ impl Auditor {
             stats,
             &self.placement,
             Some((&dirty, kept)),
+            Some(&mut self.conf),
         );
         self.report.fit = fit;
         &self.report

@@ -168,7 +168,7 @@ fn ranks(v: &[f64]) -> Vec<f64> {
 }
 
 /// Pearson correlation of two equally long slices (0 when either has no spread).
-fn pearson(a: &[f64], b: &[f64]) -> f64 {
+pub(super) fn pearson(a: &[f64], b: &[f64]) -> f64 {
     let n = a.len() as f64;
     let (ma, mb) = (a.iter().sum::<f64>() / n, b.iter().sum::<f64>() / n);
     let (mut sab, mut saa, mut sbb) = (0.0, 0.0, 0.0);

@@ -83,6 +83,7 @@ use super::stats::Stats;
 mod auditor;
 pub mod calibrate;
 pub mod confidence;
+mod confidence_inc;
 mod config;
 pub mod evaluate;
 mod navindex;
@@ -286,13 +287,16 @@ fn assemble(
     // the tree-level fit as the auditor measures it (same engine: same sample bank)
     let engine = super::stats::StatsEngine::new(g, &cfg.stats());
     let fit = treefit::measure(g, eff, &engine, &stats, cfg.containment_min, cfg.seed);
-    let mut report = assemble_with(g, phrases, eff, problems, cfg, stats, placement, None);
+    let mut report = assemble_with(g, phrases, eff, problems, cfg, stats, placement, None, None);
     report.fit = fit;
     report
 }
 
-/// [`assemble`], or with `Some((dirty, kept))` only the node-local findings of the dirty
-/// nodes are rebuilt and `kept` (the others' node-local findings) is reused.
+/// [`assemble`], or with `Some((dirty, kept))` only the node-local findings (and those
+/// node-local but for their confidence) of the dirty nodes are rebuilt and `kept` (the
+/// others') is reused. The confidences come from `inc` when given (the auditor's
+/// incremental state, in step with `stats` and `placement`), else from a full
+/// [`Confidences::of`](confidence::Confidences::of).
 #[allow(clippy::too_many_arguments)]
 fn assemble_with(
     g: &Gaussians,
@@ -303,6 +307,7 @@ fn assemble_with(
     stats: Stats,
     placement: &[Placement],
     incremental: Option<(&[bool], Vec<Finding>)>,
+    inc: Option<&mut confidence_inc::IncConfidence>,
 ) -> AuditReport {
     let n = g.len();
     let (dirty, mut out) = match incremental {
@@ -314,7 +319,8 @@ fn assemble_with(
     for p in 0..n as PhraseId {
         let dirty_p = dirty.is_none_or(|d| d[p as usize]);
         for rule in Rule::ALL {
-            if rule.scope() == Scope::Node && (dirty_p || !rule.node_local()) {
+            let kept = rule.node_local() || rule.node_local_but_confidence();
+            if rule.scope() == Scope::Node && (dirty_p || !kept) {
                 rule.check_node(&ctx, p, &mut out);
             }
         }
@@ -325,24 +331,38 @@ fn assemble_with(
         }
     }
     let (cov_thr, unreviewed) = (ctx.coverage_threshold, ctx.unreviewed);
-    let conf = &ctx.confidence;
+    let full;
+    let conf = match inc {
+        Some(inc) => inc.fill(eff, &stats, placement, &out),
+        None => {
+            full = confidence::Confidences::of(eff, &stats, placement);
+            &full
+        }
+    };
+    confidence_inc::stamp(&mut out, conf, cfg);
     let p_of = |f: &Finding| conf.p_value_of(f.rule, f.node);
     let rule_pos = |r: &str| Rule::from_id(r).map_or(RULES.len(), Rule::position);
     // the keys end in (node, other) and, for findings that share those (several stale
     // edits on the root), the explanation, so the order is total and an in-place unstable
-    // sort (no n/2 scratch buffer) is deterministic
-    out.sort_unstable_by(|a, b| {
+    // sort (no n/2 scratch buffer) is deterministic; the p-value, excess and rule position
+    // are looked up once per finding, not per comparison
+    let mut keyed: Vec<(f64, f64, usize, Finding)> = out
+        .into_iter()
+        .map(|f| (p_of(&f), f.excess(), rule_pos(f.rule), f))
+        .collect();
+    keyed.sort_unstable_by(|(pa, ea, ra, a), (pb, eb, rb, b)| {
         a.accepted
             .cmp(&b.accepted)
             .then(b.severity.cmp(&a.severity))
             .then(b.confidence.total_cmp(&a.confidence))
-            .then_with(|| p_of(a).total_cmp(&p_of(b)))
-            .then(b.excess().total_cmp(&a.excess()))
-            .then(rule_pos(a.rule).cmp(&rule_pos(b.rule)))
+            .then_with(|| pa.total_cmp(pb))
+            .then(eb.total_cmp(ea))
+            .then(ra.cmp(rb))
             .then(a.node.cmp(&b.node))
             .then(a.other.cmp(&b.other))
             .then_with(|| a.explanation.cmp(&b.explanation))
     });
+    let out: Vec<Finding> = keyed.into_iter().map(|k| k.3).collect();
     AuditReport {
         findings: out,
         stats,
@@ -355,5 +375,7 @@ fn assemble_with(
 
 #[cfg(test)]
 mod tests;
+#[cfg(test)]
+mod tests_conf;
 #[cfg(test)]
 mod tests_update;

@@ -110,7 +110,17 @@ fn median(v: &mut [f64]) -> f64 {
     *v.select_nth_unstable_by(mid, f64::total_cmp).1
 }
 
-/// Measure the tree-level fit from the per-node statistics and a random-parent baseline.
+/// The random (node, parent) pairs of the last [`measure_cached`], by draw, with their KL
+/// and containment (each a function of the pair alone): after an edit only the pairs whose
+/// drawn parent moved are measured again.
+#[derive(Debug, Clone, Default)]
+pub(super) struct BaselineCache {
+    pairs: Vec<Option<(PhraseId, PhraseId, f64, f64)>>,
+}
+
+/// Measure the tree-level fit from the per-node statistics and a random-parent baseline
+/// (the tests' entry; the auditor keeps a cache, [`measure_cached`]).
+#[cfg(test)]
 pub(super) fn measure(
     g: &Gaussians,
     eff: &EffectiveTree,
@@ -118,6 +128,21 @@ pub(super) fn measure(
     stats: &Stats,
     containment_min: f64,
     seed: u64,
+) -> TreeFit {
+    let mut cache = BaselineCache::default();
+    measure_cached(g, eff, engine, stats, containment_min, seed, &mut cache)
+}
+
+/// [`measure`], reusing the figures of the pairs drawn the same as last time in `cache`
+/// (and leaving this measure's pairs there).
+pub(super) fn measure_cached(
+    g: &Gaussians,
+    eff: &EffectiveTree,
+    engine: &StatsEngine,
+    stats: &Stats,
+    containment_min: f64,
+    seed: u64,
+    cache: &mut BaselineCache,
 ) -> TreeFit {
     let n = eff.tree.table_len();
     let children: Vec<PhraseId> = (0..n as PhraseId)
@@ -142,6 +167,7 @@ pub(super) fn measure(
         return fit;
     }
     let m = BASELINE_PAIRS.min(children.len());
+    cache.pairs.resize(m, None);
     let mut rng = Xoshiro256PlusPlus::seed_from_u64(seed ^ 0x6669_745f_7261_6e64);
     let mut base_kl = Vec::with_capacity(m);
     let mut base_in = 0usize;
@@ -158,9 +184,21 @@ pub(super) fn measure(
                 break;
             }
         }
-        let Some(r) = r else { continue };
-        base_kl.push(kl(&g.get(c as usize), &g.get(r as usize)));
-        base_in += usize::from(engine.containment(g, c, r).value >= containment_min);
+        let Some(r) = r else {
+            cache.pairs[j] = None;
+            continue;
+        };
+        let (k, inside) = match cache.pairs[j] {
+            Some((c0, r0, k, inside)) if (c0, r0) == (c, r) => (k, inside),
+            _ => {
+                let k = kl(&g.get(c as usize), &g.get(r as usize));
+                let inside = engine.containment(g, c, r).value;
+                cache.pairs[j] = Some((c, r, k, inside));
+                (k, inside)
+            }
+        };
+        base_kl.push(k);
+        base_in += usize::from(inside >= containment_min);
     }
     fit.baseline_pairs = base_kl.len();
     fit.baseline_contained_share = base_in as f64 / base_kl.len().max(1) as f64;

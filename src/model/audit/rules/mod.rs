@@ -19,7 +19,6 @@ use crate::model::gaussian::PhraseId;
 use crate::model::phrase::PhraseTable;
 use crate::model::stats::Stats;
 
-use super::confidence::{self, Confidences};
 use super::search::Placement;
 
 mod better_parent;
@@ -135,6 +134,18 @@ impl Rule {
         )
     }
 
+    /// Whether the findings of a node depend only on that node's own figures apart from
+    /// their severity, confidence and evidence: the placement rules, whose confidence is
+    /// relative to the whole tree. The incremental re-audit keeps them, like those of
+    /// [`Rule::node_local`] rules, for nodes an edit did not touch, and stamps the
+    /// confidence of every one again (`confidence_inc::stamp`).
+    pub const fn node_local_but_confidence(self) -> bool {
+        matches!(
+            self,
+            Rule::InvertedGenerality | Rule::BetterParent | Rule::WeakInclusion
+        )
+    }
+
     /// The keys of the `audit` configuration this rule reads (besides its `severity`).
     pub const fn config_keys(self) -> &'static [&'static str] {
         match self {
@@ -201,24 +212,14 @@ impl Rule {
         suggestion: Suggestion,
         accepted: bool,
     ) -> Finding {
-        let tested = match self {
-            Rule::BetterParent | Rule::WeakInclusion => ctx.confidence.misplaced[node as usize],
-            Rule::InvertedGenerality => ctx.confidence.inverted[node as usize],
-            _ => None,
-        };
-        let severity = match tested {
-            Some(c) if !ctx.cfg.severity.contains_key(self.id()) => confidence::level(c),
-            _ => ctx.cfg.severity_of(self.id()),
-        };
+        // the placement rules' severity, confidence and evidence follow the node's
+        // confidence, stamped on after every rule ran (`confidence_inc::stamp`); the values
+        // here are those of a rule without a test (evidence −log₁₀ 1)
         Finding {
             rule: self.id(),
-            severity,
-            confidence: tested.unwrap_or(1.0),
-            evidence: -ctx
-                .confidence
-                .p_value_of(self.id(), node)
-                .max(1e-300)
-                .log10(),
+            severity: ctx.cfg.severity_of(self.id()),
+            confidence: 1.0,
+            evidence: -0.0,
             node,
             other,
             score,
@@ -249,8 +250,6 @@ pub(super) struct Ctx<'a> {
     pub coverage_threshold: f64,
     /// Nodes of the tree whose review status is unreviewed.
     pub unreviewed: usize,
-    /// Confidence of the placement findings per node.
-    pub confidence: Confidences,
 }
 
 impl<'a> Ctx<'a> {
@@ -278,7 +277,6 @@ impl<'a> Ctx<'a> {
             placement,
             coverage_threshold: Ctx::coverage_threshold_of(eff, cfg, stats),
             unreviewed,
-            confidence: Confidences::of(eff, stats, placement),
         }
     }
 
