@@ -154,16 +154,34 @@ impl Searcher<'_> {
     }
 
     pub(super) fn place(&self, c: PhraseId) -> Placement {
-        let mut out = self.search(c);
-        if let (Some((b, kb)), Some(par)) = (out.best, self.eff.tree.parent(c))
-            && kb < self.kl_to(c, par)
+        let mut out = self.search(c, self.cfg.search_beam);
+        let kp = self.eff.tree.parent(c).map(|par| self.kl_to(c, par));
+        if let (Some((_, kb)), Some(kp)) = (out.best, kp)
+            && !self.exhaustive
+            && clear_gain(self.cfg, kp, kb)
+        {
+            // a `better-parent` finding will name this candidate: search again with a
+            // wider beam so that the named parent is not an artefact of a narrow search
+            // (the lower of the two answers is kept; the duplicate lists are merged)
+            let wide = self.search(c, SUSPECT_BEAM_FACTOR * self.cfg.search_beam);
+            if let Some(w) = wide.best
+                && out.best.is_none_or(|o| w.1.total_cmp(&o.1).then(w.0.cmp(&o.0)).is_lt())
+            {
+                out.best = Some(w);
+            }
+            out.dups.extend(wide.dups);
+            out.dups.sort_by_key(|e| e.0);
+            out.dups.dedup_by_key(|e| e.0);
+        }
+        if let (Some((b, kb)), Some(kp)) = (out.best, kp)
+            && kb < kp
         {
             out.best_containment = Some(self.engine.containment(self.g, c, b));
         }
         out
     }
 
-    fn search(&self, c: PhraseId) -> Placement {
+    fn search(&self, c: PhraseId, width: usize) -> Placement {
         let ldc = self.g.log_det(c as usize);
         let margin = self.cfg.duplicate_generality_margin;
         let parent = self.eff.tree.parent(c).unwrap_or(NO_PARENT);
@@ -222,7 +240,7 @@ impl Searcher<'_> {
                         c,
                         ld_c: ldc,
                         diag_ld_c: self.engine.diag_log_det[c as usize],
-                        beam: self.cfg.search_beam,
+                        beam: width,
                         best_so_far: lowest(&cands).map_or(f64::INFINITY, |e| e.1),
                         min_ld,
                         eligible: &eligible,
@@ -256,7 +274,6 @@ impl Searcher<'_> {
             // index links) is kept once
             let by =
                 |a: &(PhraseId, f64), b: &(PhraseId, f64)| a.1.total_cmp(&b.1).then(a.0.cmp(&b.0));
-            let width = self.cfg.search_beam;
             if next.len() > width {
                 next.select_nth_unstable_by(width - 1, by);
                 next.truncate(width);
@@ -292,6 +309,17 @@ impl Searcher<'_> {
 /// Full covariance: candidates rescored with the exact KL after the pruned search.
 const FULL_RESCORE: usize = 8;
 
+/// A node whose best candidate clears the `better-parent` gain is searched again with a
+/// beam this many times `search_beam` wide: the finding names that candidate as the new
+/// parent, so it is worth a wider look (the extra work is spent only on such nodes).
+pub(super) const SUSPECT_BEAM_FACTOR: usize = 4;
+
+/// The `better-parent` gain test on KL(child ‖ parent) = `kp` and KL(child ‖ best) = `kb`:
+/// kp − kb > max(`better_parent_margin`, `better_parent_ratio` · kp).
+pub(super) fn clear_gain(cfg: &AuditConfig, kp: f64, kb: f64) -> bool {
+    kp - kb > cfg.better_parent_margin.max(cfg.better_parent_ratio * kp)
+}
+
 /// The candidate with the lowest score (ties: the lower row).
 fn lowest(cands: &[(PhraseId, f64)]) -> Option<(PhraseId, f64)> {
     cands
@@ -320,9 +348,7 @@ pub(super) fn suspicious(
     let inverted = g.log_det(i) - g.log_det(par as usize) > cfg.inversion_margin;
     let weak = s.containment.is_some_and(|c| c.value < cfg.containment_min);
     let better = match (placement[i].best, s.kl_to_parent) {
-        (Some((_, kb)), Some(kp)) => {
-            kp - kb > cfg.better_parent_margin.max(cfg.better_parent_ratio * kp)
-        }
+        (Some((_, kb)), Some(kp)) => clear_gain(cfg, kp, kb),
         _ => false,
     };
     inverted || weak || better
