@@ -55,7 +55,13 @@
 //! covariance term of D_B is ≥ 0), then the exact coefficient. The best-parent answer is the
 //! scored broader node with the lowest KL that is placed, not c's descendant and not its
 //! current parent. For full covariance the beam is steered by the KL of the diagonal parts
-//! of Σ (O(d) instead of O(d³)) and the 8 lowest candidates are rescored exactly. A test
+//! of Σ (O(d) instead of O(d³)) and the 8 lowest candidates are rescored exactly. Two
+//! additions look further where a finding depends on it: the children of c's current parent
+//! (c's siblings, in the index) are always looked at, beam or not (a copy sits beside its
+//! original; a node one level too high has its true parent among its siblings); and a node
+//! whose best candidate clears the `better-parent` gain is searched again with a beam
+//! `SUSPECT_BEAM_FACTOR` (4) times wider, keeping the lower answer, because the finding
+//! names that candidate as the new parent. A test
 //! checks on a mid-size tree that this finds the same top suggestion
 //! as the exhaustive search for ≥ 99 % of the nodes where either search makes one.
 //!

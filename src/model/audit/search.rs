@@ -167,16 +167,36 @@ impl Searcher<'_> {
     }
 
     pub(super) fn place(&self, c: PhraseId) -> Placement {
-        let mut out = self.search(c);
-        if let (Some((b, kb)), Some(par)) = (out.best, self.eff.tree.parent(c))
-            && kb < self.kl_to(c, par)
+        let mut out = self.search(c, self.cfg.search_beam);
+        let kp = self.eff.tree.parent(c).map(|par| self.kl_to(c, par));
+        if let (Some((_, kb)), Some(kp)) = (out.best, kp)
+            && !self.exhaustive
+            && clear_gain(self.cfg, kp, kb)
+        {
+            // a `better-parent` finding will name this candidate: search again with a
+            // wider beam so that the named parent is not an artefact of a narrow search
+            // (the lower of the two answers is kept; the duplicate lists are merged)
+            let wide = self.search(c, SUSPECT_BEAM_FACTOR * self.cfg.search_beam);
+            if let Some(w) = wide.best
+                && out
+                    .best
+                    .is_none_or(|o| w.1.total_cmp(&o.1).then(w.0.cmp(&o.0)).is_lt())
+            {
+                out.best = Some(w);
+            }
+            out.dups.extend(wide.dups);
+            out.dups.sort_by_key(|e| e.0);
+            out.dups.dedup_by_key(|e| e.0);
+        }
+        if let (Some((b, kb)), Some(kp)) = (out.best, kp)
+            && kb < kp
         {
             out.best_containment = Some(self.engine.containment(self.g, c, b));
         }
         out
     }
 
-    fn search(&self, c: PhraseId) -> Placement {
+    fn search(&self, c: PhraseId, width: usize) -> Placement {
         let ldc = self.g.log_det(c as usize);
         let margin = self.cfg.duplicate_generality_margin;
         let parent = self.eff.tree.parent(c).unwrap_or(NO_PARENT);
@@ -221,58 +241,68 @@ impl Searcher<'_> {
         let mut beam = vec![root];
         let mut next: Vec<(PhraseId, f64)> = Vec::new();
         let mut scratch: Vec<(PhraseId, Option<f64>)> = Vec::new();
+        // every node whose children were looked at
+        let mut expanded: Vec<PhraseId> = Vec::new();
+        let expand = |b: PhraseId,
+                      beam_matters: bool,
+                      out: &mut Placement,
+                      cands: &mut Vec<(PhraseId, f64)>,
+                      next: &mut Vec<(PhraseId, f64)>,
+                      scratch: &mut Vec<(PhraseId, Option<f64>)>| {
+            let kids = &self.index.children[b as usize];
+            let mut from = 0;
+            if let Some(nav) = self.nav_of(b) {
+                let eligible = |x: PhraseId| {
+                    x != parent && self.eff.tree.is_placed(x) && !self.order.in_subtree(c, x)
+                };
+                let kl = |x: PhraseId| self.kl_diag(c, x);
+                let q = Query {
+                    c,
+                    ld_c: ldc,
+                    diag_ld_c: self.engine.diag_log_det[c as usize],
+                    beam: width,
+                    beam_matters,
+                    bias: self.index.nav_bias,
+                    best_so_far: lowest(cands).map_or(f64::INFINITY, |e| e.1),
+                    min_ld,
+                    eligible: &eligible,
+                    dup_dmax: -self.cfg.duplicate_bc_min.ln(),
+                    dup_margin: margin,
+                    kl: &kl,
+                };
+                nav.query(self.g, &q, scratch);
+                for &(x, k) in scratch.iter() {
+                    consider(x, k, out, cands);
+                    if let Some(k) = k {
+                        next.push((x, k));
+                    }
+                }
+                from = nav.covered;
+            }
+            for &x in &kids[from..] {
+                if x == c {
+                    continue;
+                }
+                if broader(x) {
+                    let k = self.kl_diag(c, x);
+                    consider(x, Some(k), out, cands);
+                    next.push((x, k));
+                } else {
+                    consider(x, None, out, cands);
+                }
+            }
+        };
         while !beam.is_empty() {
             next.clear();
             let beam_matters = beam.iter().any(|&b| self.index.grand[b as usize]);
             for &b in &beam {
-                let kids = &self.index.children[b as usize];
-                let mut from = 0;
-                if let Some(nav) = self.nav_of(b) {
-                    let eligible = |x: PhraseId| {
-                        x != parent && self.eff.tree.is_placed(x) && !self.order.in_subtree(c, x)
-                    };
-                    let kl = |x: PhraseId| self.kl_diag(c, x);
-                    let q = Query {
-                        c,
-                        ld_c: ldc,
-                        diag_ld_c: self.engine.diag_log_det[c as usize],
-                        beam: self.cfg.search_beam,
-                        beam_matters,
-                        bias: self.index.nav_bias,
-                        best_so_far: lowest(&cands).map_or(f64::INFINITY, |e| e.1),
-                        min_ld,
-                        eligible: &eligible,
-                        dup_dmax: -self.cfg.duplicate_bc_min.ln(),
-                        dup_margin: margin,
-                        kl: &kl,
-                    };
-                    nav.query(self.g, &q, &mut scratch);
-                    for &(x, k) in &scratch {
-                        consider(x, k, &mut out, &mut cands);
-                        if let Some(k) = k {
-                            next.push((x, k));
-                        }
-                    }
-                    from = nav.covered;
-                }
-                for &x in &kids[from..] {
-                    if x == c {
-                        continue;
-                    }
-                    if broader(x) {
-                        let k = self.kl_diag(c, x);
-                        consider(x, Some(k), &mut out, &mut cands);
-                        next.push((x, k));
-                    } else {
-                        consider(x, None, &mut out, &mut cands);
-                    }
-                }
+                expand(b, beam_matters, &mut out, &mut cands, &mut next, &mut scratch);
             }
+            expanded.extend_from_slice(&beam);
             // keep the `search_beam` lowest (ties by row); a node reachable twice (repaired
             // index links) is kept once
             let by =
                 |a: &(PhraseId, f64), b: &(PhraseId, f64)| a.1.total_cmp(&b.1).then(a.0.cmp(&b.0));
-            let width = self.cfg.search_beam;
             if next.len() > width {
                 next.select_nth_unstable_by(width - 1, by);
                 next.truncate(width);
@@ -281,6 +311,15 @@ impl Searcher<'_> {
             next.dedup_by_key(|e| e.0);
             beam.clear();
             beam.extend(next.iter().map(|&(x, _)| x));
+        }
+        // the node's siblings (the children of its parent in the kept hierarchy) are always
+        // looked at, whether or not the beam reached them: a copy sits beside its original,
+        // and a node placed one level too high has its true parent among its siblings
+        if parent != NO_PARENT && !expanded.contains(&parent) {
+            next.clear();
+            // what the expansion adds to `next` is not followed: only the best candidate
+            // and the duplicates matter there
+            expand(parent, false, &mut out, &mut cands, &mut next, &mut scratch);
         }
         for &x in &self.index.extra {
             let k = (x != c && broader(x)).then(|| self.kl_diag(c, x));
@@ -307,6 +346,17 @@ impl Searcher<'_> {
 
 /// Full covariance: candidates rescored with the exact KL after the pruned search.
 const FULL_RESCORE: usize = 8;
+
+/// A node whose best candidate clears the `better-parent` gain is searched again with a
+/// beam this many times `search_beam` wide: the finding names that candidate as the new
+/// parent, so it is worth a wider look (the extra work is spent only on such nodes).
+pub(super) const SUSPECT_BEAM_FACTOR: usize = 4;
+
+/// The `better-parent` gain test on KL(child ‖ parent) = `kp` and KL(child ‖ best) = `kb`:
+/// kp − kb > max(`better_parent_margin`, `better_parent_ratio` · kp).
+pub(super) fn clear_gain(cfg: &AuditConfig, kp: f64, kb: f64) -> bool {
+    kp - kb > cfg.better_parent_margin.max(cfg.better_parent_ratio * kp)
+}
 
 /// The candidate with the lowest score (ties: the lower row).
 fn lowest(cands: &[(PhraseId, f64)]) -> Option<(PhraseId, f64)> {
@@ -336,9 +386,7 @@ pub(super) fn suspicious(
     let inverted = g.log_det(i) - g.log_det(par as usize) > cfg.inversion_margin;
     let weak = s.containment.is_some_and(|c| c.value < cfg.containment_min);
     let better = match (placement[i].best, s.kl_to_parent) {
-        (Some((_, kb)), Some(kp)) => {
-            kp - kb > cfg.better_parent_margin.max(cfg.better_parent_ratio * kp)
-        }
+        (Some((_, kb)), Some(kp)) => clear_gain(cfg, kp, kb),
         _ => false,
     };
     inverted || weak || better
@@ -348,4 +396,132 @@ pub(super) fn suspicious(
 pub(super) fn needs_search(eff: &EffectiveTree, p: PhraseId) -> bool {
     let i = p as usize;
     eff.tree.is_placed(p) || (eff.alias_of[i].is_none() && !eff.excluded[i])
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::model::audit::tests::{of_rule, small_1d};
+    use crate::model::audit::{Auditor, Rule, audit};
+
+    /// Root N(0, 10⁴) with a N(0, 400) and b N(32, 20) under it, b1 N(21, 3) under b, z
+    /// N(−30, 4) under a, w N(60, 4) under b; the node c N(21, 0.5) (its parent is given to
+    /// [`edges`]) and, when `copy` is set, its copy c2 N(21.02, 0.5) beside it. For c, univariate
+    /// KL(N(μ0, s0) ‖ N(μ1, s1)) = ½ ln(s1 / s0) + (s0 + (μ0 − μ1)²) / (2 s1) − ½ (closed form,
+    /// docs/maths.md section 4): KL(c ‖ a) = ½ ln 800 + 441.5 / 800 − ½ = 3.3943 is below
+    /// KL(c ‖ b) = ½ ln 40 + 121.5 / 40 − ½ = 4.3819, so a beam of width 1 keeps a and never
+    /// looks under b, where b1 fits c far better: KL(c ‖ b1) = ½ ln 6 + 0.5 / 6 − ½ = 0.4792.
+    fn rows(copy: bool) -> Vec<(&'static str, f64, f64)> {
+        let mut rows = vec![
+            ("r", 0.0, 1e4),
+            ("a", 0.0, 400.0),
+            ("b", 32.0, 20.0),
+            ("b1", 21.0, 3.0),
+            ("z", -30.0, 4.0),
+            ("w", 60.0, 4.0),
+            ("c", 21.0, 0.5),
+        ];
+        if copy {
+            rows.push(("c2", 21.02, 0.5));
+        }
+        rows
+    }
+
+    fn edges(parent_of_c: &'static str, copy: bool) -> Vec<(&'static str, &'static str)> {
+        let mut e = vec![
+            ("a", "r"),
+            ("b", "r"),
+            ("b1", "b"),
+            ("z", "a"),
+            ("w", "b"),
+            ("c", parent_of_c),
+        ];
+        if copy {
+            e.push(("c2", parent_of_c));
+        }
+        e
+    }
+
+    fn narrow() -> AuditConfig {
+        AuditConfig {
+            exhaustive_limit: 0,
+            search_beam: 1,
+            ..AuditConfig::default()
+        }
+    }
+
+    #[test]
+    fn a_node_with_a_clear_gain_is_searched_again_with_a_wider_beam() {
+        let (t, g, eff) = small_1d(&rows(false), &edges("z", false));
+        let cfg = narrow();
+        // the broken twin (no second search) is `search` with the narrow beam: it names a
+        let aud = Auditor::new(&g, &t, &eff, &[], cfg.clone());
+        // the index of the tree as it is (the audit's repair would link c elsewhere)
+        let index = CandidateIndex::of(&eff);
+        let order = Order::of(&eff);
+        let s = Searcher {
+            g: &g,
+            engine: &aud.engine,
+            eff: &eff,
+            order: &order,
+            index: &index,
+            cfg: &cfg,
+            exhaustive: false,
+        };
+        let c = t.get("c").unwrap();
+        let (a, b1) = (t.get("a").unwrap(), t.get("b1").unwrap());
+        let first = s.search(c, 1).best.unwrap();
+        assert_eq!(first.0, a);
+        assert!((first.1 - 3.394_3).abs() < 1e-3, "{first:?}");
+        // KL(c ‖ z) = ½ ln 8 + 2601.5 / 8 − ½ = 325.73 clears the gain, so the wider search
+        // runs and finds b1
+        let best = s.place(c).best.unwrap();
+        assert_eq!(best.0, b1);
+        assert!((best.1 - 0.479_2).abs() < 1e-3, "{best:?}");
+        let r = audit(&g, &t, &eff, &[], &cfg);
+        let f: Vec<_> = of_rule(&r, Rule::BetterParent)
+            .into_iter()
+            .filter(|f| f.node == c)
+            .collect();
+        assert_eq!(f.len(), 1, "{f:#?}");
+        assert_eq!(
+            f[0].suggestion.as_ref().unwrap().target.as_deref(),
+            Some("b1")
+        );
+    }
+
+    #[test]
+    fn the_siblings_are_looked_at_even_when_the_beam_passes_them_by() {
+        // c and its copy under w (under b, which the beam of width 1 leaves aside); no
+        // better-parent gain counts (margin 10⁹), so only the sibling look finds the pair.
+        // Bhattacharyya (1943), equal variances s: D_B = Δμ² / (8 s) = 0.0004 / 4 = 10⁻⁴,
+        // BC = exp(−10⁻⁴) = 0.9999
+        let (t, g, eff) = small_1d(&rows(true), &edges("w", true));
+        let cfg = AuditConfig {
+            better_parent_margin: 1e9,
+            ..narrow()
+        };
+        let aud = Auditor::new(&g, &t, &eff, &[], cfg.clone());
+        // the index of the tree as it is (the audit's repair would link c elsewhere)
+        let index = CandidateIndex::of(&eff);
+        let order = Order::of(&eff);
+        let s = Searcher {
+            g: &g,
+            engine: &aud.engine,
+            eff: &eff,
+            order: &order,
+            index: &index,
+            cfg: &cfg,
+            exhaustive: false,
+        };
+        let (c, c2) = (t.get("c").unwrap(), t.get("c2").unwrap());
+        // the broken twin (no sibling look: the block after the beam loop deleted) finds no
+        // duplicate here: the beam goes r → a → z and never reaches w
+        let dups = s.search(c, 1).dups;
+        assert_eq!(dups.len(), 1, "{dups:?}");
+        assert_eq!(dups[0].0, c2);
+        assert!((dups[0].1 - (-1e-4f64).exp()).abs() < 1e-6, "{dups:?}");
+        let r = audit(&g, &t, &eff, &[], &cfg);
+        assert_eq!(of_rule(&r, Rule::NearDuplicate).len(), 1);
+    }
 }
