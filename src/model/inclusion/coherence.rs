@@ -736,7 +736,7 @@ mod tests {
     /// What a correct pass must deliver: a tree (each node once, no cycle) whose objective
     /// does not exceed the start's, here the brute-force optimum.
     fn check(after: &[Option<u32>]) -> Result<(), String> {
-        for v in 0..after.len() {
+        for (v, name) in NAMES.iter().enumerate().take(after.len()) {
             let mut x = v;
             for _ in 0..=after.len() {
                 match after[x] {
@@ -745,7 +745,7 @@ mod tests {
                 }
             }
             if x != 0 {
-                return Err(format!("{} does not reach the root", NAMES[v]));
+                return Err(format!("{name} does not reach the root"));
             }
         }
         let (before, now) = (objective(&start()), objective(after));

@@ -230,9 +230,9 @@ mod tests {
                     taken += 1;
                     assert_eq!(parent, full.parent);
                     assert_eq!(total.to_bits(), full.cost.to_bits());
-                    for v in 1..n {
+                    for (v, w) in cost_of.iter().enumerate().skip(1) {
                         let e = full.edge[v].unwrap();
-                        assert_eq!(cost_of[v].to_bits(), edges[e].cost.to_bits());
+                        assert_eq!(w.to_bits(), edges[e].cost.to_bits());
                     }
                 }
                 None => {
