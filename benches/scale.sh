@@ -80,7 +80,7 @@ PY
     # the release test profile (what `cargo test --release` built), in benchmark mode
     echo "| frame, tree fully expanded (benches/frame.rs with FRAME_PROJECT) | see below | |"
     FRAME_PROJECT="$dir" cargo test --release --locked --bench frame -- --bench --noplot 2>&1 |
-      grep -E "opened and audited|expanded|fully expanded|time:" | sed 's/^/    /'
+      grep -E "opened and audited|drew 3 frames|time:" | sed 's/^/    /'
   fi
   RUNS=$runs
 done
