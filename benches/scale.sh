@@ -29,8 +29,8 @@ echo "| step | median wall | peak RSS |"
 echo "|---|---|---|"
 SPECS=("10000 64 diag 3" "100000 64 diag 3" "5000 32 full 3")
 # the 1 000 000 × 64 row (issue 17, part 7; 4 cluster levels) runs late and only with
-# SCALE_MILLION=1: every step once (RUNS is ignored for it: a build takes minutes), and the
-# frame bench at that size (cargo bench, FRAME_PROJECT); needs ~1.2 GiB in $TMPDIR
+# SCALE_MILLION=1: the audit and the builds once each (they take minutes), the other steps
+# RUNS times, and the frame bench at that size (FRAME_PROJECT); needs ~1.2 GiB in $TMPDIR
 [ "${SCALE_MILLION:-0}" = 1 ] && SPECS+=("1000000 64 diag 4")
 for spec in "${SPECS[@]}"; do
   set -- $spec
@@ -40,7 +40,7 @@ for spec in "${SPECS[@]}"; do
   $BIN sample --synthetic "$n" --dim "$d" --branching 10 --depth "$depth" "${extra[@]}" --out "$dir" >/dev/null
   raw=$(( n * d * 4 * 2 )); [ "$kind" = full ] && raw=$(( n * d * 4 + n * d * d * 8 ))
   echo "| **$n × $d $kind** (raw embedding bytes $((raw / 1048576)) MiB) | | |"
-  runs=$RUNS; [ "$n" = 1000000 ] && RUNS=1
+  runs=$RUNS
   measure "load (info)" $BIN info "$dir"
   # 200 reparent edits (leaves between clusters), then apply
   ids=$(python3 -c "import json;p=json.load(open('$dir/tree.json'))['parent'];l=[c for c in p if c.startswith('leaf')];print(' '.join(l[:200]))")
@@ -60,7 +60,11 @@ json.dump({"format": "treewright-overrides", "version": 1, "edits": edits},
           open(f"{d}/overrides.json", "w"), indent=2)
 PY
     set -- $parents
-    measure "record one more edit (edit)" $BIN edit "$dir" reparent "${ids%% *}" "$1" --author scale
+    RUNS=1
+    for id in $(echo $ids | cut -d' ' -f1-"$runs"); do
+      measure "record one more edit (edit)" $BIN edit "$dir" reparent "$id" "$1" --author scale
+    done
+    RUNS=$runs
   else
     set -- $parents; np=$#
     i=0
@@ -70,17 +74,18 @@ PY
     done
   fi
   measure "apply ($(python3 -c "import json;print(len(json.load(open('$dir/overrides.json'))['edits']))") edits)" $BIN apply "$dir" --out "$WORK/eff.json"
+  [ "$n" = 1000000 ] && RUNS=1
   measure "full audit" $BIN audit "$dir" --format json --out "$WORK/audit.json"
   measure "build" $BIN build "$dir" --out "$WORK/tree.json" --report "$WORK/report.json"
   if [ "$n" = 1000000 ]; then
     root=$(python3 -c "import json;print(json.load(open('$dir/tree.json'))['root'])")
     measure "divisive build" $BIN build "$dir" --method divisive --out "$WORK/tree-div.json" --report "$WORK/report-div.json"
-    measure "suggestion for the root" $BIN suggest "$dir" "$root" --json
+    RUNS=$runs measure "suggestion for the root" $BIN suggest "$dir" "$root" --json
     rm -f "$WORK"/tree*.json "$WORK"/report*.json "$WORK/eff.json" "$WORK/audit.json"
     # the release test profile (what `cargo test --release` built), in benchmark mode
     echo "| frame, tree fully expanded (benches/frame.rs with FRAME_PROJECT) | see below | |"
     FRAME_PROJECT="$dir" cargo test --release --locked --bench frame -- --bench --noplot 2>&1 |
-      grep -E "opened and audited|expanded|fully expanded|time:" | sed 's/^/    /'
+      grep -E "opened and audited|drew 3 frames|time:" | sed 's/^/    /'
   fi
   RUNS=$runs
 done
