@@ -316,3 +316,22 @@ fn two_renames_of_one_label_in_another_language_conflict_in_a_merge() {
     assert_eq!(m.conflicts.len(), 1, "{:?}", m.conflicts);
     assert_eq!(m.conflicts[0].kinds, vec!["label".to_string()]);
 }
+
+/// The tree and picker search (`EffectiveTree::any_label_contains`) matches a label in any
+/// language and nothing else; the labels are those of the sample's phrases.json (read by
+/// eye: "Gießkanne", "じょうろ", "多肉植物"). Added for two mutants cargo-mutants reported
+/// missed (the function replaced by `true` and by `false`).
+#[test]
+fn search_matches_a_label_in_any_language_and_nothing_else() {
+    use treewright::model::lang::fold;
+    let ws = Workspace::open(&sample()).unwrap();
+    let eff = ws.effective().unwrap();
+    let t = &ws.project.phrases;
+    let can = t.get("watering-can").unwrap();
+    let succulents = t.get("succulents").unwrap();
+    assert!(eff.any_label_contains(can, &fold("KANNE", None)), "German label, any case");
+    assert!(eff.any_label_contains(can, &fold("じょう", None)), "Japanese label");
+    assert!(eff.any_label_contains(succulents, &fold("植物", None)));
+    assert!(!eff.any_label_contains(can, &fold("植物", None)), "another phrase's label");
+    assert!(!eff.any_label_contains(succulents, &fold("no such label", None)));
+}
