@@ -191,15 +191,29 @@ impl NavIndex {
         self.geo.extend_from_slice(&w);
         if hi - lo > LEAF && ld_hi - ld_lo > (0.5 * d as f64).max(4.0) {
             // generality spread wide (a broad member would loosen every bound of the
-            // ball): cut at the median of ln det Σ
-            let mid = (hi - lo) / 2;
-            self.order[lo..hi].select_nth_unstable_by(mid, |&x, &y| {
-                g.log_det(x as usize)
-                    .total_cmp(&g.log_det(y as usize))
-                    .then(x.cmp(&y))
-            });
-            let l = self.split(g, diag_ld, lo, lo + mid);
-            let r = self.split(g, diag_ld, lo + mid, hi);
+            // ball): cut at the middle of the range of ln det Σ, so that members of one
+            // generality stay together (a cut at the median would slice a band of
+            // equally general members, and every query would search each slice); at the
+            // median when that leaves one side with less than 1/LOPSIDED of the members
+            let cut = 0.5 * (ld_lo + ld_hi);
+            let members = &self.order[lo..hi];
+            let (front, back): (Vec<PhraseId>, Vec<PhraseId>) =
+                members.iter().partition(|&&x| g.log_det(x as usize) < cut);
+            let mid = if front.len().min(back.len()) * LOPSIDED >= members.len() {
+                self.order[lo..lo + front.len()].copy_from_slice(&front);
+                self.order[lo + front.len()..hi].copy_from_slice(&back);
+                lo + front.len()
+            } else {
+                let mid = (hi - lo) / 2;
+                self.order[lo..hi].select_nth_unstable_by(mid, |&x, &y| {
+                    g.log_det(x as usize)
+                        .total_cmp(&g.log_det(y as usize))
+                        .then(x.cmp(&y))
+                });
+                lo + mid
+            };
+            let l = self.split(g, diag_ld, lo, mid);
+            let r = self.split(g, diag_ld, mid, hi);
             self.balls[me as usize].kids = Some((l, r));
         } else if hi - lo > LEAF {
             // two groups of near members (a few rounds of 2-means from two far-apart
@@ -373,6 +387,43 @@ impl NavIndex {
         let wanted = |kl: Option<f64>, dup: bool, top: &BinaryHeap<Key>, best: f64| {
             dup || kl.is_some_and(|lb| lb <= threshold(top, best))
         };
+        // a first eligible candidate, so that the threshold is finite from the start (the
+        // nearest balls by bound are mostly of narrower members, which cannot be one):
+        // walk down the balls that can hold one, the lower KL bound first, and score the
+        // eligible members of the leaf ball reached. `best` stays the KL of a real
+        // candidate, which the search below also reaches (its bound is below its KL).
+        let mut bi = 0usize;
+        loop {
+            let ball = &self.balls[bi];
+            if ball.ld_hi <= q.min_ld {
+                break;
+            }
+            match ball.kids {
+                Some((l, r)) => {
+                    let bound = |k: u32| {
+                        let b = &self.balls[k as usize];
+                        if b.ld_hi <= q.min_ld {
+                            f64::INFINITY
+                        } else {
+                            self.bounds(k as usize, g, q).0.unwrap_or(f64::INFINITY)
+                        }
+                    };
+                    let (bl, br) = (bound(l), bound(r));
+                    if bl.min(br) == f64::INFINITY {
+                        break;
+                    }
+                    bi = if bl <= br { l } else { r } as usize;
+                }
+                None => {
+                    for &x in &self.order[ball.lo as usize..ball.hi as usize] {
+                        if x != q.c && g.log_det(x as usize) > q.min_ld && (q.eligible)(x) {
+                            best = best.min((q.kl)(x));
+                        }
+                    }
+                    break;
+                }
+            }
+        }
         // nearest first: a min-heap on the KL bound (duplicate-only balls last)
         let mut heap: BinaryHeap<(Reverse<Key>, u32, bool)> = BinaryHeap::new();
         let (kl0, dup0) = self.bounds(0, g, q);
