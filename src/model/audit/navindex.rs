@@ -3,12 +3,14 @@
 //!
 //! The index is a ball tree over the children's means, built on demand (the first search
 //! that reaches the node builds it; later searches share it): a range of children whose
-//! ln det Σ spreads over more than max(4, d/2) nats is split at the median of ln det Σ (one
-//! broad member would loosen every bound of its ball), any other range by projecting the
-//! means on the line between two far-apart members (a member farthest from the first, then
-//! the member farthest from that one) and cutting at the median, down to leaves of at most
-//! [`LEAF`] children. Building costs O(m log m · d) for m
-//! children.
+//! ln det Σ spreads over more than max(4, d/2) nats is cut at the middle of that range (at
+//! its median when one side would be lopsided; one broad member would loosen every bound
+//! of its ball, and a cut through a band of equally general members would make every
+//! query search each slice), any other range into two groups of near members by a few
+//! rounds of 2-means seeded with two far-apart members (a member farthest from the first,
+//! then the member farthest from that one; when the groups come out lopsided, at the
+//! median of the projection of the means on the line between the two), down to leaves of
+//! at most [`LEAF`] children. Building costs O(m log m · d) for m children.
 //!
 //! Every ball keeps, over its members x: the largest variance per coordinate v̂ₖ, the range
 //! of ln det Σx, the centre of the means μ̄ and the radius R = maxₓ ‖μx − μ̄‖_w in the
@@ -27,7 +29,11 @@
 //! children seen so far and the lowest KL of an eligible candidate so far. A skipped child
 //! therefore can neither enter the beam (at least `search_beam` children of the same node
 //! score strictly lower), nor be the best candidate (one scores strictly lower), nor be a
-//! duplicate: the search returns exactly what scoring every child returns. The bounds are
+//! duplicate: the search returns exactly what scoring every child returns. Before that
+//! walk, one greedy descent through the balls that can hold an eligible candidate scores
+//! the eligible members of one leaf ball, so the threshold is finite from the start. When
+//! no node of the search's level has grandchildren (a flat level), the beam adds nothing
+//! to the search and only the best candidate and the duplicates bound the walk. The bounds are
 //! compared with a relative slack of 10⁻⁴ (plus 10⁻⁶ nats) that covers the `f32` rounding
 //! of the KL kernel.
 
