@@ -104,3 +104,30 @@ if python3 -c "import numpy, pyarrow" 2>/dev/null; then
     rm -rf "$WORK/fit" "$WORK/occ-$rows"
   done
 fi
+
+# Flat trees (issue 17, part 6): N phrases of `sample --synthetic N --dim 64 --branching 10
+# --depth 3`, every one then placed directly under the root (`misfit.py flat`, needs numpy);
+# the full audit's median wall time and CPU time (user + sys, steadier than the wall time
+# on a shared machine) and the CPU ratio to the row above (n log n: ≈ 2.1–2.3 per
+# doubling). Skip with SCALE_FLAT=0.
+if [ "${SCALE_FLAT:-1}" = 1 ] && python3 -c "import numpy" 2>/dev/null; then
+  echo "| **flat tree** (all under the root, × 64 diag) | median wall / CPU | peak RSS / CPU ratio per doubling |"
+  prev=""
+  for n in 5000 10000 20000 40000; do
+    dir="$WORK/flat-$n"
+    $BIN sample --synthetic "$n" --dim 64 --branching 10 --depth 3 --out "$dir" >/dev/null
+    python3 benches/misfit.py flat "$dir"
+    walls=() cpus=() mem=0
+    for _ in $(seq "$RUNS"); do
+      /usr/bin/time -v $BIN audit "$dir" --format json --out "$WORK/audit.json" >/dev/null 2>"$WORK/time.txt" || { cat "$WORK/time.txt" >&2; exit 1; }
+      walls+=("$(awk -F': ' '/Elapsed \(wall clock\)/ {split($2,t,":"); s=0; for(i=1;i<=length(t);i++) s=s*60+t[i]; print s}' "$WORK/time.txt")")
+      cpus+=("$(awk -F': ' '/User time/ {u=$2} /System time/ {s=$2} END {printf "%.2f", u+s}' "$WORK/time.txt")")
+      m=$(awk -F': ' '/Maximum resident set size/ {print $2}' "$WORK/time.txt"); [ "$m" -gt "$mem" ] && mem=$m
+    done
+    cpu=$(printf '%s\n' "${cpus[@]}" | median)
+    ratio="—"; [ -n "$prev" ] && ratio=$(awk -v a="$cpu" -v b="$prev" 'BEGIN {printf "%.2f×", a / b}')
+    printf '| full audit, %s under the root | %s s / %s s | %s MiB / %s |\n' "$n" "$(printf '%s\n' "${walls[@]}" | median)" "$cpu" "$((mem / 1024))" "$ratio"
+    prev=$cpu
+    rm -rf "$dir"
+  done
+fi

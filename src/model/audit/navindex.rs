@@ -3,12 +3,14 @@
 //!
 //! The index is a ball tree over the children's means, built on demand (the first search
 //! that reaches the node builds it; later searches share it): a range of children whose
-//! ln det Σ spreads over more than max(4, d/2) nats is split at the median of ln det Σ (one
-//! broad member would loosen every bound of its ball), any other range by projecting the
-//! means on the line between two far-apart members (a member farthest from the first, then
-//! the member farthest from that one) and cutting at the median, down to leaves of at most
-//! [`LEAF`] children. Building costs O(m log m · d) for m
-//! children.
+//! ln det Σ spreads over more than max(4, d/2) nats is cut at the middle of that range (at
+//! its median when one side would be lopsided; one broad member would loosen every bound
+//! of its ball, and a cut through a band of equally general members would make every
+//! query search each slice), any other range into two groups of near members by a few
+//! rounds of 2-means seeded with two far-apart members (a member farthest from the first,
+//! then the member farthest from that one; when the groups come out lopsided, at the
+//! median of the projection of the means on the line between the two), down to leaves of
+//! at most [`LEAF`] children. Building costs O(m log m · d) for m children.
 //!
 //! Every ball keeps, over its members x: the largest variance per coordinate v̂ₖ, the range
 //! of ln det Σx, the centre of the means μ̄ and the radius R = maxₓ ‖μx − μ̄‖_w in the
@@ -27,7 +29,11 @@
 //! children seen so far and the lowest KL of an eligible candidate so far. A skipped child
 //! therefore can neither enter the beam (at least `search_beam` children of the same node
 //! score strictly lower), nor be the best candidate (one scores strictly lower), nor be a
-//! duplicate: the search returns exactly what scoring every child returns. The bounds are
+//! duplicate: the search returns exactly what scoring every child returns. Before that
+//! walk, one greedy descent through the balls that can hold an eligible candidate scores
+//! the eligible members of one leaf ball, so the threshold is finite from the start. When
+//! no node of the search's level has grandchildren (a flat level), the beam adds nothing
+//! to the search and only the best candidate and the duplicates bound the walk. The bounds are
 //! compared with a relative slack of 10⁻⁴ (plus 10⁻⁶ nats) that covers the `f32` rounding
 //! of the KL kernel.
 
@@ -191,15 +197,29 @@ impl NavIndex {
         self.geo.extend_from_slice(&w);
         if hi - lo > LEAF && ld_hi - ld_lo > (0.5 * d as f64).max(4.0) {
             // generality spread wide (a broad member would loosen every bound of the
-            // ball): cut at the median of ln det Σ
-            let mid = (hi - lo) / 2;
-            self.order[lo..hi].select_nth_unstable_by(mid, |&x, &y| {
-                g.log_det(x as usize)
-                    .total_cmp(&g.log_det(y as usize))
-                    .then(x.cmp(&y))
-            });
-            let l = self.split(g, diag_ld, lo, lo + mid);
-            let r = self.split(g, diag_ld, lo + mid, hi);
+            // ball): cut at the middle of the range of ln det Σ, so that members of one
+            // generality stay together (a cut at the median would slice a band of
+            // equally general members, and every query would search each slice); at the
+            // median when that leaves one side with less than 1/LOPSIDED of the members
+            let cut = 0.5 * (ld_lo + ld_hi);
+            let members = &self.order[lo..hi];
+            let (front, back): (Vec<PhraseId>, Vec<PhraseId>) =
+                members.iter().partition(|&&x| g.log_det(x as usize) < cut);
+            let mid = if front.len().min(back.len()) * LOPSIDED >= members.len() {
+                self.order[lo..lo + front.len()].copy_from_slice(&front);
+                self.order[lo + front.len()..hi].copy_from_slice(&back);
+                lo + front.len()
+            } else {
+                let mid = (hi - lo) / 2;
+                self.order[lo..hi].select_nth_unstable_by(mid, |&x, &y| {
+                    g.log_det(x as usize)
+                        .total_cmp(&g.log_det(y as usize))
+                        .then(x.cmp(&y))
+                });
+                lo + mid
+            };
+            let l = self.split(g, diag_ld, lo, mid);
+            let r = self.split(g, diag_ld, mid, hi);
             self.balls[me as usize].kids = Some((l, r));
         } else if hi - lo > LEAF {
             // two groups of near members (a few rounds of 2-means from two far-apart
@@ -373,6 +393,43 @@ impl NavIndex {
         let wanted = |kl: Option<f64>, dup: bool, top: &BinaryHeap<Key>, best: f64| {
             dup || kl.is_some_and(|lb| lb <= threshold(top, best))
         };
+        // a first eligible candidate, so that the threshold is finite from the start (the
+        // nearest balls by bound are mostly of narrower members, which cannot be one):
+        // walk down the balls that can hold one, the lower KL bound first, and score the
+        // eligible members of the leaf ball reached. `best` stays the KL of a real
+        // candidate, which the search below also reaches (its bound is below its KL).
+        let mut bi = 0usize;
+        loop {
+            let ball = &self.balls[bi];
+            if ball.ld_hi <= q.min_ld {
+                break;
+            }
+            match ball.kids {
+                Some((l, r)) => {
+                    let bound = |k: u32| {
+                        let b = &self.balls[k as usize];
+                        if b.ld_hi <= q.min_ld {
+                            f64::INFINITY
+                        } else {
+                            self.bounds(k as usize, g, q).0.unwrap_or(f64::INFINITY)
+                        }
+                    };
+                    let (bl, br) = (bound(l), bound(r));
+                    if bl.min(br) == f64::INFINITY {
+                        break;
+                    }
+                    bi = if bl <= br { l } else { r } as usize;
+                }
+                None => {
+                    for &x in &self.order[ball.lo as usize..ball.hi as usize] {
+                        if x != q.c && g.log_det(x as usize) > q.min_ld && (q.eligible)(x) {
+                            best = best.min((q.kl)(x));
+                        }
+                    }
+                    break;
+                }
+            }
+        }
         // nearest first: a min-heap on the KL bound (duplicate-only balls last)
         let mut heap: BinaryHeap<(Reverse<Key>, u32, bool)> = BinaryHeap::new();
         let (kl0, dup0) = self.bounds(0, g, q);
