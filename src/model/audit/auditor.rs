@@ -139,15 +139,18 @@ impl Auditor {
         }
         // every node that needs a search, written in place (no second n-long vector)
         let mut placement = vec![Placement::default(); n];
+        // with an index repair to come, every node that clears the better-parent gain is
+        // searched again after it, so the wider search waits for that pass
+        let repair = !exhaustive && fit.fits;
         {
             let s = searcher!();
             placement.par_iter_mut().enumerate().for_each(|(p, slot)| {
                 if needs_search(eff, p as PhraseId) {
-                    *slot = s.place(p as PhraseId);
+                    *slot = s.place_with(p as PhraseId, !repair);
                 }
             });
         }
-        if !exhaustive && fit.fits {
+        if repair {
             // repair the index (skipped when the tree as a whole does not fit: nearly
             // every node would be suspicious and the repaired links would make the
             // search quadratic, for a hierarchy that means nothing; treefit.rs): a suspicious node is also reachable under its best candidate,

@@ -167,9 +167,17 @@ impl Searcher<'_> {
     }
 
     pub(super) fn place(&self, c: PhraseId) -> Placement {
+        self.place_with(c, true)
+    }
+
+    /// [`Searcher::place`], with the wider second search only when `widen` (the full
+    /// audit's first pass leaves it to the pass after the index repair, which searches
+    /// every node that clears the gain again).
+    pub(super) fn place_with(&self, c: PhraseId, widen: bool) -> Placement {
         let mut out = self.search(c, self.cfg.search_beam);
         let kp = self.eff.tree.parent(c).map(|par| self.kl_to(c, par));
         if let (Some((_, kb)), Some(kp)) = (out.best, kp)
+            && widen
             && !self.exhaustive
             && clear_gain(self.cfg, kp, kb)
         {
