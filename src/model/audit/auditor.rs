@@ -21,7 +21,9 @@ struct Snapshot {
     placed: Vec<bool>,
     review: Vec<ReviewStatus>,
     pinned: Vec<bool>,
-    labels: Vec<String>,
+    /// Shared between copies of the auditor (a copy for a preview costs no 100 000 string
+    /// copies); copied on the first rename.
+    labels: std::sync::Arc<Vec<String>>,
 }
 
 impl Snapshot {
@@ -32,7 +34,7 @@ impl Snapshot {
             placed,
             review: eff.review.clone(),
             pinned: eff.pinned.clone(),
-            labels: eff.labels.clone(),
+            labels: std::sync::Arc::new(eff.labels.clone()),
         }
     }
 }
@@ -53,8 +55,10 @@ fn tree_arrays(eff: &EffectiveTree) -> (Vec<PhraseId>, Vec<bool>) {
 #[derive(Debug, Clone)]
 pub struct Auditor {
     pub(super) cfg: AuditConfig,
-    pub(super) engine: StatsEngine,
-    pub(super) index: CandidateIndex,
+    /// Never changed after [`Auditor::new`]: shared between copies of the auditor.
+    pub(super) engine: std::sync::Arc<StatsEngine>,
+    /// Never changed after [`Auditor::new`]: shared between copies of the auditor.
+    pub(super) index: std::sync::Arc<CandidateIndex>,
     pub(super) placement: Vec<Placement>,
     snapshot: Snapshot,
     pub(super) report: AuditReport,
@@ -186,8 +190,8 @@ impl Auditor {
         Auditor {
             snapshot: Snapshot::of(eff),
             cfg,
-            engine,
-            index,
+            engine: std::sync::Arc::new(engine),
+            index: std::sync::Arc::new(index),
             placement,
             report,
             conf,
@@ -348,7 +352,7 @@ impl Auditor {
             if self.snapshot.labels[i] != eff.labels[i] {
                 dirty[i] = true;
                 renamed[i] = true;
-                self.snapshot.labels[i].clone_from(&eff.labels[i]);
+                std::sync::Arc::make_mut(&mut self.snapshot.labels)[i].clone_from(&eff.labels[i]);
             }
         }
         for i in 0..n {

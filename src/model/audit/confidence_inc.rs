@@ -199,6 +199,16 @@ impl Clone for Scratch {
     }
 }
 
+/// A value that a copy of its owner does not take along (it starts from the default).
+#[derive(Debug, Default)]
+struct NotCopied<T: Default>(T);
+
+impl<T: Default> Clone for NotCopied<T> {
+    fn clone(&self) -> Self {
+        NotCopied(T::default())
+    }
+}
+
 /// The incremental state (see the module documentation).
 #[derive(Debug, Clone, Default)]
 pub(super) struct IncConfidence {
@@ -207,9 +217,10 @@ pub(super) struct IncConfidence {
     by12: Sorted,
     by2: Sorted,
     by3: Sorted,
-    /// The confidences of the nodes listed in `filled` (the others untested: None, p 1).
-    out: Confidences,
-    filled: Vec<PhraseId>,
+    /// The confidences of the nodes listed in `filled` (the others untested: None, p 1);
+    /// rebuilt by the next fill, so a copy of the auditor does not copy them.
+    out: NotCopied<Confidences>,
+    filled: NotCopied<Vec<PhraseId>>,
     /// `out` was filled by the full computation (every entry may be set).
     out_full: bool,
     scratch: Scratch,
@@ -316,7 +327,7 @@ impl IncConfidence {
 
     /// Clear the entries of the last fill.
     fn reset_out(&mut self, n: usize) {
-        let out = &mut self.out;
+        let out = &mut self.out.0;
         if self.out_full || out.misplaced.len() != n {
             *out = Confidences {
                 misplaced: vec![None; n],
@@ -326,7 +337,7 @@ impl IncConfidence {
             };
             self.out_full = false;
         } else {
-            for &p in &self.filled {
+            for &p in &self.filled.0 {
                 let p = p as usize;
                 out.misplaced[p] = None;
                 out.inverted[p] = None;
@@ -334,7 +345,7 @@ impl IncConfidence {
                 out.p_inverted[p] = 1.0;
             }
         }
-        self.filled.clear();
+        self.filled.0.clear();
     }
 
     /// The confidences [`Confidences::of`] gives, correct at the nodes of the placement
@@ -352,9 +363,9 @@ impl IncConfidence {
             .iter()
             .all(|a| a.finite())
         {
-            self.out = Confidences::of(eff, stats, placement);
+            self.out.0 = Confidences::of(eff, stats, placement);
             self.out_full = true;
-            return &self.out;
+            return &self.out.0;
         }
         let sc = &mut self.scratch;
         sc.need.clear();
@@ -369,7 +380,7 @@ impl IncConfidence {
                 need3 |= fam3;
                 if !sc.need[f.node as usize] {
                     sc.need[f.node as usize] = true;
-                    self.filled.push(f.node);
+                    self.filled.0.push(f.node);
                 }
             }
         }
@@ -380,10 +391,10 @@ impl IncConfidence {
             self.fill_inverted();
         }
         let sc = &mut self.scratch;
-        for &p in &self.filled {
+        for &p in &self.filled.0 {
             sc.need[p as usize] = false;
         }
-        &self.out
+        &self.out.0
     }
 
     /// The misplacement test (family 1 of [`Confidences::of`]).
@@ -426,7 +437,7 @@ impl IncConfidence {
             s.z.push(z);
             s.list.push(p as PhraseId);
         }
-        let out = &mut self.out;
+        let out = &mut self.out.0;
         bh_needed(s, |node, p, q| {
             out.misplaced[node as usize] = Some(1.0 - q);
             out.p_misplaced[node as usize] = p;
@@ -446,7 +457,7 @@ impl IncConfidence {
             s.z.push((s3 - 0.0) / sc3);
             s.list.push(p as PhraseId);
         }
-        let out = &mut self.out;
+        let out = &mut self.out.0;
         bh_needed(s, |node, p, q| {
             out.inverted[node as usize] = Some(1.0 - q);
             out.p_inverted[node as usize] = p;

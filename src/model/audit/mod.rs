@@ -75,7 +75,11 @@
 //! offered to the searches of its new siblings; other nodes see it at the next full audit.
 //! Depth, subtree sizes, histograms and the finding list are rebuilt in O(n): the findings
 //! of [`Rule::node_local`] rules are rerun only for the nodes whose figures, search, review,
-//! pin or labels (or their partner's label) changed and kept for the others; every other
+//! pin or labels (or their partner's label) changed and kept for the others; so are the
+//! findings of the placement rules ([`Rule::node_local_but_confidence`]), whose confidence,
+//! severity and evidence are stamped again on every update from the incremental confidence
+//! (`confidence_inc.rs`: sorted scores updated by the changed nodes only, p- and q-values only
+//! for the nodes with placement findings, identical to a full computation); every other
 //! rule is rerun in full. A different phrase table triggers a full audit.
 
 use serde::{Deserialize, Serialize};
