@@ -329,9 +329,18 @@ fn search_matches_a_label_in_any_language_and_nothing_else() {
     let t = &ws.project.phrases;
     let can = t.get("watering-can").unwrap();
     let succulents = t.get("succulents").unwrap();
-    assert!(eff.any_label_contains(can, &fold("KANNE", None)), "German label, any case");
-    assert!(eff.any_label_contains(can, &fold("じょう", None)), "Japanese label");
+    assert!(
+        eff.any_label_contains(can, &fold("KANNE", None)),
+        "German label, any case"
+    );
+    assert!(
+        eff.any_label_contains(can, &fold("じょう", None)),
+        "Japanese label"
+    );
     assert!(eff.any_label_contains(succulents, &fold("植物", None)));
-    assert!(!eff.any_label_contains(can, &fold("植物", None)), "another phrase's label");
+    assert!(
+        !eff.any_label_contains(can, &fold("植物", None)),
+        "another phrase's label"
+    );
     assert!(!eff.any_label_contains(succulents, &fold("no such label", None)));
 }

@@ -304,7 +304,14 @@ impl Searcher<'_> {
             next.clear();
             let beam_matters = beam.iter().any(|&b| self.index.grand[b as usize]);
             for &b in &beam {
-                expand(b, beam_matters, &mut out, &mut cands, &mut next, &mut scratch);
+                expand(
+                    b,
+                    beam_matters,
+                    &mut out,
+                    &mut cands,
+                    &mut next,
+                    &mut scratch,
+                );
             }
             expanded.extend_from_slice(&beam);
             // keep the `search_beam` lowest (ties by row); a node reachable twice (repaired
