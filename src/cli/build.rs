@@ -181,6 +181,9 @@ pub fn run(args: &BuildArgs) -> Result<(), CliError> {
     // tree file and the manifest looked like before the build
     let mut ws = Workspace::from_project(project, OverrideLayer::new(), AuditMode::Off)?;
     let built = if args.out.is_none() {
+        // the effective tree plays no part in the build and is made again when the new
+        // base is installed: free it for the build (less peak memory)
+        ws.eff = None;
         let built = build_with(&ws.project, inclusion.as_ref(), &params)?;
         ws.set_base_reporting(&built.tree_file, Some((&built.report, &report_path)))?;
         built

@@ -24,7 +24,7 @@ use super::builder::BuildReport;
 use super::edit::{Edit, EditRecord, ReviewStatus};
 use super::effective::{ApplyProblem, EffectiveTree};
 use super::export::{ExportError, Format};
-use super::fsutil::{atomic_write, to_json_pretty};
+use super::fsutil::{atomic_write, atomic_write_with};
 use super::lock::{LockError, ProjectLock};
 use super::overrides::{self, OverrideError, OverrideLayer};
 use super::project::{LoadError, MANIFEST_NAME};
@@ -775,13 +775,19 @@ impl Workspace {
         }
         atomic_write(&path, &bytes, true).map_err(write_err(&path))?;
         self.disk_tree = Some(Sha256::digest(&bytes).into());
+        drop(bytes);
         // a project without a tree entry learns where its tree is, so it loads next time
         self.project
             .record_tree_in_manifest()
             .map_err(write_err(&manifest))?;
         self.disk_manifest = disk_print(&manifest).map_err(write_err(&manifest))?;
         if let Some((r, rpath)) = report {
-            atomic_write(rpath, &to_json_pretty(r), false).map_err(write_err(rpath))?;
+            // streamed: the bytes of `to_json_pretty`, without the whole text in memory
+            atomic_write_with(rpath, false, |w| {
+                serde_json::to_writer_pretty(&mut *w, r)?;
+                w.write_all(b"\n")
+            })
+            .map_err(write_err(rpath))?;
         }
         drop(lock);
         self.project.tree = Some(tree);
