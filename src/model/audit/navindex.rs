@@ -600,8 +600,10 @@ mod tests {
         small_tree(d, &means, &vars, &parent)
     }
 
-    fn same_with_and_without_index(n: usize, clustered: bool, flat: bool, seed: u64) {
-        let (g, eff) = project(n, 8, clustered, flat, seed);
+    /// Phrases `n0`, `n1`, … and an audit configuration that uses the candidate index for
+    /// every node (no exhaustive search), for comparing the audit with and without the
+    /// navigation indexes.
+    fn numbered_table_and_cfg(n: usize) -> (crate::model::phrase::PhraseTable, AuditConfig) {
         let t = crate::model::phrase::PhraseTable::from_records(
             &(0..n)
                 .map(|i| crate::model::phrase::PhraseRecord {
@@ -616,6 +618,12 @@ mod tests {
             samples: 64,
             ..AuditConfig::default()
         };
+        (t, cfg)
+    }
+
+    fn same_with_and_without_index(n: usize, clustered: bool, flat: bool, seed: u64) {
+        let (g, eff) = project(n, 8, clustered, flat, seed);
+        let (t, cfg) = numbered_table_and_cfg(n);
         // a low threshold so the two-level projects' nodes are indexed too
         let with = Auditor::with_nav_min(&g, &t, &eff, &[], cfg.clone(), 16);
         let without = Auditor::with_nav_min(&g, &t, &eff, &[], cfg, usize::MAX);
@@ -682,20 +690,7 @@ mod tests {
     /// (placements and findings).
     fn index_agrees(n: usize, mixed: bool, seed: u64, bias: f64) -> bool {
         let (g, eff) = wide_tree(n, mixed, seed);
-        let t = crate::model::phrase::PhraseTable::from_records(
-            &(0..n)
-                .map(|i| crate::model::phrase::PhraseRecord {
-                    id: Some(format!("n{i}")),
-                    label: format!("node {i}"),
-                })
-                .collect::<Vec<_>>(),
-        )
-        .unwrap();
-        let cfg = AuditConfig {
-            exhaustive_limit: 0,
-            samples: 64,
-            ..AuditConfig::default()
-        };
+        let (t, cfg) = numbered_table_and_cfg(n);
         let with = Auditor::with_nav_opts(&g, &t, &eff, &[], cfg.clone(), 16, bias);
         let without = Auditor::with_nav_min(&g, &t, &eff, &[], cfg, usize::MAX);
         assert!(

@@ -469,7 +469,8 @@ mod tests {
     fn a_node_with_a_clear_gain_is_searched_again_with_a_wider_beam() {
         let (t, g, eff) = small_1d(&rows(false), &edges("z", false));
         let cfg = narrow();
-        // the broken twin (no second search) is `search` with the narrow beam: it names a
+        // the broken twin (no second search) is `search` with the narrow beam: it names a,
+        // not the better b1 (`first` below)
         let aud = Auditor::new(&g, &t, &eff, &[], cfg.clone());
         // the index of the tree as it is (the audit's repair would link c elsewhere)
         let index = CandidateIndex::of(&eff);
