@@ -507,23 +507,20 @@ fn bh_needed(s: &mut Scratch, mut emit: impl FnMut(PhraseId, f64, f64)) {
             }
         }
         let worst = s.q[r_max - 1];
-        let done = match out_max {
-            None => true,
-            Some(zo) => {
-                let po = upper_tail(zo);
-                let lb = po * (1.0 - 1e-9);
-                po >= f64::MIN_POSITIVE && lb > s.prefix[k - 1].0 && worst <= lb
-            }
-        };
-        if done {
+        // the tests left out of the prefix (if any) cannot change the q-values needed: done
+        let undecided = out_max.filter(|&zo| {
+            let po = upper_tail(zo);
+            let lb = po * (1.0 - 1e-9);
+            !(po >= f64::MIN_POSITIVE && lb > s.prefix[k - 1].0 && worst <= lb)
+        });
+        let Some(zo) = undecided else {
             for (rank, &(p, i)) in s.prefix.iter().enumerate() {
                 if s.need_pos[i] {
                     emit(s.list[i], p, s.q[rank]);
                 }
             }
             return;
-        }
-        let zo = out_max.expect("not done: tests left out");
+        };
         // lower the cut to where the tail is at least twice the largest q needed
         let target = (2.0 * worst).max(1e-290);
         cut = if target >= 0.5 || round >= 8 {
