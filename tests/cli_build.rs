@@ -320,3 +320,56 @@ fn the_default_method_is_inclusion_unless_a_divisive_option_is_given() {
         .unwrap();
     assert_eq!(out.status.code(), Some(2));
 }
+
+/// Building into the project (which installs the tree through the workspace, dropping the
+/// build's tree and report as soon as they are written) writes the same bytes and prints
+/// the same summary as building to chosen files, for both methods, also when an earlier
+/// build's report is in the folder (common practice, no source: the two paths are one
+/// build with two ways of writing it).
+#[test]
+fn building_into_the_project_writes_what_building_to_files_writes() {
+    for method in ["inclusion", "divisive"] {
+        let d = tempfile::tempdir().unwrap();
+        write_project(d.path(), true);
+        let outside = tempfile::tempdir().unwrap();
+        let (t, r) = (outside.path().join("t.json"), outside.path().join("r.json"));
+        let to_files = treewright()
+            .args(["build", "--seed", "3", "--method", method])
+            .arg(d.path())
+            .arg("--out")
+            .arg(&t)
+            .arg("--report")
+            .arg(&r)
+            .output()
+            .unwrap();
+        assert!(to_files.status.success(), "{method}");
+        for round in 0..2 {
+            // the second round finds the first round's report in the folder
+            let into = treewright()
+                .args(["build", "--seed", "3", "--method", method])
+                .arg(d.path())
+                .output()
+                .unwrap();
+            assert!(into.status.success(), "{method} round {round}");
+            assert_eq!(
+                fs::read(d.path().join("tree.json")).unwrap(),
+                fs::read(&t).unwrap(),
+                "{method} round {round}: tree"
+            );
+            assert_eq!(
+                fs::read(d.path().join("build-report.json")).unwrap(),
+                fs::read(&r).unwrap(),
+                "{method} round {round}: report"
+            );
+            let first = |o: &std::process::Output| {
+                String::from_utf8_lossy(&o.stdout)
+                    .lines()
+                    .next()
+                    .unwrap_or_default()
+                    .to_string()
+            };
+            assert_eq!(first(&into), first(&to_files), "{method} round {round}");
+            assert!(first(&into).starts_with("built a tree of 12 phrases"));
+        }
+    }
+}

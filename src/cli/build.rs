@@ -180,13 +180,18 @@ pub fn run(args: &BuildArgs) -> Result<(), CliError> {
     // the edits play no part in installing a base tree; the workspace remembers what the
     // tree file and the manifest looked like before the build
     let mut ws = Workspace::from_project(project, OverrideLayer::new(), AuditMode::Off)?;
-    let built = if args.out.is_none() {
+    let summary = if args.out.is_none() {
         // the effective tree plays no part in the build and is made again when the new
         // base is installed: free it for the build (less peak memory)
         ws.eff = None;
+        // nor does the report of an earlier build, which this one replaces
+        ws.build_report = None;
         let built = build_with(&ws.project, inclusion.as_ref(), &params)?;
-        ws.set_base_reporting(&built.tree_file, Some((&built.report, &report_path)))?;
-        built
+        let summary = Summary::of(&built);
+        // the tree file and the report are dropped once written, before the workspace
+        // makes its effective tree again (less peak memory)
+        ws.install_built(built.tree_file, Some((built.report, &report_path)))?;
+        summary
     } else {
         // nothing is installed: keep the project alone and free the workspace's effective
         // tree before the build (less peak memory)
@@ -206,17 +211,14 @@ pub fn run(args: &BuildArgs) -> Result<(), CliError> {
         .map_err(|e| {
             CliError::bad_input(format!("{}: cannot write: {e}", report_path.display()))
         })?;
-        built
+        Summary::of(&built)
     };
     // a closed pipe (`| head`) is not an error worth a panic: the files are written
     let mut o = std::io::stdout().lock();
     let _ = writeln!(
         o,
         "built a tree of {} phrases (depth {}, {} internal nodes, root \"{}\")",
-        built.report.phrases,
-        built.report.depth,
-        internal_nodes(&built),
-        built.report.root
+        summary.phrases, summary.depth, summary.internal, summary.root
     );
     let _ = writeln!(o, "tree    {}", out.display());
     let _ = writeln!(o, "report  {}", report_path.display());
@@ -246,6 +248,25 @@ fn run_build(
     let result = build(g, phrases, None, params, &on_progress, &cancel);
     bar.finish_and_clear();
     result.map_err(CliError::bad_input)
+}
+
+/// What the command prints about a build.
+struct Summary {
+    phrases: usize,
+    depth: usize,
+    internal: usize,
+    root: String,
+}
+
+impl Summary {
+    fn of(built: &BuiltTree) -> Self {
+        Summary {
+            phrases: built.report.phrases,
+            depth: built.report.depth,
+            internal: internal_nodes(built),
+            root: built.report.root.clone(),
+        }
+    }
 }
 
 /// Nodes with children.

@@ -756,14 +756,49 @@ impl Workspace {
         file: &TreeFile,
         report: Option<(&BuildReport, &Path)>,
     ) -> Result<(), WorkspaceError> {
+        let (tree, bytes) = self.base_of(file)?;
+        self.install_base(tree, bytes, report)
+    }
+
+    /// [`Workspace::set_base_reporting`] for a tree file and report the caller no longer
+    /// needs (a fresh build): each is dropped as soon as it has been turned into bytes on
+    /// disk, before the workspace makes its effective tree again, so a large build does
+    /// not hold two copies of its tree at the peak.
+    pub fn install_built(
+        &mut self,
+        file: TreeFile,
+        report: Option<(BuildReport, &Path)>,
+    ) -> Result<(), WorkspaceError> {
+        let (tree, bytes) = self.base_of(&file)?;
+        drop(file);
+        self.install_base(tree, bytes, report)
+    }
+
+    /// The tree of `file` over the project's phrases, and the bytes of its `tree.json`.
+    fn base_of(&self, file: &TreeFile) -> Result<(Tree, Vec<u8>), WorkspaceError> {
         let tree = Tree::from_id_map(&self.project.phrases, &file.root, &file.parent)
             .map_err(|e| WorkspaceError::BadTree(e.to_string()))?;
+        let path = self.project.tree_path();
+        let bytes = tree_bytes(file, &path).map_err(|source| WorkspaceError::Write {
+            file: path.display().to_string(),
+            source,
+        })?;
+        Ok((tree, bytes))
+    }
+
+    /// Write `bytes` as the tree file (and the report, when given; an owned report is
+    /// dropped once written), then make `tree` the base.
+    fn install_base<R: std::borrow::Borrow<BuildReport>>(
+        &mut self,
+        tree: Tree,
+        bytes: Vec<u8>,
+        report: Option<(R, &Path)>,
+    ) -> Result<(), WorkspaceError> {
         let path = self.project.tree_path();
         let write_err = |p: &Path| {
             let file = p.display().to_string();
             move |source| WorkspaceError::Write { file, source }
         };
-        let bytes = tree_bytes(file, &path).map_err(write_err(&path))?;
         let manifest = self.project.dir.join(MANIFEST_NAME);
         let lock = self.lock()?;
         for (p, seen) in [(&path, self.disk_tree), (&manifest, self.disk_manifest)] {
@@ -784,10 +819,11 @@ impl Workspace {
         if let Some((r, rpath)) = report {
             // streamed: the bytes of `to_json_pretty`, without the whole text in memory
             atomic_write_with(rpath, false, |w| {
-                serde_json::to_writer_pretty(&mut *w, r)?;
+                serde_json::to_writer_pretty(&mut *w, r.borrow())?;
                 w.write_all(b"\n")
             })
             .map_err(write_err(rpath))?;
+            drop(r);
         }
         drop(lock);
         self.project.tree = Some(tree);
