@@ -155,6 +155,14 @@ pub struct InclusionParams {
     /// How the coherence pass reads a node's spread.
     #[serde(default = "default_spread_model")]
     pub spread_model: SpreadModel,
+    /// Children spread model: each parent's own phrase is placed where the parent's mean
+    /// puts it (μ_p = (x_p + Σ_c n_c μ_c) / (1 + Σ_c n_c)) instead of at μ_p, which makes
+    /// the law of total variance exact for Gaussians fitted to subtrees; the coherence pass
+    /// then runs twice, first with the phrase at μ_p, then with it placed (see
+    /// [`coherence`]). Missing in reports written before it existed: false, the old
+    /// behaviour.
+    #[serde(default)]
+    pub own_phrase: bool,
     /// How the root is chosen.
     pub root: InclusionRoot,
     /// Seed of the index's initial centroids (the only random choice).
@@ -178,6 +186,7 @@ impl Default for InclusionParams {
             refine_rounds: 4,
             coherence_weight: 1.0,
             spread_model: SpreadModel::Auto,
+            own_phrase: true,
             root: InclusionRoot::Coherent,
             seed: 0,
         }
@@ -870,6 +879,7 @@ pub fn build_inclusion(
             members: &members,
             weight: params.coherence_weight,
             model: params.spread_model,
+            own_phrase: params.own_phrase,
             rounds: params.refine_rounds,
             max_depth: params.max_depth,
             max_fanout: params.max_fanout,
