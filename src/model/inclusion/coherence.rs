@@ -194,7 +194,7 @@ impl<'a> Coherence<'a> {
             }
         } else {
             let mut t = vec![0.0; d];
-            for v in 0..m {
+            for (v, &row) in members.iter().enumerate() {
                 if let Some(p) = shape.parent[v] {
                     let p = p as usize;
                     let w = c.size[v];
@@ -204,8 +204,7 @@ impl<'a> Coherence<'a> {
                         *s += w * x;
                     }
                     if own {
-                        let mv = g.mean(members[v] as usize);
-                        for (s, &x) in c.s2.get_mut(p).iter_mut().zip(mv) {
+                        for (s, &x) in c.s2.get_mut(p).iter_mut().zip(g.mean(row as usize)) {
                             *s += w * x as f64;
                         }
                     }
@@ -222,7 +221,8 @@ impl<'a> Coherence<'a> {
             .collect()
     }
 
-    /// Node x's second sums (points model), or nothing.
+    /// Node x's second sums (points model; Σ_c n_c μ_c with the own phrase placed), or
+    /// nothing.
     fn s2_of(&self, x: usize) -> &[f64] {
         if self.points || self.own {
             self.s2.get(x)
