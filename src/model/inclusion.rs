@@ -44,7 +44,9 @@
 //! Same input and parameters give identical output on any thread count.
 //!
 //! **Defaults** (KL cost, margin 0, no breadth weight, 8 candidates, coherent root,
-//! coherence weight 1, spread model auto) carry no constant fitted to data: KL(c ‖ p) is the
+//! coherence weight 1, spread model auto, own phrase placed) carry no constant fitted to
+//! data (the own-phrase rule adds none: it is the mean identity of a fitted Gaussian, see
+//! [`coherence`]): KL(c ‖ p) is the
 //! asymmetric "how well does the parent cover the child" cost, a zero margin adds nothing to
 //! "broader", the coherence term is a KL divergence like the edge cost and is added with
 //! weight 1, counted once per phrase of the node's subtree (a log-likelihood over its
