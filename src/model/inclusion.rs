@@ -839,6 +839,9 @@ pub fn build_inclusion(
         }
     };
     stats.arborescence_cost = arb_cost;
+    // what only the candidate scan needed, freed before the passes that allocate their own
+    // sums (the coherence pass)
+    drop((index, order, pool, local));
     if cancel.load(Ordering::Relaxed) {
         return Err(InclusionError::Cancelled);
     }
@@ -850,6 +853,7 @@ pub fn build_inclusion(
     });
     let mut shape = Shape::new(parent, root_local);
     let is_fixed: Vec<bool> = fixed_parent.iter().map(|f| f.is_some()).collect();
+    drop(fixed_parent);
     if let Some(f) = params.max_fanout {
         stats.fanout_moves = shape.repair_fanout(
             f,
