@@ -138,14 +138,18 @@ fn measure_matches_the_reference() {
 /// 0.919/0.870/0.888/0.700/0.905/0.737/0.848/0.736 in this order), rounded down by 0.01 or
 /// more. Before them (cheapest candidate, best-cover root): F1 0.859/0.758/0.902/0.652/
 /// 0.939/0.731/0.878/0.641.
+/// Raised on 2026-12-04 (build14) after the own-phrase rule of the children spread model
+/// (`InclusionParams::own_phrase`), measured F1 0.961/0.903/0.947/0.815/0.982/0.870/0.954/
+/// 0.856, exact parent 0.932/0.870/0.887/0.700/0.949/0.737/0.884/0.736 (own-text sets
+/// unchanged: the rule applies to the children model only).
 const FLOORS: [(&str, f64, f64); 8] = [
-    ("icd10cm-circulatory-fitted", 0.91, 0.90),
+    ("icd10cm-circulatory-fitted", 0.95, 0.92),
     ("icd10cm-circulatory-own-text", 0.89, 0.86),
     ("wordnet-bird-fitted", 0.93, 0.87),
     ("wordnet-bird-own-text", 0.80, 0.69),
-    ("wordnet-clothing-fitted", 0.95, 0.89),
+    ("wordnet-clothing-fitted", 0.97, 0.93),
     ("wordnet-clothing-own-text", 0.86, 0.72),
-    ("wordnet-structure-fitted", 0.92, 0.83),
+    ("wordnet-structure-fitted", 0.94, 0.87),
     ("wordnet-structure-own-text", 0.84, 0.72),
 ];
 

@@ -44,7 +44,9 @@
 //! Same input and parameters give identical output on any thread count.
 //!
 //! **Defaults** (KL cost, margin 0, no breadth weight, 8 candidates, coherent root,
-//! coherence weight 1, spread model auto) carry no constant fitted to data: KL(c ‖ p) is the
+//! coherence weight 1, spread model auto, own phrase placed) carry no constant fitted to
+//! data (the own-phrase rule adds none: it is the mean identity of a fitted Gaussian, see
+//! [`coherence`]): KL(c ‖ p) is the
 //! asymmetric "how well does the parent cover the child" cost, a zero margin adds nothing to
 //! "broader", the coherence term is a KL divergence like the edge cost and is added with
 //! weight 1, counted once per phrase of the node's subtree (a log-likelihood over its
@@ -155,6 +157,14 @@ pub struct InclusionParams {
     /// How the coherence pass reads a node's spread.
     #[serde(default = "default_spread_model")]
     pub spread_model: SpreadModel,
+    /// Children spread model: each parent's own phrase is placed where the parent's mean
+    /// puts it (μ_p = (x_p + Σ_c n_c μ_c) / (1 + Σ_c n_c)) instead of at μ_p, which makes
+    /// the law of total variance exact for Gaussians fitted to subtrees; the coherence pass
+    /// then runs twice, first with the phrase at μ_p, then with it placed (see
+    /// [`coherence`]). Missing in reports written before it existed: false, the old
+    /// behaviour.
+    #[serde(default)]
+    pub own_phrase: bool,
     /// How the root is chosen.
     pub root: InclusionRoot,
     /// Seed of the index's initial centroids (the only random choice).
@@ -178,6 +188,7 @@ impl Default for InclusionParams {
             refine_rounds: 4,
             coherence_weight: 1.0,
             spread_model: SpreadModel::Auto,
+            own_phrase: true,
             root: InclusionRoot::Coherent,
             seed: 0,
         }
@@ -828,6 +839,9 @@ pub fn build_inclusion(
         }
     };
     stats.arborescence_cost = arb_cost;
+    // what only the candidate scan needed, freed before the passes that allocate their own
+    // sums (the coherence pass)
+    drop((index, order, pool, local));
     if cancel.load(Ordering::Relaxed) {
         return Err(InclusionError::Cancelled);
     }
@@ -839,6 +853,7 @@ pub fn build_inclusion(
     });
     let mut shape = Shape::new(parent, root_local);
     let is_fixed: Vec<bool> = fixed_parent.iter().map(|f| f.is_some()).collect();
+    drop(fixed_parent);
     if let Some(f) = params.max_fanout {
         stats.fanout_moves = shape.repair_fanout(
             f,
@@ -870,6 +885,7 @@ pub fn build_inclusion(
             members: &members,
             weight: params.coherence_weight,
             model: params.spread_model,
+            own_phrase: params.own_phrase,
             rounds: params.refine_rounds,
             max_depth: params.max_depth,
             max_fanout: params.max_fanout,

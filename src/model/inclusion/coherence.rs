@@ -19,6 +19,21 @@
 //! divergences in nats and are added with weight 1 ([`super::InclusionParams::coherence_weight`]
 //! scales the second; 1 is the default and was not tuned). Only the diagonal of Σ is used
 //! (with full covariances this is an approximation).
+//!
+//! **The parent's own phrase** ([`super::InclusionParams::own_phrase`], children model).
+//! The formula above puts the parent's own phrase at μ_p. For a Gaussian fitted to the
+//! subtree the mean identity μ_p = (x_p + Σ_c n_c μ_c) / (1 + Σ_c n_c) says where it is:
+//! x_p − μ_p = Σ_c n_c μ_c − (Σ_c n_c) μ_p, so its squared offset belongs in the sum:
+//!
+//! `σ̂²_p = (v₀ + Σ_c n_c (σ²_c + (μ_c − μ_p)²) + (Σ_c n_c μ_c − Σ_c n_c · μ_p)²) / (1 + Σ_c n_c)`
+//!
+//! which is the law of total variance without approximation (every disagreement is 0 on the
+//! true tree of Gaussians fitted to subtrees with a variance floor v₀). The offset grows with
+//! the subtree (a child put in the wrong place shifts it by n_c times the shift of the
+//! centroid), so this total has many more local minima for one-phrase moves; the pass
+//! therefore runs first with the phrase at μ_p (the smoother total) and then, from where it
+//! stopped, with the phrase placed. The second run accepts only moves that lower the exact
+//! total. The points model needs no such term (the phrase's own vector *is* its mean there).
 
 use super::options::Options;
 use super::repair::Shape;
@@ -109,6 +124,9 @@ pub(super) struct Coherence<'a> {
     d: usize,
     v0: Vec<f64>,
     points: bool,
+    /// Children model: the parent's own phrase sits where the mean identity puts it
+    /// (s2 = Σ_c n_c μ_c), not at the parent's mean.
+    own: bool,
     /// Subtree sizes.
     size: Vec<f64>,
     s0: Vec<f64>,
@@ -126,7 +144,9 @@ impl<'a> Coherence<'a> {
         shape: &Shape,
         weight: f64,
         points: bool,
+        own: bool,
     ) -> Self {
+        let own = own && !points;
         let d = g.dim();
         let m = members.len();
         let v0 = point_variance(g, members);
@@ -144,10 +164,11 @@ impl<'a> Coherence<'a> {
             d,
             v0,
             points,
+            own,
             size,
             s0: vec![0.0; m],
             s1: Rows::new(m, d),
-            s2: Rows::new(if points { m } else { 0 }, d),
+            s2: Rows::new(if points || own { m } else { 0 }, d),
             dis: Vec::new(),
             weight,
         };
@@ -173,7 +194,7 @@ impl<'a> Coherence<'a> {
             }
         } else {
             let mut t = vec![0.0; d];
-            for v in 0..m {
+            for (v, &row) in members.iter().enumerate() {
                 if let Some(p) = shape.parent[v] {
                     let p = p as usize;
                     let w = c.size[v];
@@ -181,6 +202,11 @@ impl<'a> Coherence<'a> {
                     c.term(v, p, &mut t);
                     for (s, x) in c.s1.get_mut(p).iter_mut().zip(&t) {
                         *s += w * x;
+                    }
+                    if own {
+                        for (s, &x) in c.s2.get_mut(p).iter_mut().zip(g.mean(row as usize)) {
+                            *s += w * x as f64;
+                        }
                     }
                 }
             }
@@ -195,9 +221,14 @@ impl<'a> Coherence<'a> {
             .collect()
     }
 
-    /// Node x's second sums (points model), or nothing.
+    /// Node x's second sums (points model; Σ_c n_c μ_c with the own phrase placed), or
+    /// nothing.
     fn s2_of(&self, x: usize) -> &[f64] {
-        if self.points { self.s2.get(x) } else { &[] }
+        if self.points || self.own {
+            self.s2.get(x)
+        } else {
+            &[]
+        }
     }
 
     /// σ²_x + (μ_x − μ_y)² per dimension, into `out`.
@@ -218,7 +249,10 @@ impl<'a> Coherence<'a> {
         let mu = self.g.mean(gx);
         let mut sum = 0.0;
         for j in 0..self.d {
-            let vh = if !self.points {
+            let vh = if self.own {
+                let o = s2[j] - s0 * mu[j] as f64;
+                (self.v0[j] + s1[j] + o * o) / (1.0 + s0)
+            } else if !self.points {
                 (self.v0[j] + s1[j]) / (1.0 + s0)
             } else if s0 > 0.5 {
                 let m = mu[j] as f64;
@@ -307,13 +341,20 @@ impl<'a> Coherence<'a> {
                     let entry = match pos {
                         Some(i) => &mut changes[i],
                         None => {
-                            changes.push((x, 0.0, vec![0.0; d], Vec::new()));
+                            let c2 = if self.own { vec![0.0; d] } else { Vec::new() };
+                            changes.push((x, 0.0, vec![0.0; d], c2));
                             changes.last_mut().expect("just pushed")
                         }
                     };
                     entry.1 += sign * s;
                     for (e, &tv) in entry.2.iter_mut().zip(&t) {
                         *e += sign * s * tv;
+                    }
+                    if self.own {
+                        let my = self.g.mean(self.members[y] as usize);
+                        for (e, &m) in entry.3.iter_mut().zip(my) {
+                            *e += sign * s * m as f64;
+                        }
                     }
                 }
             }
@@ -325,7 +366,7 @@ impl<'a> Coherence<'a> {
             let o2 = self.s2_of(*x);
             for j in 0..d {
                 b1[j] = o1[j] + ds1[j];
-                if self.points {
+                if self.points || self.own {
                     b2[j] = o2[j] + ds2[j];
                 }
             }
@@ -346,7 +387,7 @@ impl<'a> Coherence<'a> {
             for (a, b) in self.s1.get_mut(x).iter_mut().zip(&ds1) {
                 *a += b;
             }
-            if self.points {
+            if self.points || self.own {
                 for (a, b) in self.s2.get_mut(x).iter_mut().zip(&ds2) {
                     *a += b;
                 }
@@ -476,6 +517,9 @@ pub(super) struct PassInput<'a> {
     pub(super) members: &'a [u32],
     pub(super) weight: f64,
     pub(super) model: SpreadModel,
+    /// Children model: place each parent's own phrase where the mean identity puts it
+    /// (see the module documentation), after a first pass with it at the parent's mean.
+    pub(super) own_phrase: bool,
     pub(super) rounds: usize,
     pub(super) max_depth: Option<usize>,
     pub(super) max_fanout: Option<usize>,
@@ -503,8 +547,26 @@ pub(super) fn coherence_pass(
         ),
     };
     // one model, so the pass works on `shape` and `cost_of` in place (no copies)
-    let mut coh = Coherence::with_model(input.g, input.members, shape, input.weight, points);
-    let moves = shape.cohere(
+    let own = input.own_phrase && !points;
+    let mut moves = 0;
+    if own {
+        // the smooth reading first (the own phrase at the parent's mean), then the exact one
+        // from where it stopped
+        let mut coh =
+            Coherence::with_model(input.g, input.members, shape, input.weight, points, false);
+        moves += shape.cohere(
+            &mut coh,
+            input.rounds,
+            input.max_depth,
+            input.max_fanout,
+            input.options,
+            input.fixed,
+            cost_of,
+            input.cancel,
+        );
+    }
+    let mut coh = Coherence::with_model(input.g, input.members, shape, input.weight, points, own);
+    moves += shape.cohere(
         &mut coh,
         input.rounds,
         input.max_depth,
@@ -716,7 +778,7 @@ mod tests {
             .map(|v| parent[v].map_or(0.0, |p| kl1(v, p as usize)))
             .collect();
         let mut shape = Shape::new(parent, 0);
-        let mut coh = Coherence::with_model(&g, &members, &shape, 1.0, false);
+        let mut coh = Coherence::with_model(&g, &members, &shape, 1.0, false, false);
         let cancel = std::sync::atomic::AtomicBool::new(false);
         TWIN.set(twin);
         shape.cohere(
@@ -780,5 +842,66 @@ mod tests {
         let after = run(true);
         let err = check(&after).expect_err("a pass that raises the total must fail the check");
         assert!(err.contains("rose"), "{err}");
+    }
+
+    /// The own-phrase rule on a tree fitted by hand (one dimension, worked on paper, common
+    /// practice, no source). Seven phrases with own vectors R 0; A −3, a1 −2, a2 −1; B 3,
+    /// b1 1, b2 2 and floor 0.01. Fitting each Gaussian to its subtree's vectors (mean,
+    /// variance + floor): A: mean (−3 − 2 − 1)/3 = −2, variance ((−1)² + 0² + 1²)/3 + 0.01
+    /// = 0.676667; B likewise mean 2; R: mean 0, variance (9 + 4 + 1 + 9 + 1 + 4)/7 + 0.01
+    /// = 4.01; leaves mean = own vector, variance 0.01. With A's own phrase placed where the
+    /// mean identity puts it (Σ n_c μ_c − s0 μ_A = −3 + 4 = 1, so +1² in the sums) the
+    /// implied spread of A is (0.01 + 0.01 + (0.01 + 1) + 1)/3 = 0.676667 = the given one:
+    /// every disagreement is 0 on the true tree. With the phrase at A's mean (the broken
+    /// twin: `own` false) A's implied spread is (0.01 + 1.02)/3 = 0.343333, r = 1.970874,
+    /// ½ (r − 1 − ln r) · 3 = 0.438596 for A and for B, 0.877191 in all (R's own phrase is
+    /// at its mean already, so R agrees either way).
+    mod own_phrase {
+        use super::*;
+
+        const MEAN: [f64; 7] = [0.0, -2.0, 2.0, -2.0, -1.0, 1.0, 2.0];
+        const VAR: [f64; 7] = [4.01, 0.676_666_7, 0.676_666_7, 0.01, 0.01, 0.01, 0.01];
+        /// R; A, B under R; a1, a2 under A; b1, b2 under B.
+        const TRUE: [Option<u32>; 7] = [None, Some(0), Some(0), Some(1), Some(1), Some(2), Some(2)];
+
+        fn coh_total(parent: &[Option<u32>], own: bool) -> f64 {
+            let g = Gaussians::from_diagonal(7, 1, MEAN.to_vec(), VAR.to_vec(), 1e-6).unwrap();
+            let members: Vec<u32> = (0..7).collect();
+            let shape = Shape::new(parent.to_vec(), 0);
+            let coh = Coherence::with_model(&g, &members, &shape, 1.0, false, own);
+            coh.dis.iter().sum()
+        }
+
+        #[test]
+        fn the_true_tree_agrees_exactly_and_the_twin_does_not() {
+            assert!(
+                coh_total(&TRUE, true).abs() < 1e-5,
+                "{}",
+                coh_total(&TRUE, true)
+            );
+            // the broken twin (own phrase at the mean) is caught: 0.877191 by hand
+            assert!((coh_total(&TRUE, false) - 0.877191).abs() < 1e-4);
+        }
+
+        /// a2 hung one level too high (under R); the incremental move to A must give the
+        /// from-scratch sums of the true tree (total 0) and report the change it makes.
+        #[test]
+        fn an_incremental_move_matches_the_sums_from_scratch() {
+            let g = Gaussians::from_diagonal(7, 1, MEAN.to_vec(), VAR.to_vec(), 1e-6).unwrap();
+            let members: Vec<u32> = (0..7).collect();
+            let mut start = TRUE;
+            start[4] = Some(0);
+            let mut shape = Shape::new(start.to_vec(), 0);
+            let mut coh = Coherence::with_model(&g, &members, &shape, 1.0, false, true);
+            let before: f64 = coh.dis.iter().sum();
+            assert!(before > 0.1, "the wrong tree disagrees ({before})");
+            let (change, ch) = coh.delta(&shape, 4, 1, 0.0).expect("no pruning at rise 0");
+            coh.apply(4, ch);
+            shape.move_to(4, 1);
+            let after: f64 = coh.dis.iter().sum();
+            assert!(after.abs() < 1e-5, "{after}");
+            assert!((change - (after - before)).abs() < 1e-9);
+            assert!((after - coh_total(&TRUE, true)).abs() < 1e-9);
+        }
     }
 }
