@@ -11,8 +11,10 @@
 //! A tree that puts phrases under the wrong parent makes σ̂²_p disagree with the given
 //! σ²_p: a phrase hung under a sibling inflates the sibling's σ̂², a phrase hung one level
 //! too high leaves its true parent's σ̂² short. The disagreement of a node is the KL
-//! divergence between the zero-mean Gaussians of the two diagonal spreads,
-//! `½ Σ_j (r_j − 1 − ln r_j)`, r = σ²_p / σ̂²_p. The pass moves one phrase (with its
+//! divergence between the zero-mean Gaussians of the two diagonal spreads, weighted by the
+//! size of the node's subtree, `(1 + Σ_c n_c) · ½ Σ_j (r_j − 1 − ln r_j)`,
+//! r = σ²_p / σ̂²_p (`docs/maths.md`, section 13, "The inclusion build's coherence
+//! total"). The pass moves one phrase (with its
 //! subtree) at a time to the candidate that lowers
 //! `Σ_children KL(c ‖ parent) + Σ_nodes disagreement` the most, keeping the tree acyclic,
 //! fixed parents and the limits, in row order, for a few rounds. Both terms are KL
