@@ -1339,4 +1339,67 @@ mod tests {
         assert!(matches!(l.undo_step(), Some(Step::Edit(_))));
         assert!(l.undo_step().is_none() && !l.can_undo());
     }
+
+    /// A path that cannot be read for another reason than "not found" (here a folder) is
+    /// an error wherever the layer reads its file, never an empty or missing layer: a layer
+    /// that took an unreadable file for a missing one would save over it (common practice,
+    /// no source; found by mutation testing, which made every read error "missing").
+    #[test]
+    fn an_unreadable_file_is_an_error_not_a_missing_one() {
+        let dir = tempfile::tempdir().unwrap();
+        let folder = dir.path().join("overrides.json");
+        std::fs::create_dir(&folder).unwrap();
+        assert!(matches!(
+            OverrideLayer::load(&folder).unwrap_err(),
+            OverrideError::Io { .. }
+        ));
+        let mut layer = OverrideLayer::new();
+        assert!(matches!(
+            layer.changed_on_disk(&folder).unwrap_err(),
+            OverrideError::Io { .. }
+        ));
+        assert!(matches!(
+            layer.take_disk(&folder).unwrap_err(),
+            OverrideError::Io { .. }
+        ));
+        // a missing file is no error: an empty layer, unchanged from a new one
+        let missing = dir.path().join("none.json");
+        assert!(OverrideLayer::load(&missing).unwrap().edits.is_empty());
+        assert!(!layer.changed_on_disk(&missing).unwrap());
+        assert_eq!(layer.take_disk(&missing).unwrap(), Vec::<EditRecord>::new());
+    }
+
+    /// `saved_edits` is what was last loaded or saved (the merge's common ancestor), not
+    /// what is in memory; `take_disk` returns the file's edits and makes them the new
+    /// reference, so a save on top succeeds (common practice, no source).
+    #[test]
+    fn saved_edits_and_take_disk_follow_the_file() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("overrides.json");
+        let mut a = OverrideLayer::load(&p).unwrap();
+        a.push(rec(Edit::Exclude {
+            node: "fern".into(),
+        }));
+        assert!(a.saved_edits().is_empty(), "not saved yet");
+        a.save(&p).unwrap();
+        assert_eq!(a.saved_edits(), a.edits.as_slice());
+        let mut b = OverrideLayer::load(&p).unwrap();
+        assert_eq!(b.saved_edits(), a.edits.as_slice());
+        a.push(rec(Edit::Exclude {
+            node: "hosta".into(),
+        }));
+        a.save(&p).unwrap();
+        b.push(rec(Edit::Unpin { node: "x".into() }));
+        // b's reference is now stale; take_disk hands over the file's two edits
+        assert!(b.changed_on_disk(&p).unwrap());
+        let theirs = b.take_disk(&p).unwrap();
+        assert_eq!(theirs, a.edits);
+        assert_eq!(b.saved_edits(), a.edits.as_slice());
+        assert!(!b.changed_on_disk(&p).unwrap());
+        let mut merged = theirs.clone();
+        merged.push(b.edits[1].clone());
+        b.edits = merged.clone();
+        b.save(&p).unwrap();
+        assert_eq!(OverrideLayer::load(&p).unwrap().edits, merged);
+    }
 }
