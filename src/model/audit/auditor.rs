@@ -108,6 +108,8 @@ impl Auditor {
         nav_min: usize,
         nav_bias: f64,
     ) -> Self {
+        // what was freed before (loading, applying the edits) goes back first (memtrim.rs)
+        crate::model::memtrim::release_free_memory();
         let engine = StatsEngine::new(g, &cfg.stats());
         let mut index = CandidateIndex::of(eff);
         index.nav_min = nav_min;
@@ -202,7 +204,8 @@ impl Auditor {
 
     /// Recalibrate the current report from the reviewer's decisions in `edits`
     /// ([`calibrate`](super::calibrate)): with fewer than
-    /// [`MIN_DECISIONS`](super::calibrate::MIN_DECISIONS) decided nodes nothing changes;
+    /// [`MIN_DECISIONS`](super::calibrate::MIN_DECISIONS) decided nodes, or decisions of
+    /// one kind only, nothing changes (and the base tree is not audited);
     /// else the `base` tree is audited once (kept for later calls) and the fit is applied.
     /// Call it after [`Auditor::new`] or [`Auditor::update`] (each rebuilds the report
     /// uncalibrated). Never removes a finding.
@@ -213,7 +216,7 @@ impl Auditor {
         base: &Tree,
         edits: &[EditRecord],
     ) {
-        if calibrate::judged(phrases, edits).len() < calibrate::MIN_DECISIONS {
+        if !calibrate::can_fit(&calibrate::judged(phrases, edits)) {
             return;
         }
         let before = self.before.get_or_insert_with(|| {
