@@ -143,18 +143,28 @@ impl Auditor {
                 }
             };
         }
-        // every node that needs a search, written in place (no second n-long vector)
+        // every node that needs a search; the results go straight into their slots (no
+        // second n-long vector)
         let mut placement = vec![Placement::default(); n];
         // with an index repair to come, every node that clears the better-parent gain is
         // searched again after it, so the wider search waits for that pass
         let repair = !exhaustive && fit.fits;
         {
             let s = searcher!();
-            placement.par_iter_mut().enumerate().for_each(|(p, slot)| {
-                if needs_search(eff, p as PhraseId) {
-                    *slot = s.place_with(p as PhraseId, !repair);
+            // siblings one after the other: their searches read mostly the same rows, which
+            // then stay in the processor's caches (in row order, the siblings of a large
+            // synthetic tree lie far apart); each search is independent of the others, so
+            // the order changes no answer
+            let order = sibling_order(eff);
+            for chunk in order.chunks(SEARCH_CHUNK) {
+                let fresh: Vec<Placement> = chunk
+                    .par_iter()
+                    .map(|&p| s.place_with(p, !repair))
+                    .collect();
+                for (&p, pl) in chunk.iter().zip(fresh) {
+                    placement[p as usize] = pl;
                 }
-            });
+            }
         }
         if repair {
             // repair the index (skipped when the tree as a whole does not fit: nearly
@@ -399,6 +409,31 @@ impl Auditor {
         self.report.fit = fit;
         &self.report
     }
+}
+
+/// Searches run in chunks of this many nodes (the results of one chunk are held at once).
+const SEARCH_CHUNK: usize = 1 << 14;
+
+/// Every phrase that needs a candidate search ([`needs_search`]) once: the children of each
+/// node together (nodes in row order), then the others (the root, phrases outside the tree).
+fn sibling_order(eff: &EffectiveTree) -> Vec<PhraseId> {
+    let n = eff.tree.table_len();
+    let mut seen = vec![false; n];
+    let mut order = Vec::with_capacity(n);
+    let mut take = |p: PhraseId, order: &mut Vec<PhraseId>| {
+        if !std::mem::replace(&mut seen[p as usize], true) && needs_search(eff, p) {
+            order.push(p);
+        }
+    };
+    for p in 0..n as PhraseId {
+        for &c in eff.tree.children(p) {
+            take(c, &mut order);
+        }
+    }
+    for p in 0..n as PhraseId {
+        take(p, &mut order);
+    }
+    order
 }
 
 fn empty_stats() -> Stats {
