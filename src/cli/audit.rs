@@ -605,16 +605,18 @@ pub fn run(args: &AuditArgs) -> Result<(), CliError> {
     let project = &ws.project;
     let cfg = ws.audit_config()?;
     let eff = ws.effective()?;
-    let mut report = ws.audit_now()?;
     // the reviewer's decisions in the override layer recalibrate the confidence (never
-    // removing a finding; see `calibrate`)
-    if let Some(c) = calibrate::from_layer(
+    // removing a finding; see `calibrate`); fitted first, so that the audit of the base
+    // tree it may need is dropped before the audit of the effective tree is made
+    let calibration = calibrate::from_layer(
         &project.gaussians,
         &project.phrases,
         ws.base()?,
         &ws.layer.edits,
         &cfg,
-    ) {
+    );
+    let mut report = ws.audit_now()?;
+    if let Some(c) = calibration {
         c.apply(&mut report, |r| cfg.severity.contains_key(r));
     }
     if let Some(path) = &args.known_errors {

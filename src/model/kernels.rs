@@ -35,6 +35,47 @@ fn kl_sum_impl(mc: &[f32], vc: &[f32], mx: &[f32], vx: &[f32]) -> f32 {
     s
 }
 
+/// [`kl_sum_impl`], stopping early: `Ok(sum)` with the very same bits as [`kl_sum_impl`]
+/// (same lanes, same order of additions), or `Err(partial)` as soon as the sum of the
+/// lanes after a block of 16 dimensions is above `stop`. Every term is ≥ 0 and rounded
+/// addition is monotone, so the full sum (the same lane sums continued, then the same
+/// horizontal sum) is ≥ `partial`: a lower bound of the full sum.
+#[inline(always)]
+fn kl_sum_until_impl(
+    mc: &[f32],
+    vc: &[f32],
+    mx: &[f32],
+    vx: &[f32],
+    stop: f32,
+) -> Result<f32, f32> {
+    let mut acc = [0.0f32; 8];
+    let n = mc.len() / 8 * 8;
+    for (i, (((a, b), c), d)) in mc[..n]
+        .chunks_exact(8)
+        .zip(vc[..n].chunks_exact(8))
+        .zip(mx[..n].chunks_exact(8))
+        .zip(vx[..n].chunks_exact(8))
+        .enumerate()
+    {
+        for j in 0..8 {
+            let dl = c[j] - a[j];
+            acc[j] += (b[j] + dl * dl) / d[j];
+        }
+        if i % 2 == 1 && (i + 1) * 8 < mc.len() {
+            let partial: f32 = acc.iter().sum();
+            if partial > stop {
+                return Err(partial);
+            }
+        }
+    }
+    let mut s: f32 = acc.iter().sum();
+    for k in n..mc.len() {
+        let dl = mx[k] - mc[k];
+        s += (vc[k] + dl * dl) / vx[k];
+    }
+    Ok(s)
+}
+
 /// Whether Σₖ (mx[k] − mc[k])² / (vc[k] + vx[k]) exceeds `limit`. Every term is ≥ 0, so
 /// the sum is checked after each block of 16 dimensions and the loop stops as soon as it is
 /// over: most pairs are far apart in the first few dimensions already.
@@ -99,6 +140,17 @@ mod avx2 {
     }
 
     #[target_feature(enable = "avx2")]
+    pub(super) fn kl_sum_until(
+        mc: &[f32],
+        vc: &[f32],
+        mx: &[f32],
+        vx: &[f32],
+        stop: f32,
+    ) -> Result<f32, f32> {
+        super::kl_sum_until_impl(mc, vc, mx, vx, stop)
+    }
+
+    #[target_feature(enable = "avx2")]
     pub(super) fn mean_term_exceeds(
         mc: &[f32],
         vc: &[f32],
@@ -135,6 +187,22 @@ pub(crate) fn kl_sum(mc: &[f32], vc: &[f32], mx: &[f32], vx: &[f32]) -> f32 {
         return unsafe { avx2::kl_sum(mc, vc, mx, vx) };
     }
     kl_sum_impl(mc, vc, mx, vx)
+}
+
+/// See [`kl_sum_until_impl`].
+pub(crate) fn kl_sum_until(
+    mc: &[f32],
+    vc: &[f32],
+    mx: &[f32],
+    vx: &[f32],
+    stop: f32,
+) -> Result<f32, f32> {
+    #[cfg(target_arch = "x86_64")]
+    if has_avx2() {
+        // SAFETY: the processor supports AVX2 (checked at run time).
+        return unsafe { avx2::kl_sum_until(mc, vc, mx, vx, stop) };
+    }
+    kl_sum_until_impl(mc, vc, mx, vx, stop)
 }
 
 /// See [`mean_term_exceeds_impl`].
@@ -360,6 +428,29 @@ mod tests {
             kl_sum(&a, &b, &c, &e).to_bits(),
             kl_sum_impl(&a, &b, &c, &e).to_bits()
         );
+        // the early-stopping sum: the same bits when it runs to the end, and a stop only
+        // below the full sum (common practice, no source: monotone rounded addition)
+        let whole = kl_sum_impl(&a, &b, &c, &e);
+        for stop in [
+            f32::INFINITY,
+            whole,
+            0.9 * whole,
+            0.5 * whole,
+            0.1 * whole,
+            0.0,
+        ] {
+            for r in [
+                kl_sum_until(&a, &b, &c, &e, stop),
+                kl_sum_until_impl(&a, &b, &c, &e, stop),
+            ] {
+                match r {
+                    Ok(v) => assert_eq!(v.to_bits(), whole.to_bits(), "{stop}"),
+                    Err(p) => assert!(p > stop && p <= whole, "{stop} {p} {whole}"),
+                }
+            }
+        }
+        assert!(kl_sum_until(&a, &b, &c, &e, 0.1 * whole).is_err());
+        assert!(kl_sum_until(&a, &b, &c, &e, whole).is_ok());
         let full: f64 = (0..d)
             .map(|k| {
                 let dl = (c[k] - a[k]) as f64;

@@ -22,6 +22,7 @@ pub mod label;
 pub mod label_clash;
 pub mod lang;
 pub mod lock;
+pub mod memtrim;
 pub mod merge;
 pub mod overrides;
 pub mod phrase;

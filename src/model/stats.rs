@@ -203,15 +203,22 @@ pub(crate) struct StatsEngine {
 impl StatsEngine {
     pub(crate) fn new(g: &Gaussians, cfg: &StatsConfig) -> Self {
         let d = g.dim().max(1);
-        let diag_log_det = (0..g.len())
-            .map(|i| g.variances(i).iter().map(|&v| (v as f64).ln()).sum())
-            .collect();
+        let diagonal = g.kind() == CovarianceKind::Diagonal;
+        let diag_log_det = if diagonal && g.dim() > 0 {
+            // the table's own ln det Σ: the same sum of the same logarithms in the same
+            // order (`Gaussians::from_diagonal*`), so no second n × d pass of `ln`
+            g.log_dets().to_vec()
+        } else {
+            (0..g.len())
+                .map(|i| g.variances(i).iter().map(|&v| (v as f64).ln()).sum())
+                .collect()
+        };
         StatsEngine {
             alpha: cfg.alpha,
             r2: chi2_quantile(d, cfg.alpha),
             dim: g.dim(),
             bank: SampleBank::new(g.dim(), cfg.samples, cfg.seed),
-            diagonal: g.kind() == CovarianceKind::Diagonal,
+            diagonal,
             diag_log_det,
         }
     }
@@ -450,4 +457,31 @@ fn refresh_shape(stats: &mut Stats, eff: &EffectiveTree, shape: &Shape) {
     stats.placed = gen_values.len();
     stats.generality = Histogram::of(&gen_values, HISTOGRAM_BINS, None);
     stats.containment = Histogram::of(&cont_values, HISTOGRAM_BINS, Some((0.0, 1.0)));
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn diagonal_engines_reuse_the_tables_log_det_bit_for_bit() {
+        // the engine used to sum ln σ²ₖ itself; the stored ln det Σ must be that very sum
+        // (common practice, no source: the same additions in the same order)
+        let (n, d) = (50, 13);
+        let means: Vec<f32> = (0..n * d).map(|i| (i as f32 * 0.37).sin()).collect();
+        let vars: Vec<f32> = (0..n * d)
+            .map(|i| 1e-7 + ((i as f32 * 0.11).cos() + 1.1).powi(3))
+            .collect();
+        let f64s = |v: &[f32]| v.iter().map(|&x| x as f64).collect::<Vec<_>>();
+        for g in [
+            Gaussians::from_diagonal_f32(n, d, means.clone(), vars.clone(), 1e-6).unwrap(),
+            Gaussians::from_diagonal(n, d, f64s(&means), f64s(&vars), 1e-6).unwrap(),
+        ] {
+            let e = StatsEngine::new(&g, &StatsConfig::default());
+            for i in 0..n {
+                let own: f64 = g.variances(i).iter().map(|&v| (v as f64).ln()).sum();
+                assert_eq!(e.diag_log_det[i].to_bits(), own.to_bits(), "row {i}");
+            }
+        }
+    }
 }

@@ -108,6 +108,8 @@ impl Auditor {
         nav_min: usize,
         nav_bias: f64,
     ) -> Self {
+        // what was freed before (loading, applying the edits) goes back first (memtrim.rs)
+        crate::model::memtrim::release_free_memory();
         let engine = StatsEngine::new(g, &cfg.stats());
         let mut index = CandidateIndex::of(eff);
         index.nav_min = nav_min;
@@ -141,18 +143,28 @@ impl Auditor {
                 }
             };
         }
-        // every node that needs a search, written in place (no second n-long vector)
+        // every node that needs a search; the results go straight into their slots (no
+        // second n-long vector)
         let mut placement = vec![Placement::default(); n];
         // with an index repair to come, every node that clears the better-parent gain is
         // searched again after it, so the wider search waits for that pass
         let repair = !exhaustive && fit.fits;
         {
             let s = searcher!();
-            placement.par_iter_mut().enumerate().for_each(|(p, slot)| {
-                if needs_search(eff, p as PhraseId) {
-                    *slot = s.place_with(p as PhraseId, !repair);
+            // siblings one after the other: their searches read mostly the same rows, which
+            // then stay in the processor's caches (in row order, the siblings of a large
+            // synthetic tree lie far apart); each search is independent of the others, so
+            // the order changes no answer
+            let order = sibling_order(eff);
+            for chunk in order.chunks(SEARCH_CHUNK) {
+                let fresh: Vec<Placement> = chunk
+                    .par_iter()
+                    .map(|&p| s.place_with(p, !repair))
+                    .collect();
+                for (&p, pl) in chunk.iter().zip(fresh) {
+                    placement[p as usize] = pl;
                 }
-            });
+            }
         }
         if repair {
             // repair the index (skipped when the tree as a whole does not fit: nearly
@@ -202,7 +214,8 @@ impl Auditor {
 
     /// Recalibrate the current report from the reviewer's decisions in `edits`
     /// ([`calibrate`](super::calibrate)): with fewer than
-    /// [`MIN_DECISIONS`](super::calibrate::MIN_DECISIONS) decided nodes nothing changes;
+    /// [`MIN_DECISIONS`](super::calibrate::MIN_DECISIONS) decided nodes, or decisions of
+    /// one kind only, nothing changes (and the base tree is not audited);
     /// else the `base` tree is audited once (kept for later calls) and the fit is applied.
     /// Call it after [`Auditor::new`] or [`Auditor::update`] (each rebuilds the report
     /// uncalibrated). Never removes a finding.
@@ -213,7 +226,7 @@ impl Auditor {
         base: &Tree,
         edits: &[EditRecord],
     ) {
-        if calibrate::judged(phrases, edits).len() < calibrate::MIN_DECISIONS {
+        if !calibrate::can_fit(&calibrate::judged(phrases, edits)) {
             return;
         }
         let before = self.before.get_or_insert_with(|| {
@@ -398,6 +411,31 @@ impl Auditor {
     }
 }
 
+/// Searches run in chunks of this many nodes (the results of one chunk are held at once).
+const SEARCH_CHUNK: usize = 1 << 14;
+
+/// Every phrase that needs a candidate search ([`needs_search`]) once: the children of each
+/// node together (nodes in row order), then the others (the root, phrases outside the tree).
+fn sibling_order(eff: &EffectiveTree) -> Vec<PhraseId> {
+    let n = eff.tree.table_len();
+    let mut seen = vec![false; n];
+    let mut order = Vec::with_capacity(n);
+    let mut take = |p: PhraseId, order: &mut Vec<PhraseId>| {
+        if !std::mem::replace(&mut seen[p as usize], true) && needs_search(eff, p) {
+            order.push(p);
+        }
+    };
+    for p in 0..n as PhraseId {
+        for &c in eff.tree.children(p) {
+            take(c, &mut order);
+        }
+    }
+    for p in 0..n as PhraseId {
+        take(p, &mut order);
+    }
+    order
+}
+
 fn empty_stats() -> Stats {
     Stats {
         nodes: Vec::new(),
@@ -406,5 +444,37 @@ fn empty_stats() -> Stats {
         placed: 0,
         alpha: 0.0,
         samples: 0,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::model::audit::tests::small_1d;
+
+    #[test]
+    fn the_search_order_lists_every_searched_phrase_once_siblings_together() {
+        // rows r, a, b, a1, u, a2: a1 and a2 (under a) are not next to each other in row
+        // order; u is outside the tree (searched: `unplaced` needs its best parent)
+        let rows = [
+            ("r", 0.0, 100.0),
+            ("a", -5.0, 10.0),
+            ("b", 5.0, 10.0),
+            ("a1", -6.0, 1.0),
+            ("u", 6.0, 1.0),
+            ("a2", -4.0, 1.0),
+        ];
+        let (t, _g, eff) = small_1d(&rows, &[("a", "r"), ("b", "r"), ("a1", "a"), ("a2", "a")]);
+        let id = |s: &str| t.get(s).unwrap();
+        let order = sibling_order(&eff);
+        let want: Vec<PhraseId> = ["a", "b", "a1", "a2", "r", "u"].map(id).to_vec();
+        assert_eq!(order, want);
+        // the same set as the row-order loop it replaced
+        let mut sorted = order.clone();
+        sorted.sort_unstable();
+        let all: Vec<PhraseId> = (0..rows.len() as PhraseId)
+            .filter(|&p| needs_search(&eff, p))
+            .collect();
+        assert_eq!(sorted, all);
     }
 }

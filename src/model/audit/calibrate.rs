@@ -123,10 +123,20 @@ pub(super) fn judged(phrases: &PhraseTable, edits: &[EditRecord]) -> HashMap<Phr
     judged
 }
 
+/// Whether the decisions `judged` can support a fit at all: [`MIN_DECISIONS`] decided nodes
+/// with both kinds among them. [`decisions`] keeps a subset of these nodes, so when this
+/// is false [`Calibration::fit`] returns None whatever the audit of the base tree says, and
+/// that audit (a whole second audit) is not run.
+pub(super) fn can_fit(judged: &HashMap<PhraseId, bool>) -> bool {
+    judged.len() >= MIN_DECISIONS
+        && judged.values().any(|&right| right)
+        && judged.values().any(|&right| !right)
+}
+
 /// The calibration that the decisions of the override layer `edits` support, or None
 /// (fewer than [`MIN_DECISIONS`] decided nodes, or one kind only). The features come from
 /// an audit of the `base` tree (the findings as they stood before the edits), run only
-/// when there are enough decisions.
+/// when there are enough decisions of both kinds ([`can_fit`]).
 pub fn from_layer(
     g: &Gaussians,
     phrases: &PhraseTable,
@@ -134,7 +144,7 @@ pub fn from_layer(
     edits: &[EditRecord],
     cfg: &AuditConfig,
 ) -> Option<Calibration> {
-    if judged(phrases, edits).len() < MIN_DECISIONS {
+    if !can_fit(&judged(phrases, edits)) {
         return None;
     }
     let eff = EffectiveTree::from_base(base, phrases);
@@ -312,6 +322,42 @@ mod tests {
         }
         let x = solve(a, [1.0, 2.0, 3.0]).unwrap();
         assert!(x.iter().all(|v| (v - 1.0).abs() < 1e-12), "{x:?}");
+    }
+
+    #[test]
+    fn the_base_audit_is_skipped_only_when_no_fit_can_follow() {
+        // `can_fit` false must imply `fit` None on the decisions of any subset of the nodes
+        // (`decisions` keeps those with a placement finding): one kind only, or too few
+        let of = |kinds: &[bool]| -> HashMap<PhraseId, bool> {
+            kinds
+                .iter()
+                .enumerate()
+                .map(|(i, &r)| (i as PhraseId, r))
+                .collect()
+        };
+        let as_decisions = |j: &HashMap<PhraseId, bool>| -> Vec<Decision> {
+            let mut v: Vec<Decision> = j
+                .iter()
+                .map(|(&node, &right)| Decision {
+                    node,
+                    x: [1.0, node as f64 / 10.0, 0.0],
+                    right,
+                })
+                .collect();
+            v.sort_by_key(|d| d.node);
+            v
+        };
+        let reparents_only = of(&[true; 201]);
+        let approvals_only = of(&[false; 40]);
+        let too_few = of(&(0..19).map(|i| i % 2 == 0).collect::<Vec<_>>());
+        for j in [&reparents_only, &approvals_only, &too_few] {
+            assert!(!can_fit(j));
+            assert!(Calibration::fit(&as_decisions(j)).is_none());
+        }
+        // twenty of both kinds: the audit of the base tree is needed (and a fit follows here)
+        let mixed = of(&(0..20).map(|i| i % 3 != 0).collect::<Vec<_>>());
+        assert!(can_fit(&mixed));
+        assert!(Calibration::fit(&as_decisions(&mixed)).is_some());
     }
 
     #[test]

@@ -111,6 +111,26 @@ impl Searcher<'_> {
         0.5 * (s as f64 - d as f64 + ld[x as usize] - ld[c as usize])
     }
 
+    /// [`Searcher::kl_diag`] when it is at most `t`, else None (or the exact value): the data
+    /// term stops early once its partial sum proves KL(c ‖ x) > `t` (every term is ≥ 0;
+    /// `kernels::kl_sum_until`). A returned value has the bits of [`Searcher::kl_diag`].
+    fn kl_diag_below(&self, c: PhraseId, x: PhraseId, t: f64) -> Option<f64> {
+        let d = self.g.dim() as f64;
+        let ld = &self.engine.diag_log_det;
+        let (ldx, ldc) = (ld[x as usize], ld[c as usize]);
+        // the data-term value at which KL = t; rounding is settled by the check below
+        let stop = (2.0 * t + d - ldx + ldc) as f32;
+        let (mc, mx) = (self.g.mean(c as usize), self.g.mean(x as usize));
+        let vc = self.g.variances(c as usize);
+        let vx = self.g.variances(x as usize);
+        match kernels::kl_sum_until(mc, vc, mx, vx, stop) {
+            Ok(s) => Some(0.5 * (s as f64 - d + ldx - ldc)),
+            // the same formula is monotone in the sum: the full KL is at least this
+            Err(partial) if 0.5 * (partial as f64 - d + ldx - ldc) > t => None,
+            Err(_) => Some(self.kl_diag(c, x)),
+        }
+    }
+
     /// Exact KL(c ‖ x).
     pub(super) fn kl_to(&self, c: PhraseId, x: PhraseId) -> f64 {
         if self.engine.diagonal {
@@ -209,12 +229,13 @@ impl Searcher<'_> {
         let margin = self.cfg.duplicate_generality_margin;
         let parent = self.eff.tree.parent(c).unwrap_or(NO_PARENT);
         let min_ld = ldc + self.cfg.better_parent_broader;
+        let diagonal = self.engine.diagonal;
         let mut out = Placement::default();
-        let mut cands: Vec<(PhraseId, f64)> = Vec::new();
-        let consider = |x: PhraseId,
-                        klx: Option<f64>,
-                        out: &mut Placement,
-                        cands: &mut Vec<(PhraseId, f64)>| {
+        let mut cands = Cands::default();
+        // whether a placed node x other than c may be the answer, given its generality
+        let eligible =
+            |x: PhraseId, ldx: f64| x != parent && ldx > min_ld && !self.order.in_subtree(c, x);
+        let consider = |x: PhraseId, klx: Option<f64>, out: &mut Placement, cands: &mut Cands| {
             if x == c || !self.eff.tree.is_placed(x) {
                 return;
             }
@@ -225,9 +246,7 @@ impl Searcher<'_> {
                 out.dups.push((x, bc));
             }
             if let Some(k) = klx
-                && x != parent
-                && ldx > min_ld
-                && !self.order.in_subtree(c, x)
+                && eligible(x, ldx)
             {
                 cands.push((x, k));
             }
@@ -238,7 +257,7 @@ impl Searcher<'_> {
                 let k = (x != c && broader(x)).then(|| self.kl_to(c, x));
                 consider(x, k, &mut out, &mut cands);
             }
-            out.best = lowest(&cands);
+            out.best = cands.best;
             return out;
         }
         let root = self.index.root;
@@ -247,15 +266,18 @@ impl Searcher<'_> {
             consider(root, k, &mut out, &mut cands);
         }
         let mut beam = vec![root];
-        let mut next: Vec<(PhraseId, f64)> = Vec::new();
+        let mut next = Lowest::new(width);
         let mut scratch: Vec<(PhraseId, Option<f64>)> = Vec::new();
         // every node whose children were looked at
         let mut expanded: Vec<PhraseId> = Vec::new();
+        // `follow`: the lowest KLs of the broader children (`next`) become the next beam and
+        // some of them have children of their own; otherwise only the best candidate and the
+        // duplicates depend on the children scored here
         let expand = |b: PhraseId,
-                      beam_matters: bool,
+                      follow: bool,
                       out: &mut Placement,
-                      cands: &mut Vec<(PhraseId, f64)>,
-                      next: &mut Vec<(PhraseId, f64)>,
+                      cands: &mut Cands,
+                      next: &mut Lowest,
                       scratch: &mut Vec<(PhraseId, Option<f64>)>| {
             let kids = &self.index.children[b as usize];
             let mut from = 0;
@@ -269,9 +291,9 @@ impl Searcher<'_> {
                     ld_c: ldc,
                     diag_ld_c: self.engine.diag_log_det[c as usize],
                     beam: width,
-                    beam_matters,
+                    beam_matters: follow,
                     bias: self.index.nav_bias,
-                    best_so_far: lowest(cands).map_or(f64::INFINITY, |e| e.1),
+                    best_so_far: cands.best.map_or(f64::INFINITY, |e| e.1),
                     min_ld,
                     eligible: &eligible,
                     dup_dmax: -self.cfg.duplicate_bc_min.ln(),
@@ -291,12 +313,35 @@ impl Searcher<'_> {
                 if x == c {
                     continue;
                 }
-                if broader(x) {
-                    let k = self.kl_diag(c, x);
-                    consider(x, Some(k), out, cands);
-                    next.push((x, k));
-                } else {
+                if !broader(x) {
                     consider(x, None, out, cands);
+                    continue;
+                }
+                let k = if !diagonal {
+                    // full covariance: every candidate's diagonal KL ranks the exact rescoring
+                    Some(self.kl_diag(c, x))
+                } else {
+                    // x's KL matters only below the best candidate so far (when x can be
+                    // one) or below the `width`-th lowest of `next` (when that is followed);
+                    // above both it changes no answer (ties by row: strictly above)
+                    let mut t = f64::NEG_INFINITY;
+                    if self.eff.tree.is_placed(x) && eligible(x, self.g.log_det(x as usize)) {
+                        t = cands.best.map_or(f64::INFINITY, |e| e.1);
+                    }
+                    if follow {
+                        t = t.max(next.bound());
+                    }
+                    if t == f64::INFINITY {
+                        Some(self.kl_diag(c, x))
+                    } else if t == f64::NEG_INFINITY {
+                        None
+                    } else {
+                        self.kl_diag_below(c, x, t)
+                    }
+                };
+                consider(x, k, out, cands);
+                if let Some(k) = k {
+                    next.push((x, k));
                 }
             }
         };
@@ -314,18 +359,11 @@ impl Searcher<'_> {
                 );
             }
             expanded.extend_from_slice(&beam);
-            // keep the `search_beam` lowest (ties by row); a node reachable twice (repaired
-            // index links) is kept once
-            let by =
-                |a: &(PhraseId, f64), b: &(PhraseId, f64)| a.1.total_cmp(&b.1).then(a.0.cmp(&b.0));
-            if next.len() > width {
-                next.select_nth_unstable_by(width - 1, by);
-                next.truncate(width);
-            }
-            next.sort_unstable_by(by);
-            next.dedup_by_key(|e| e.0);
+            // the `search_beam` lowest (ties by row; `next` keeps only those); a node
+            // reachable twice (repaired index links) is kept once
+            next.kept.dedup_by_key(|e| e.0);
             beam.clear();
-            beam.extend(next.iter().map(|&(x, _)| x));
+            beam.extend(next.kept.iter().map(|&(x, _)| x));
         }
         // the node's siblings (the children of its parent in the kept hierarchy) are always
         // looked at, whether or not the beam reached them: a copy sits beside its original,
@@ -340,12 +378,11 @@ impl Searcher<'_> {
             let k = (x != c && broader(x)).then(|| self.kl_diag(c, x));
             consider(x, k, &mut out, &mut cands);
         }
-        if !self.engine.diagonal {
+        let mut cands = cands.list;
+        if !diagonal {
             // the beam was steered by the KL of the diagonal parts: rescore the lowest
             // few exactly
-            let by =
-                |a: &(PhraseId, f64), b: &(PhraseId, f64)| a.1.total_cmp(&b.1).then(a.0.cmp(&b.0));
-            cands.sort_unstable_by(by);
+            cands.sort_unstable_by(by_kl);
             cands.dedup_by_key(|e| e.0);
             cands.truncate(FULL_RESCORE);
             for e in cands.iter_mut() {
@@ -356,6 +393,66 @@ impl Searcher<'_> {
         out.dups.sort_by_key(|e| e.0);
         out.dups.dedup_by_key(|e| e.0);
         out
+    }
+}
+
+/// Order of scored nodes: lower KL first, ties by the lower row.
+fn by_kl(a: &(PhraseId, f64), b: &(PhraseId, f64)) -> std::cmp::Ordering {
+    a.1.total_cmp(&b.1).then(a.0.cmp(&b.0))
+}
+
+/// The candidates of one search and the lowest of them so far.
+#[derive(Default)]
+struct Cands {
+    list: Vec<(PhraseId, f64)>,
+    /// [`lowest`] of `list`.
+    best: Option<(PhraseId, f64)>,
+}
+
+impl Cands {
+    fn push(&mut self, e: (PhraseId, f64)) {
+        if self.best.is_none_or(|b| by_kl(&e, &b).is_lt()) {
+            self.best = Some(e);
+        }
+        self.list.push(e);
+    }
+}
+
+/// The `width` lowest entries pushed (by [`by_kl`], duplicates counted), kept sorted: the
+/// same as sorting everything pushed and keeping the first `width`.
+struct Lowest {
+    width: usize,
+    kept: Vec<(PhraseId, f64)>,
+}
+
+impl Lowest {
+    fn new(width: usize) -> Self {
+        Lowest {
+            width,
+            kept: Vec::with_capacity(width + 1),
+        }
+    }
+
+    fn clear(&mut self) {
+        self.kept.clear();
+    }
+
+    fn push(&mut self, e: (PhraseId, f64)) {
+        if self.kept.len() >= self.width && self.kept.last().is_none_or(|l| by_kl(&e, l).is_ge()) {
+            return;
+        }
+        let at = self.kept.partition_point(|a| by_kl(a, &e).is_le());
+        self.kept.insert(at, e);
+        self.kept.truncate(self.width);
+    }
+
+    /// The KL an entry must not exceed to be kept (+∞ until `width` are kept).
+    fn bound(&self) -> f64 {
+        if self.kept.len() < self.width {
+            f64::INFINITY
+        } else {
+            self.kept.last().map_or(f64::INFINITY, |l| l.1)
+        }
     }
 }
 

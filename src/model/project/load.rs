@@ -192,6 +192,9 @@ impl Project {
                 resolve_inside(&dir, r, "signoff.revoked_keys")?;
             }
         }
+        // the parsed files and temporary tables are freed: give their pages back before
+        // the caller's large steps (memtrim.rs)
+        crate::model::memtrim::release_free_memory();
         Ok(Project {
             dir,
             manifest,
