@@ -1,5 +1,7 @@
 //! The phrase table: stable string ids and display labels, indexed by [`PhraseId`].
 
+use std::sync::Arc;
+
 use serde::{Deserialize, Serialize};
 
 use super::gaussian::PhraseId;
@@ -29,12 +31,15 @@ pub fn id_from_label(label: &str) -> String {
 /// The lookup is the rows sorted by id (binary search) rather than a hash map keyed by a
 /// second copy of every id: at 100 000 phrases that copy and its table cost about 7 MB, and
 /// the few hundred thousand lookups made while loading a tree take milliseconds either way.
+///
+/// The rows never change after the table is built, so they are shared between copies: a
+/// copy (the workbench hands one to its background audit) costs no million string copies.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct PhraseTable {
-    ids: Vec<String>,
-    labels: Vec<String>,
+    ids: Arc<Vec<String>>,
+    labels: Arc<Vec<String>>,
     /// Rows ordered by id.
-    by_id: Vec<PhraseId>,
+    by_id: Arc<Vec<PhraseId>>,
     /// The project's languages, when it names any (`default_language`, `labels` maps).
     langs: Option<Box<PhraseLanguages>>,
 }
@@ -108,9 +113,9 @@ impl PhraseTable {
             });
         }
         Ok(PhraseTable {
-            ids,
-            labels,
-            by_id,
+            ids: Arc::new(ids),
+            labels: Arc::new(labels),
+            by_id: Arc::new(by_id),
             langs: None,
         })
     }
@@ -262,7 +267,7 @@ impl PhraseTable {
     pub fn records(&self) -> Vec<PhraseRecord> {
         self.ids
             .iter()
-            .zip(&self.labels)
+            .zip(self.labels.iter())
             .map(|(id, label)| PhraseRecord {
                 id: Some(id.clone()),
                 label: label.clone(),
@@ -280,6 +285,21 @@ mod tests {
             id: id.map(str::to_string),
             label: label.to_string(),
         }
+    }
+
+    #[test]
+    fn a_copy_shares_the_rows_and_compares_equal() {
+        let t = PhraseTable::from_ids(&["a", "b-c"]).unwrap();
+        let mut u = t.clone();
+        assert!(Arc::ptr_eq(&t.ids, &u.ids) && Arc::ptr_eq(&t.labels, &u.labels));
+        assert_eq!(t, u);
+        // the languages are the copy's own
+        u.set_languages(PhraseLanguages {
+            default: "de".into(),
+            other: Default::default(),
+        });
+        assert_eq!((t.default_language(), u.default_language()), ("en", "de"));
+        assert_eq!(u.label(1), "b c");
     }
 
     #[test]

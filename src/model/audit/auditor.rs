@@ -186,6 +186,9 @@ impl Auditor {
                 placement[p as usize] = pl;
             }
         }
+        // the searches' scratch vectors, freed on two threads, sit in the allocator's
+        // per-thread pools: give those pages back before the report is assembled
+        crate::model::memtrim::release_free_memory();
         let mut conf = IncConfidence::new(eff, &stats, &placement);
         let mut report = assemble_with(
             g,
@@ -199,6 +202,8 @@ impl Auditor {
             Some(&mut conf),
         );
         report.fit = fit;
+        // and the assembly's (the sort keys of the findings) before the snapshot is taken
+        crate::model::memtrim::release_free_memory();
         Auditor {
             snapshot: Snapshot::of(eff),
             cfg,
