@@ -184,8 +184,11 @@ pub fn run(args: &BuildArgs) -> Result<(), CliError> {
         // the effective tree plays no part in the build and is made again when the new
         // base is installed: free it for the build (less peak memory)
         ws.eff = None;
-        // nor does the report of an earlier build, which this one replaces
+        // nor does the report of an earlier build, which this one replaces, nor the old
+        // base tree (the build reads only the phrases and their Gaussians)
         ws.build_report = None;
+        ws.project.tree = None;
+        crate::model::memtrim::release_free_memory();
         let built = build_with(&ws.project, inclusion.as_ref(), &params)?;
         let summary = Summary::of(&built);
         // the tree file and the report are dropped once written, before the workspace
@@ -195,10 +198,13 @@ pub fn run(args: &BuildArgs) -> Result<(), CliError> {
     } else {
         // nothing is installed: keep the project alone and free the workspace's effective
         // tree before the build (less peak memory)
-        let project = {
+        let mut project = {
             let ws = ws;
             ws.project
         };
+        // the build reads only the phrases and their Gaussians: free the old tree too
+        project.tree = None;
+        crate::model::memtrim::release_free_memory();
         let built = build_with(&project, inclusion.as_ref(), &params)?;
         let tree_bytes = tree_bytes(&built.tree_file, &out)
             .map_err(|e| CliError::bad_input(format!("{}: {e}", out.display())))?;

@@ -551,6 +551,9 @@ pub(super) fn coherence_pass(
     // one model, so the pass works on `shape` and `cost_of` in place (no copies)
     let own = input.own_phrase && !points;
     let mut moves = 0;
+    // the candidate search's buffers are gone: hand their pages back before the pass
+    // allocates its rows of sums (less peak memory; no result changes)
+    crate::model::memtrim::release_free_memory();
     if own {
         // the smooth reading first (the own phrase at the parent's mean), then the exact one
         // from where it stopped
@@ -566,6 +569,9 @@ pub(super) fn coherence_pass(
             cost_of,
             input.cancel,
         );
+        // the first pass's rows are freed: their pages back before the second pass's
+        drop(coh);
+        crate::model::memtrim::release_free_memory();
     }
     let mut coh = Coherence::with_model(input.g, input.members, shape, input.weight, points, own);
     moves += shape.cohere(
