@@ -1402,4 +1402,27 @@ mod tests {
         b.save(&p).unwrap();
         assert_eq!(OverrideLayer::load(&p).unwrap().edits, merged);
     }
+
+    /// `can_undo` (what greys the workbench's Undo) says yes exactly when `undo_step` has a
+    /// step to take: an edit, or a merge, also one whose result holds no edit at all
+    /// (common practice, no source; found by mutation testing: a `can_undo` that always
+    /// said no, or that wanted both an edit and an empty merge, passed every test).
+    #[test]
+    fn can_undo_agrees_with_undo_step() {
+        let mut l = OverrideLayer::new();
+        assert!(!l.can_undo() && l.clone().undo_step().is_none());
+        l.push(rec(Edit::Exclude { node: "a".into() }));
+        assert!(l.can_undo());
+        assert!(matches!(l.undo_step(), Some(Step::Edit(_))));
+        assert!(!l.can_undo());
+        // a merge with the file on disk that left no edit (the other side undid everything)
+        let mut m = OverrideLayer::new();
+        let before = m.state();
+        m.disk = Fingerprint::of_bytes(b"[]");
+        m.record_merge(before);
+        assert!(m.edits.is_empty());
+        assert!(m.can_undo(), "the merge itself can be undone");
+        assert_eq!(m.undo_step(), Some(Step::Merge { from: 0, to: 0 }));
+        assert_eq!(m.disk, Fingerprint::Missing);
+    }
 }
