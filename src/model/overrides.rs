@@ -1425,4 +1425,32 @@ mod tests {
         assert_eq!(m.undo_step(), Some(Step::Merge { from: 0, to: 0 }));
         assert_eq!(m.disk, Fingerprint::Missing);
     }
+
+    /// The root is refused as the node of a reparent or an exclusion wherever it sits in
+    /// the phrase table, and the phrase of row 0 is an ordinary node when it is not the
+    /// root (common practice, no source; found by mutation testing: every test tree had its
+    /// root at row 0, so a working state that called row 0 the root passed).
+    #[test]
+    fn the_root_is_the_tree_root_not_row_zero() {
+        let t = table(&["compost", "plants", "fern"]);
+        let base = tree(&t, "plants", &[("compost", "plants"), ("fern", "plants")]);
+        let edits = vec![
+            rec(Edit::Exclude {
+                node: "plants".into(),
+            }),
+            rec(Edit::Reparent {
+                node: "plants".into(),
+                parent: "fern".into(),
+            }),
+            rec(Edit::Reparent {
+                node: "compost".into(),
+                parent: "fern".into(),
+            }),
+        ];
+        let (eff, probs) = apply(&base, &t, &edits);
+        let refused: Vec<usize> = probs.iter().map(|p| p.index).collect();
+        assert_eq!(refused, vec![0, 1], "{probs:?}");
+        assert_eq!(eff.tree.root(), t.get("plants").unwrap());
+        assert_eq!(parent_id(&eff, &t, "compost"), Some("fern"));
+    }
 }
