@@ -820,7 +820,7 @@ pub fn build_inclusion(
                 let mut by_row = if dropped {
                     child_options(li).0
                 } else {
-                    options[li].to_vec()
+                    options.get(li).to_vec()
                 };
                 by_row.sort_by_key(|x| members[x.1 as usize]);
                 for (w, p) in by_row {
@@ -916,10 +916,11 @@ pub fn build_inclusion(
         let child_id = phrases.id(members[li]).to_string();
         let parent_id = phrases.id(members[p as usize]).to_string();
         total_cost += cost_of[li];
-        let runner_up = options[li]
+        let runner_up = options
+            .get(li)
             .iter()
             .find(|x| x.1 != p)
-            .map(|&(w, q)| RunnerUp {
+            .map(|(w, q)| RunnerUp {
                 id: phrases.id(members[q as usize]).to_string(),
                 cost: w,
             });

@@ -430,7 +430,7 @@ impl Shape {
                 } else {
                     0
                 };
-                for &(w, q) in &options[v] {
+                for (w, q) in options.get(v).iter() {
                     let q = q as usize;
                     if Some(q as u32) == self.parent[v] || self.in_subtree(q, v) {
                         continue;

@@ -9,17 +9,17 @@
 //! offsets, and [`cheapest_if_acyclic`] returns the arborescence without building edges when
 //! no cycle can arise.
 
-use std::ops::Index;
-
 /// A candidate parent: (edge cost, local index of the parent).
 pub(super) type Opt = (f64, u32);
 
-/// The candidates of a run of consecutive nodes: node `first + i` owns
-/// `opts[start[i]..start[i + 1]]`.
+/// The candidates of a run of consecutive nodes: node `first + i` owns entries
+/// `start[i]..start[i + 1]` of `cost` and `parent` (costs and parents in two arrays: 12
+/// bytes a candidate instead of the 16 of an `(f64, u32)` pair with its padding).
 #[derive(Default)]
 pub(super) struct OptionBlock {
-    start: Vec<usize>,
-    opts: Vec<Opt>,
+    start: Vec<u32>,
+    cost: Vec<f64>,
+    parent: Vec<u32>,
 }
 
 impl OptionBlock {
@@ -29,14 +29,17 @@ impl OptionBlock {
         start.push(0);
         OptionBlock {
             start,
-            opts: Vec::with_capacity(nodes * per_node),
+            cost: Vec::with_capacity(nodes * per_node),
+            parent: Vec::with_capacity(nodes * per_node),
         }
     }
 
     /// Append the next node's candidates.
     pub(super) fn push(&mut self, opts: &[Opt]) {
-        self.opts.extend_from_slice(opts);
-        self.start.push(self.opts.len());
+        self.cost.extend(opts.iter().map(|o| o.0));
+        self.parent.extend(opts.iter().map(|o| o.1));
+        let end = u32::try_from(self.cost.len()).expect("a block holds fewer than 2³² candidates");
+        self.start.push(end);
     }
 
     /// Nodes in the block.
@@ -46,14 +49,40 @@ impl OptionBlock {
 
     /// Release unused room.
     pub(super) fn shrink(&mut self) {
-        self.opts.shrink_to_fit();
+        self.cost.shrink_to_fit();
+        self.parent.shrink_to_fit();
         self.start.shrink_to_fit();
     }
 }
 
+/// One node's candidate list, in order: (cost, parent) pairs read from the two arrays of
+/// its block.
+#[derive(Clone, Copy)]
+pub(super) struct OptList<'a> {
+    cost: &'a [f64],
+    parent: &'a [u32],
+}
+
+impl<'a> OptList<'a> {
+    /// The candidates in order.
+    pub(super) fn iter(self) -> impl Iterator<Item = Opt> + 'a {
+        self.cost.iter().copied().zip(self.parent.iter().copied())
+    }
+
+    /// The first (cheapest) candidate.
+    pub(super) fn first(self) -> Option<Opt> {
+        Some((*self.cost.first()?, *self.parent.first()?))
+    }
+
+    /// The candidates as pairs.
+    pub(super) fn to_vec(self) -> Vec<Opt> {
+        self.iter().collect()
+    }
+}
+
 /// The candidate parents of every node (local indices), each list sorted by (cost, row) —
-/// the layout of `Vec<Vec<Opt>>` without a separate allocation per node. `options[v]` is node
-/// v's list.
+/// the layout of `Vec<Vec<Opt>>` without a separate allocation per node. `options.get(v)`
+/// is node v's list.
 pub(super) struct Options {
     block: usize,
     blocks: Vec<OptionBlock>,
@@ -76,15 +105,16 @@ impl Options {
     pub(super) fn len(&self) -> usize {
         self.len
     }
-}
 
-impl Index<usize> for Options {
-    type Output = [Opt];
-
-    fn index(&self, v: usize) -> &[Opt] {
+    /// Node `v`'s candidates.
+    pub(super) fn get(&self, v: usize) -> OptList<'_> {
         let b = &self.blocks[v / self.block];
         let i = v % self.block;
-        &b.opts[b.start[i]..b.start[i + 1]]
+        let (lo, hi) = (b.start[i] as usize, b.start[i + 1] as usize);
+        OptList {
+            cost: &b.cost[lo..hi],
+            parent: &b.parent[lo..hi],
+        }
     }
 }
 
@@ -110,11 +140,11 @@ pub(super) fn cheapest_if_acyclic(
         if v == root {
             continue;
         }
-        let opts = &options[v];
+        let opts = options.get(v);
         if opts.iter().any(|o| !o.0.is_finite()) {
             return None;
         }
-        let &(w, p) = opts.first()?;
+        let (w, p) = opts.first()?;
         if p as usize == v || p as usize >= m {
             return None;
         }
@@ -181,7 +211,7 @@ mod tests {
             let t = table(&lists, block);
             assert_eq!(t.len(), 11);
             for (v, l) in lists.iter().enumerate() {
-                assert_eq!(&t[v], &l[..], "block {block}, node {v}");
+                assert_eq!(t.get(v).to_vec(), l.to_vec(), "block {block}, node {v}");
             }
         }
     }

@@ -2,7 +2,7 @@
 //! parent module's documentation, steps 4 and 5).
 
 use super::Scorer;
-use super::options::Options;
+use super::options::{OptList, Options};
 
 /// A mutable tree on local indices, for repair and refinement.
 #[derive(Clone)]
@@ -102,7 +102,7 @@ impl Shape {
     fn best_option(
         &self,
         v: usize,
-        options: &[(f64, u32)],
+        options: OptList,
         max_depth: Option<usize>,
         max_fanout: Option<usize>,
         below: f64,
@@ -112,7 +112,7 @@ impl Shape {
         } else {
             0
         };
-        for &(w, q) in options {
+        for (w, q) in options.iter() {
             if w >= below {
                 break;
             }
@@ -168,7 +168,7 @@ impl Shape {
                         continue;
                     }
                     if let Some((w, q)) =
-                        self.best_option(c, &options[c], max_depth, Some(f), f64::INFINITY)
+                        self.best_option(c, options.get(c), max_depth, Some(f), f64::INFINITY)
                     {
                         self.move_to(c, q);
                         cost_of[c] = w;
@@ -223,21 +223,22 @@ impl Shape {
                 break;
             }
             for v in violators {
-                let fits = options[v].iter().find(|&&(_, q)| {
+                let fits = options.get(v).iter().find(|&(_, q)| {
                     let q = q as usize;
                     depth[q] < dmax
                         && !self.in_subtree(q, v)
                         && max_fanout.is_none_or(|f| self.children[q].len() < f)
                 });
                 let (w, q) = match fits {
-                    Some(&(w, q)) => (w, q as usize),
+                    Some((w, q)) => (w, q as usize),
                     None => {
                         // the ancestor at depth dmax − 1
                         let mut a = v;
                         while depth[a] > dmax - 1 {
                             a = self.parent[a].expect("deeper than the root") as usize;
                         }
-                        let w = options[v]
+                        let w = options
+                            .get(v)
                             .iter()
                             .find(|x| x.1 as usize == a)
                             .map_or(cost_of[v], |x| x.0);
@@ -271,7 +272,7 @@ impl Shape {
                 let cur = cost_of[v];
                 if let Some((w, q)) = self.best_option(
                     v,
-                    &options[v],
+                    options.get(v),
                     max_depth,
                     max_fanout,
                     cur - 1e-12 * cur.abs().max(1.0),
