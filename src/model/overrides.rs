@@ -1452,5 +1452,41 @@ mod tests {
         assert_eq!(refused, vec![0, 1], "{probs:?}");
         assert_eq!(eff.tree.root(), t.get("plants").unwrap());
         assert_eq!(parent_id(&eff, &t, "compost"), Some("fern"));
+        // the same checks on a finished effective tree (the edit dialogs' check)
+        let exclude_root = Edit::Exclude {
+            node: "plants".into(),
+        };
+        assert!(matches!(
+            check_edit(&eff, &t, &exclude_root),
+            Err(EditRefusal::RootExcluded { .. })
+        ));
+        let back = Edit::Reparent {
+            node: "compost".into(),
+            parent: "plants".into(),
+        };
+        assert_eq!(check_edit(&eff, &t, &back), Ok(()));
+    }
+
+    /// A rename in the project's default language, named explicitly, renames the main label
+    /// (the working state reads the default language from the project; common practice,
+    /// no source; found by mutation testing: a working state with no languages passed).
+    #[test]
+    fn a_rename_in_the_default_language_renames_the_main_label() {
+        let (t, base) = garden();
+        let (eff0, _) = apply(&base, &t, &[]);
+        let default = eff0.languages.default.clone();
+        assert!(!default.is_empty());
+        let edits = vec![rec(Edit::Rename {
+            node: "fern".into(),
+            label: "hart's tongue".into(),
+            language: Some(default.clone()),
+        })];
+        let (eff, probs) = apply(&base, &t, &edits);
+        assert!(probs.is_empty(), "{probs:?}");
+        assert_eq!(eff.labels[t.get("fern").unwrap() as usize], "hart's tongue");
+        assert!(
+            eff.languages.other.is_empty(),
+            "no label in another language"
+        );
     }
 }
