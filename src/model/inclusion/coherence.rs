@@ -559,23 +559,26 @@ pub(super) fn coherence_pass(
         // from where it stopped
         let mut coh =
             Coherence::with_model(input.g, input.members, shape, input.weight, points, false);
-        moves += shape.cohere(
-            &mut coh,
-            input.rounds,
-            input.max_depth,
-            input.max_fanout,
-            input.options,
-            input.fixed,
-            cost_of,
-            input.cancel,
-        );
+        moves += run(shape, &mut coh, cost_of, input);
         // the first pass's rows are freed: their pages back before the second pass's
         drop(coh);
         crate::model::memtrim::release_free_memory();
     }
     let mut coh = Coherence::with_model(input.g, input.members, shape, input.weight, points, own);
-    moves += shape.cohere(
-        &mut coh,
+    moves += run(shape, &mut coh, cost_of, input);
+    let model = if points {
+        SpreadModel::Points
+    } else {
+        SpreadModel::Children
+    };
+    (moves, model)
+}
+
+/// One coherence run of `input`'s rounds and limits over `shape` with the sums `coh`;
+/// returns the moves made.
+fn run(shape: &mut Shape, coh: &mut Coherence, cost_of: &mut [f64], input: &PassInput) -> usize {
+    shape.cohere(
+        coh,
         input.rounds,
         input.max_depth,
         input.max_fanout,
@@ -583,13 +586,7 @@ pub(super) fn coherence_pass(
         input.fixed,
         cost_of,
         input.cancel,
-    );
-    let model = if points {
-        SpreadModel::Points
-    } else {
-        SpreadModel::Children
-    };
-    (moves, model)
+    )
 }
 
 /// Evidence that parents sit away from the centroid of their children (> 0) rather than at
