@@ -1489,4 +1489,48 @@ mod tests {
             "no label in another language"
         );
     }
+
+    /// An excluded node that is included again goes back under the parent it had, with the
+    /// children that had moved up (common practice, no source; found by mutation testing:
+    /// an include that never found the old parent usable, and so put the node under the
+    /// root, passed).
+    #[test]
+    fn include_puts_the_node_back_where_it_was() {
+        let (t, base) = garden();
+        let edits = vec![
+            rec(Edit::Exclude {
+                node: "succulent".into(),
+            }),
+            rec(Edit::Include {
+                node: "succulent".into(),
+            }),
+        ];
+        let (eff, probs) = apply(&base, &t, &edits[..1]);
+        assert!(probs.is_empty(), "{probs:?}");
+        assert_eq!(parent_id(&eff, &t, "cactus"), Some("drought-tolerant"));
+        let (eff, probs) = apply(&base, &t, &edits);
+        assert!(probs.is_empty(), "{probs:?}");
+        assert_eq!(parent_id(&eff, &t, "succulent"), Some("drought-tolerant"));
+        assert_eq!(parent_id(&eff, &t, "cactus"), Some("succulent"));
+    }
+
+    /// On a finished effective tree, a rename to the current label in the default language
+    /// named explicitly is refused as no change (common practice, no source; found by
+    /// mutation testing: a tree view with no languages took it for another language).
+    #[test]
+    fn check_edit_knows_the_default_language() {
+        let (t, base) = garden();
+        let (eff, _) = apply(&base, &t, &[]);
+        let default = eff.languages.default.clone();
+        let fern = eff.labels[t.get("fern").unwrap() as usize].clone();
+        let same = Edit::Rename {
+            node: "fern".into(),
+            label: fern,
+            language: Some(default),
+        };
+        assert!(matches!(
+            check_edit(&eff, &t, &same),
+            Err(EditRefusal::SameLabel { .. })
+        ));
+    }
 }
