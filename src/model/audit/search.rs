@@ -523,6 +523,29 @@ mod tests {
     /// docs/maths.md section 4): KL(c ‖ a) = ½ ln 800 + 441.5 / 800 − ½ = 3.3943 is below
     /// KL(c ‖ b) = ½ ln 40 + 121.5 / 40 − ½ = 4.3819, so a beam of width 1 keeps a and never
     /// looks under b, where b1 fits c far better: KL(c ‖ b1) = ½ ln 6 + 0.5 / 6 − ½ = 0.4792.
+    /// `f` run with a searcher over the tree as it is (the audit's index repair would link
+    /// c elsewhere) and the audit's own statistics engine.
+    fn with_searcher<R>(
+        t: &crate::model::phrase::PhraseTable,
+        g: &Gaussians,
+        eff: &EffectiveTree,
+        cfg: &AuditConfig,
+        f: impl FnOnce(&Searcher) -> R,
+    ) -> R {
+        let aud = Auditor::new(g, t, eff, &[], cfg.clone());
+        let index = CandidateIndex::of(eff);
+        let order = Order::of(eff);
+        f(&Searcher {
+            g,
+            engine: &aud.engine,
+            eff,
+            order: &order,
+            index: &index,
+            cfg,
+            exhaustive: false,
+        })
+    }
+
     fn rows(copy: bool) -> Vec<(&'static str, f64, f64)> {
         let mut rows = vec![
             ("r", 0.0, 1e4),
@@ -568,27 +591,15 @@ mod tests {
         let cfg = narrow();
         // the broken twin (no second search) is `search` with the narrow beam: it names a,
         // not the better b1 (`first` below)
-        let aud = Auditor::new(&g, &t, &eff, &[], cfg.clone());
-        // the index of the tree as it is (the audit's repair would link c elsewhere)
-        let index = CandidateIndex::of(&eff);
-        let order = Order::of(&eff);
-        let s = Searcher {
-            g: &g,
-            engine: &aud.engine,
-            eff: &eff,
-            order: &order,
-            index: &index,
-            cfg: &cfg,
-            exhaustive: false,
-        };
         let c = t.get("c").unwrap();
         let (a, b1) = (t.get("a").unwrap(), t.get("b1").unwrap());
-        let first = s.search(c, 1).best.unwrap();
+        let (first, best) = with_searcher(&t, &g, &eff, &cfg, |s| {
+            (s.search(c, 1).best.unwrap(), s.place(c).best.unwrap())
+        });
         assert_eq!(first.0, a);
         assert!((first.1 - 3.394_3).abs() < 1e-3, "{first:?}");
         // KL(c ‖ z) = ½ ln 8 + 2601.5 / 8 − ½ = 325.73 clears the gain, so the wider search
         // runs and finds b1
-        let best = s.place(c).best.unwrap();
         assert_eq!(best.0, b1);
         assert!((best.1 - 0.479_2).abs() < 1e-3, "{best:?}");
         let r = audit(&g, &t, &eff, &[], &cfg);
@@ -614,23 +625,10 @@ mod tests {
             better_parent_margin: 1e9,
             ..narrow()
         };
-        let aud = Auditor::new(&g, &t, &eff, &[], cfg.clone());
-        // the index of the tree as it is (the audit's repair would link c elsewhere)
-        let index = CandidateIndex::of(&eff);
-        let order = Order::of(&eff);
-        let s = Searcher {
-            g: &g,
-            engine: &aud.engine,
-            eff: &eff,
-            order: &order,
-            index: &index,
-            cfg: &cfg,
-            exhaustive: false,
-        };
         let (c, c2) = (t.get("c").unwrap(), t.get("c2").unwrap());
         // the broken twin (no sibling look: the block after the beam loop deleted) finds no
         // duplicate here: the beam goes r → a → z and never reaches w
-        let dups = s.search(c, 1).dups;
+        let dups = with_searcher(&t, &g, &eff, &cfg, |s| s.search(c, 1).dups);
         assert_eq!(dups.len(), 1, "{dups:?}");
         assert_eq!(dups[0].0, c2);
         assert!((dups[0].1 - (-1e-4f64).exp()).abs() < 1e-6, "{dups:?}");
