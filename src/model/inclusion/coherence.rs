@@ -41,6 +41,9 @@ use super::options::Options;
 use super::repair::Shape;
 use crate::model::gaussian::Gaussians;
 
+mod gain;
+use gain::LeaveCache;
+
 /// How a node's spread is implied by its descendants (see the module documentation).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
 #[serde(rename_all = "lowercase")]
@@ -414,6 +417,7 @@ impl Shape {
         cancel: &std::sync::atomic::AtomicBool,
     ) -> usize {
         let mut moves = 0;
+        let mut cache = LeaveCache::new(coh.d);
         for _ in 0..rounds {
             let mut moved = 0;
             for v in 0..self.parent.len() {
@@ -424,7 +428,8 @@ impl Shape {
                     return moves + moved;
                 }
                 let cur = cost_of[v];
-                let mut best: Option<(f64, f64, usize, Vec<Change>)> = None;
+                let mut best: Option<(f64, f64, usize)> = None;
+                cache.reset(coh, self, v);
                 let h = if max_depth.is_some() {
                     self.height(v)
                 } else {
@@ -441,7 +446,16 @@ impl Shape {
                     if max_depth.is_some_and(|dm| self.depth_of(q) + 1 + h > dm) {
                         continue;
                     }
-                    let Some((dc, ch)) = coh.delta(self, v, q, w - cur) else {
+                    // a move must lower the total below the best so far (or by more than
+                    // rounding): skip those whose largest possible fall cannot get there
+                    let need = best.as_ref().map_or(-1e-9 * cur.abs().max(1.0), |b| b.0);
+                    #[cfg(test)]
+                    let need = if tests::TWIN.get() {
+                        f64::INFINITY
+                    } else {
+                        need
+                    };
+                    let Some(dc) = coh.gain(self, q, w - cur, (w - cur) - need, &mut cache) else {
                         continue;
                     };
                     let gain = (w - cur) + dc;
@@ -452,10 +466,12 @@ impl Shape {
                     // strictly better by more than rounding; ties keep the earlier option
                     if gain < -1e-9 * cur.abs().max(1.0) && best.as_ref().is_none_or(|b| gain < b.0)
                     {
-                        best = Some((gain, w, q, ch));
+                        best = Some((gain, w, q));
                     }
                 }
-                if let Some((_, w, q, ch)) = best {
+                if let Some((_, w, q)) = best {
+                    // the per-node changes of the move taken (the same sums `gain` used)
+                    let (_, ch) = coh.delta(self, v, q, 0.0).expect("no pruning at rise 0");
                     coh.apply(v, ch);
                     self.move_to(v, q);
                     cost_of[v] = w;
