@@ -63,10 +63,10 @@ impl LeaveCache {
             let mv = coh.g.mean(gv);
             self.m1.copy_from_slice(coh.s1.get(v));
             self.m2.copy_from_slice(coh.s2.get(v));
-            for j in 0..coh.d {
-                let x = mv[j] as f64;
-                self.m1[j] += x;
-                self.m2[j] += x * x;
+            for ((a, b), &x) in self.m1.iter_mut().zip(self.m2.iter_mut()).zip(mv) {
+                let x = x as f64;
+                *a += x;
+                *b += x * x;
             }
         }
     }
@@ -83,6 +83,9 @@ fn fill_path(shape: &Shape, from: usize, first: usize, out: &mut Vec<(usize, usi
     }
 }
 
+// The index loops below mirror `Coherence::delta` operation for operation, so that every sum
+// is the same to the bit.
+#[allow(clippy::needless_range_loop)]
 impl Coherence<'_> {
     /// The first value of [`Coherence::delta`] for moving `c.v` (see [`LeaveCache::reset`])
     /// to `q`, bit for bit, or None where `delta` prunes the move, or where the change
@@ -126,10 +129,10 @@ impl Coherence<'_> {
                 let x = c.pb[i].0;
                 let (o1, o2) = (self.s1.get(x), self.s2_of(x));
                 for j in 0..self.d {
-                    c.b1[j] = o1[j] + 1.0 * c.m1[j];
-                    c.b2[j] = o2[j] + 1.0 * c.m2[j];
+                    c.b1[j] = o1[j] + c.m1[j];
+                    c.b2[j] = o2[j] + c.m2[j];
                 }
-                total += self.disagreement(x, self.s0[x] + 1.0 * s, &c.b1, &c.b2) - self.dis[x];
+                total += self.disagreement(x, self.s0[x] + s, &c.b1, &c.b2) - self.dis[x];
             }
         } else {
             for i in 0..na - 1 {
@@ -141,13 +144,13 @@ impl Coherence<'_> {
             self.term(ya, l, &mut c.t);
             self.term(yb, l, &mut c.tb);
             let mut ds0 = 0.0;
-            ds0 += -1.0 * s;
-            ds0 += 1.0 * s;
+            ds0 += -s;
+            ds0 += s;
             let (o1, o2) = (self.s1.get(l), self.s2_of(l));
             for j in 0..self.d {
                 let mut e = 0.0;
-                e += -1.0 * s * c.t[j];
-                e += 1.0 * s * c.tb[j];
+                e += -s * c.t[j];
+                e += s * c.tb[j];
                 c.b1[j] = o1[j] + e;
             }
             if self.own {
@@ -157,8 +160,8 @@ impl Coherence<'_> {
                 );
                 for j in 0..self.d {
                     let mut e = 0.0;
-                    e += -1.0 * s * ma[j] as f64;
-                    e += 1.0 * s * mb[j] as f64;
+                    e += -s * ma[j] as f64;
+                    e += s * mb[j] as f64;
                     c.b2[j] = o2[j] + e;
                 }
             }
@@ -190,10 +193,10 @@ impl Coherence<'_> {
         let val = if self.points {
             let (o1, o2) = (self.s1.get(x), self.s2_of(x));
             for j in 0..self.d {
-                c.b1[j] = o1[j] + -1.0 * c.m1[j];
-                c.b2[j] = o2[j] + -1.0 * c.m2[j];
+                c.b1[j] = o1[j] - c.m1[j];
+                c.b2[j] = o2[j] - c.m2[j];
             }
-            self.disagreement(x, self.s0[x] + -1.0 * s, &c.b1, &c.b2) - self.dis[x]
+            self.disagreement(x, self.s0[x] - s, &c.b1, &c.b2) - self.dis[x]
         } else {
             self.side_value(x, y, -1.0, s, c)
         };
