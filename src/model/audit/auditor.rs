@@ -5,7 +5,9 @@ use rayon::prelude::*;
 use super::calibrate;
 use super::confidence_inc::IncConfidence;
 use super::rules::Rule;
-use super::search::{CandidateIndex, Order, Placement, Searcher, needs_search, suspicious};
+use super::search::{
+    CandidateIndex, NavMemo, Order, Placement, Searcher, needs_search, suspicious,
+};
 use super::{AuditConfig, AuditReport, Finding, assemble_with, treefit};
 use crate::model::edit::{EditRecord, ReviewStatus};
 use crate::model::effective::{ApplyProblem, EffectiveTree};
@@ -149,6 +151,10 @@ impl Auditor {
         // with an index repair to come, every node that clears the better-parent gain is
         // searched again after it, so the wider search waits for that pass
         let repair = !exhaustive && fit.fits;
+        // what the first pass found in the navigation indexes, per node, for the pass
+        // after the repair (`NavMemo`: the repair leaves those answers as they were)
+        let mut memos: std::collections::HashMap<PhraseId, NavMemo> =
+            std::collections::HashMap::new();
         {
             let s = searcher!();
             // siblings one after the other: their searches read mostly the same rows, which
@@ -157,12 +163,18 @@ impl Auditor {
             // the order changes no answer
             let order = sibling_order(eff);
             for chunk in order.chunks(SEARCH_CHUNK) {
-                let fresh: Vec<Placement> = chunk
+                let fresh: Vec<(Placement, NavMemo)> = chunk
                     .par_iter()
-                    .map(|&p| s.place_with(p, !repair))
+                    .map(|&p| match repair {
+                        true => s.place_recording(p),
+                        false => (s.place_with(p, true), NavMemo::default()),
+                    })
                     .collect();
-                for (&p, pl) in chunk.iter().zip(fresh) {
+                for (&p, (pl, m)) in chunk.iter().zip(fresh) {
                     placement[p as usize] = pl;
+                    if !m.is_empty() {
+                        memos.insert(p, m);
+                    }
                 }
             }
         }
@@ -181,11 +193,15 @@ impl Auditor {
             }
             index = index.with_nav();
             let s = searcher!();
-            let fresh: Vec<Placement> = suspects.par_iter().map(|&p| s.place(p)).collect();
+            let fresh: Vec<Placement> = suspects
+                .par_iter()
+                .map(|&p| s.place_remembered(p, memos.get(&p)))
+                .collect();
             for (&p, pl) in suspects.iter().zip(fresh) {
                 placement[p as usize] = pl;
             }
         }
+        drop(memos);
         // the searches' scratch vectors, freed on two threads, sit in the allocator's
         // per-thread pools: give those pages back before the report is assembled
         crate::model::memtrim::release_free_memory();
