@@ -96,11 +96,13 @@ impl Auditor {
         cfg: AuditConfig,
         nav_min: usize,
     ) -> Self {
-        Self::with_nav_opts(g, phrases, eff, problems, cfg, nav_min, 0.0)
+        Self::with_nav_opts(g, phrases, eff, problems, cfg, nav_min, 0.0, false)
     }
 
     /// [`Auditor::with_nav_min`] with `nav_bias` nats added to the navigation indexes' KL
-    /// bounds (tests only: a positive value is a deliberately broken twin).
+    /// bounds (tests only: a positive value is a deliberately broken twin), and with the
+    /// broken twin of the first pass's memo when `memo_broken` (`CandidateIndex`).
+    #[allow(clippy::too_many_arguments)]
     pub(super) fn with_nav_opts(
         g: &Gaussians,
         phrases: &PhraseTable,
@@ -109,6 +111,7 @@ impl Auditor {
         cfg: AuditConfig,
         nav_min: usize,
         nav_bias: f64,
+        memo_broken: bool,
     ) -> Self {
         // what was freed before (loading, applying the edits) goes back first (memtrim.rs)
         crate::model::memtrim::release_free_memory();
@@ -116,6 +119,7 @@ impl Auditor {
         let mut index = CandidateIndex::of(eff);
         index.nav_min = nav_min;
         index.nav_bias = nav_bias;
+        index.memo_broken = memo_broken;
         index = index.with_nav();
         let stats = engine.compute(g, eff);
         // the tree-level fit first (treefit.rs)

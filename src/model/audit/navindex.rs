@@ -689,9 +689,15 @@ mod tests {
     /// their KL bounds raised by `bias` nats, finds what scoring every child finds
     /// (placements and findings).
     fn index_agrees(n: usize, mixed: bool, seed: u64, bias: f64) -> bool {
+        index_agrees_with(n, mixed, seed, bias, false)
+    }
+
+    /// [`index_agrees`], with the broken twin of the first pass's memo when `memo_broken`
+    /// (`search.rs`, `NavMemo`).
+    fn index_agrees_with(n: usize, mixed: bool, seed: u64, bias: f64, memo_broken: bool) -> bool {
         let (g, eff) = wide_tree(n, mixed, seed);
         let (t, cfg) = numbered_table_and_cfg(n);
-        let with = Auditor::with_nav_opts(&g, &t, &eff, &[], cfg.clone(), 16, bias);
+        let with = Auditor::with_nav_opts(&g, &t, &eff, &[], cfg.clone(), 16, bias, memo_broken);
         let without = Auditor::with_nav_min(&g, &t, &eff, &[], cfg, usize::MAX);
         assert!(
             !with.index.nav.is_empty(),
@@ -726,6 +732,21 @@ mod tests {
                 .any(|mixed| !index_agrees(2000, mixed, 100 + seed, 2.0))
         });
         assert!(caught, "a 2-nat too tight bound went unnoticed");
+    }
+
+    #[test]
+    fn a_memo_that_keeps_too_little_is_caught() {
+        // The broken twin of the first pass's memo (search.rs, `NavMemo`): it keeps only the
+        // `search_beam` lowest broader children of each answer, so the searches after the
+        // index repair miss the wider beam, the best candidate and the duplicates. The
+        // comparison of the tests above (which run the real memo: every audit there repairs
+        // its index) must see it on the same trees.
+        let caught = (0..3).any(|seed| {
+            [false, true]
+                .into_iter()
+                .any(|mixed| !index_agrees_with(2000, mixed, 100 + seed, 0.0, true))
+        });
+        assert!(caught, "a memo keeping too little went unnoticed");
     }
 
     #[test]

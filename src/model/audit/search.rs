@@ -44,6 +44,10 @@ pub(super) struct CandidateIndex {
     /// Nats added to the navigation indexes' KL bounds: 0 except in tests (a deliberately
     /// broken twin, `navindex.rs`).
     pub(super) nav_bias: f64,
+    /// Tests only: a deliberately broken twin of [`NavMemo`] that keeps only the
+    /// `search_beam` lowest broader children of each answer (no wider beam, no best
+    /// candidate, no duplicates).
+    pub(super) memo_broken: bool,
 }
 
 impl CandidateIndex {
@@ -61,6 +65,7 @@ impl CandidateIndex {
             nav_min: WIDE,
             grand: Vec::new(),
             nav_bias: 0.0,
+            memo_broken: false,
         }
         .with_nav()
     }
@@ -140,9 +145,10 @@ impl Searcher<'_> {
         }
     }
 
-    /// Exact BC when the pair passes the cheap bound, else None.
-    fn dup_bc(&self, c: PhraseId, x: PhraseId) -> Option<f64> {
-        let dmax = -self.cfg.duplicate_bc_min.ln();
+    /// Exact BC when the pair passes the cheap bound, else None; `dmax` is
+    /// −ln `duplicate_bc_min` (computed once per search: a logarithm per pair cost 5 % of
+    /// the audit of 1 000 000 phrases).
+    fn dup_bc(&self, c: PhraseId, x: PhraseId, dmax: f64) -> Option<f64> {
         if self.engine.diagonal {
             let (mc, mx) = (self.g.mean(c as usize), self.g.mean(x as usize));
             let (vc, vx) = (self.g.variances(c as usize), self.g.variances(x as usize));
@@ -270,10 +276,22 @@ impl Searcher<'_> {
         let parent = self.eff.tree.parent(c).unwrap_or(NO_PARENT);
         let min_ld = ldc + self.cfg.better_parent_broader;
         let margin = self.cfg.duplicate_generality_margin;
+        let dmax = -self.cfg.duplicate_bc_min.ln();
         let mut kept = vec![false; items.len()];
         let mut broader: Vec<usize> = (0..items.len()).filter(|&i| items[i].1.is_some()).collect();
         let key = |i: usize| (items[i].0, items[i].1.unwrap_or(f64::INFINITY));
         broader.sort_unstable_by(|&i, &j| by_kl(&key(i), &key(j)).then(i.cmp(&j)));
+        if self.index.memo_broken {
+            for &i in broader.iter().take(self.cfg.search_beam) {
+                kept[i] = true;
+            }
+            return items
+                .iter()
+                .zip(&kept)
+                .filter(|e| *e.1)
+                .map(|e| *e.0)
+                .collect();
+        }
         for &i in broader.iter().take(keep) {
             kept[i] = true;
         }
@@ -296,7 +314,7 @@ impl Searcher<'_> {
             if !kept[i]
                 && placed(x)
                 && (self.g.log_det(x as usize) - ldc).abs() <= margin
-                && self.dup_bc(c, x).is_some()
+                && self.dup_bc(c, x, dmax).is_some()
             {
                 kept[i] = true;
             }
@@ -313,6 +331,7 @@ impl Searcher<'_> {
         let wide_width = (SUSPECT_BEAM_FACTOR * self.cfg.search_beam).max(width);
         let ldc = self.g.log_det(c as usize);
         let margin = self.cfg.duplicate_generality_margin;
+        let dmax = -self.cfg.duplicate_bc_min.ln();
         let parent = self.eff.tree.parent(c).unwrap_or(NO_PARENT);
         let min_ld = ldc + self.cfg.better_parent_broader;
         let diagonal = self.engine.diagonal;
@@ -327,7 +346,7 @@ impl Searcher<'_> {
             }
             let ldx = self.g.log_det(x as usize);
             if (ldx - ldc).abs() <= margin
-                && let Some(bc) = self.dup_bc(c, x)
+                && let Some(bc) = self.dup_bc(c, x, dmax)
             {
                 out.dups.push((x, bc));
             }
@@ -397,7 +416,7 @@ impl Searcher<'_> {
                     },
                     min_ld,
                     eligible: &eligible,
-                    dup_dmax: -self.cfg.duplicate_bc_min.ln(),
+                    dup_dmax: dmax,
                     dup_margin: margin,
                     kl: &kl,
                 };
