@@ -234,7 +234,7 @@ impl Searcher<'_> {
             // wider beam so that the named parent is not an artefact of a narrow search
             // (the lower of the two answers is kept; the duplicate lists are merged)
             let mut memo = match &*memo {
-                Memo::Use(m) => Memo::Use(*m),
+                Memo::Use(m) => Memo::Use(m),
                 _ => Memo::Off,
             };
             let wide = self.search_memo(c, SUSPECT_BEAM_FACTOR * self.cfg.search_beam, &mut memo);
