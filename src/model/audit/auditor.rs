@@ -5,7 +5,9 @@ use rayon::prelude::*;
 use super::calibrate;
 use super::confidence_inc::IncConfidence;
 use super::rules::Rule;
-use super::search::{CandidateIndex, Order, Placement, Searcher, needs_search, suspicious};
+use super::search::{
+    CandidateIndex, NavMemo, Order, Placement, Searcher, needs_search, suspicious,
+};
 use super::{AuditConfig, AuditReport, Finding, assemble_with, treefit};
 use crate::model::edit::{EditRecord, ReviewStatus};
 use crate::model::effective::{ApplyProblem, EffectiveTree};
@@ -94,11 +96,13 @@ impl Auditor {
         cfg: AuditConfig,
         nav_min: usize,
     ) -> Self {
-        Self::with_nav_opts(g, phrases, eff, problems, cfg, nav_min, 0.0)
+        Self::with_nav_opts(g, phrases, eff, problems, cfg, nav_min, 0.0, false)
     }
 
     /// [`Auditor::with_nav_min`] with `nav_bias` nats added to the navigation indexes' KL
-    /// bounds (tests only: a positive value is a deliberately broken twin).
+    /// bounds (tests only: a positive value is a deliberately broken twin), and with the
+    /// broken twin of the first pass's memo when `memo_broken` (`CandidateIndex`).
+    #[allow(clippy::too_many_arguments)]
     pub(super) fn with_nav_opts(
         g: &Gaussians,
         phrases: &PhraseTable,
@@ -107,6 +111,7 @@ impl Auditor {
         cfg: AuditConfig,
         nav_min: usize,
         nav_bias: f64,
+        memo_broken: bool,
     ) -> Self {
         // what was freed before (loading, applying the edits) goes back first (memtrim.rs)
         crate::model::memtrim::release_free_memory();
@@ -114,6 +119,7 @@ impl Auditor {
         let mut index = CandidateIndex::of(eff);
         index.nav_min = nav_min;
         index.nav_bias = nav_bias;
+        index.memo_broken = memo_broken;
         index = index.with_nav();
         let stats = engine.compute(g, eff);
         // the tree-level fit first (treefit.rs)
@@ -149,6 +155,10 @@ impl Auditor {
         // with an index repair to come, every node that clears the better-parent gain is
         // searched again after it, so the wider search waits for that pass
         let repair = !exhaustive && fit.fits;
+        // what the first pass found in the navigation indexes, per node, for the pass
+        // after the repair (`NavMemo`: the repair leaves those answers as they were)
+        let mut memos: std::collections::HashMap<PhraseId, NavMemo> =
+            std::collections::HashMap::new();
         {
             let s = searcher!();
             // siblings one after the other: their searches read mostly the same rows, which
@@ -157,12 +167,18 @@ impl Auditor {
             // the order changes no answer
             let order = sibling_order(eff);
             for chunk in order.chunks(SEARCH_CHUNK) {
-                let fresh: Vec<Placement> = chunk
+                let fresh: Vec<(Placement, NavMemo)> = chunk
                     .par_iter()
-                    .map(|&p| s.place_with(p, !repair))
+                    .map(|&p| match repair {
+                        true => s.place_recording(p),
+                        false => (s.place_with(p, true), NavMemo::default()),
+                    })
                     .collect();
-                for (&p, pl) in chunk.iter().zip(fresh) {
+                for (&p, (pl, m)) in chunk.iter().zip(fresh) {
                     placement[p as usize] = pl;
+                    if !m.is_empty() {
+                        memos.insert(p, m);
+                    }
                 }
             }
         }
@@ -181,11 +197,15 @@ impl Auditor {
             }
             index = index.with_nav();
             let s = searcher!();
-            let fresh: Vec<Placement> = suspects.par_iter().map(|&p| s.place(p)).collect();
+            let fresh: Vec<Placement> = suspects
+                .par_iter()
+                .map(|&p| s.place_remembered(p, memos.get(&p)))
+                .collect();
             for (&p, pl) in suspects.iter().zip(fresh) {
                 placement[p as usize] = pl;
             }
         }
+        drop(memos);
         // the searches' scratch vectors, freed on two threads, sit in the allocator's
         // per-thread pools: give those pages back before the report is assembled
         crate::model::memtrim::release_free_memory();

@@ -128,14 +128,9 @@ impl Ord for Key {
     }
 }
 
+/// Σₖ (aₖ − bₖ)² in f64.
 fn sq_dist(a: &[f32], b: &[f32]) -> f64 {
-    a.iter()
-        .zip(b)
-        .map(|(&x, &y)| {
-            let t = x as f64 - y as f64;
-            t * t
-        })
-        .sum()
+    wdist2_any(a, b, None)
 }
 
 impl NavIndex {
@@ -239,16 +234,16 @@ impl NavIndex {
     /// member farthest from that one (Euclidean distance of the means, ties by row).
     fn far_pair(&self, g: &Gaussians, lo: usize, hi: usize) -> (PhraseId, PhraseId) {
         let order = &self.order[lo..hi];
+        // one distance per member; the farthest, ties by the lower row
         let far = |from: &[f32]| {
-            order
-                .iter()
-                .copied()
-                .max_by(|&x, &y| {
-                    sq_dist(g.mean(x as usize), from)
-                        .total_cmp(&sq_dist(g.mean(y as usize), from))
-                        .then(y.cmp(&x))
-                })
-                .unwrap_or(order[0])
+            let mut best = (f64::NEG_INFINITY, order[0]);
+            for &x in order {
+                let dx = sq_dist(g.mean(x as usize), from);
+                if dx > best.0 || (dx == best.0 && x < best.1) {
+                    best = (dx, x);
+                }
+            }
+            best.1
         };
         let a = far(g.mean(order[0] as usize));
         (a, far(g.mean(a as usize)))
@@ -531,14 +526,69 @@ fn ball_terms(mc: &[f32], vc: &[f32], centre: &[f32], w: &[f32]) -> (f64, f64, f
 
 /// Σₖ (aₖ − bₖ)² wₖ in f64.
 fn wdist2(a: &[f32], b: &[f32], w: &[f32]) -> f64 {
-    a.iter()
-        .zip(b)
-        .zip(w)
-        .map(|((&x, &y), &w)| {
-            let t = x as f64 - y as f64;
-            t * t * w as f64
-        })
-        .sum()
+    wdist2_any(a, b, Some(w))
+}
+
+/// Σₖ (aₖ − bₖ)² wₖ in f64 (wₖ = 1 without `w`), over eight interleaved accumulators so
+/// that the loop vectorises (the index build's passes over the members).
+#[inline(always)]
+fn wdist2_impl(a: &[f32], b: &[f32], w: Option<&[f32]>) -> f64 {
+    const LANES: usize = 8;
+    let d = a.len();
+    let b = &b[..d];
+    let full = d / LANES * LANES;
+    let mut acc = [0.0f64; LANES];
+    match w {
+        Some(w) => {
+            let w = &w[..d];
+            for ((x, y), z) in a[..full]
+                .chunks_exact(LANES)
+                .zip(b[..full].chunks_exact(LANES))
+                .zip(w[..full].chunks_exact(LANES))
+            {
+                for j in 0..LANES {
+                    let t = x[j] as f64 - y[j] as f64;
+                    acc[j] += t * t * z[j] as f64;
+                }
+            }
+            for (j, k) in (full..d).enumerate() {
+                let t = a[k] as f64 - b[k] as f64;
+                acc[j] += t * t * w[k] as f64;
+            }
+        }
+        None => {
+            for (x, y) in a[..full]
+                .chunks_exact(LANES)
+                .zip(b[..full].chunks_exact(LANES))
+            {
+                for j in 0..LANES {
+                    let t = x[j] as f64 - y[j] as f64;
+                    acc[j] += t * t;
+                }
+            }
+            for (j, k) in (full..d).enumerate() {
+                let t = a[k] as f64 - b[k] as f64;
+                acc[j] += t * t;
+            }
+        }
+    }
+    acc.iter().sum()
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn wdist2_avx2(a: &[f32], b: &[f32], w: Option<&[f32]>) -> f64 {
+    wdist2_impl(a, b, w)
+}
+
+/// See [`wdist2_impl`] (compiled with AVX2 too, chosen at run time).
+fn wdist2_any(a: &[f32], b: &[f32], w: Option<&[f32]>) -> f64 {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx2") {
+        // SAFETY: the processor supports AVX2 (checked at run time).
+        return unsafe { wdist2_avx2(a, b, w) };
+    }
+    wdist2_impl(a, b, w)
 }
 
 #[cfg(test)]
@@ -689,9 +739,15 @@ mod tests {
     /// their KL bounds raised by `bias` nats, finds what scoring every child finds
     /// (placements and findings).
     fn index_agrees(n: usize, mixed: bool, seed: u64, bias: f64) -> bool {
+        index_agrees_with(n, mixed, seed, bias, false)
+    }
+
+    /// [`index_agrees`], with the broken twin of the first pass's memo when `memo_broken`
+    /// (`search.rs`, `NavMemo`).
+    fn index_agrees_with(n: usize, mixed: bool, seed: u64, bias: f64, memo_broken: bool) -> bool {
         let (g, eff) = wide_tree(n, mixed, seed);
         let (t, cfg) = numbered_table_and_cfg(n);
-        let with = Auditor::with_nav_opts(&g, &t, &eff, &[], cfg.clone(), 16, bias);
+        let with = Auditor::with_nav_opts(&g, &t, &eff, &[], cfg.clone(), 16, bias, memo_broken);
         let without = Auditor::with_nav_min(&g, &t, &eff, &[], cfg, usize::MAX);
         assert!(
             !with.index.nav.is_empty(),
@@ -726,6 +782,21 @@ mod tests {
                 .any(|mixed| !index_agrees(2000, mixed, 100 + seed, 2.0))
         });
         assert!(caught, "a 2-nat too tight bound went unnoticed");
+    }
+
+    #[test]
+    fn a_memo_that_keeps_too_little_is_caught() {
+        // The broken twin of the first pass's memo (search.rs, `NavMemo`): it keeps only the
+        // `search_beam` lowest broader children of each answer, so the searches after the
+        // index repair miss the wider beam, the best candidate and the duplicates. The
+        // comparison of the tests above (which run the real memo: every audit there repairs
+        // its index) must see it on the same trees.
+        let caught = (0..3).any(|seed| {
+            [false, true]
+                .into_iter()
+                .any(|mixed| !index_agrees_with(2000, mixed, 100 + seed, 0.0, true))
+        });
+        assert!(caught, "a memo keeping too little went unnoticed");
     }
 
     #[test]

@@ -44,6 +44,10 @@ pub(super) struct CandidateIndex {
     /// Nats added to the navigation indexes' KL bounds: 0 except in tests (a deliberately
     /// broken twin, `navindex.rs`).
     pub(super) nav_bias: f64,
+    /// Tests only: a deliberately broken twin of [`NavMemo`] that keeps only the
+    /// `search_beam` lowest broader children of each answer (no wider beam, no best
+    /// candidate, no duplicates).
+    pub(super) memo_broken: bool,
 }
 
 impl CandidateIndex {
@@ -61,6 +65,7 @@ impl CandidateIndex {
             nav_min: WIDE,
             grand: Vec::new(),
             nav_bias: 0.0,
+            memo_broken: false,
         }
         .with_nav()
     }
@@ -140,9 +145,10 @@ impl Searcher<'_> {
         }
     }
 
-    /// Exact BC when the pair passes the cheap bound, else None.
-    fn dup_bc(&self, c: PhraseId, x: PhraseId) -> Option<f64> {
-        let dmax = -self.cfg.duplicate_bc_min.ln();
+    /// Exact BC when the pair passes the cheap bound, else None; `dmax` is
+    /// −ln `duplicate_bc_min` (computed once per search: a logarithm per pair cost 5 % of
+    /// the audit of 1 000 000 phrases).
+    fn dup_bc(&self, c: PhraseId, x: PhraseId, dmax: f64) -> Option<f64> {
         if self.engine.diagonal {
             let (mc, mx) = (self.g.mean(c as usize), self.g.mean(x as usize));
             let (vc, vx) = (self.g.variances(c as usize), self.g.variances(x as usize));
@@ -194,7 +200,30 @@ impl Searcher<'_> {
     /// audit's first pass leaves it to the pass after the index repair, which searches
     /// every node that clears the gain again).
     pub(super) fn place_with(&self, c: PhraseId, widen: bool) -> Placement {
-        let mut out = self.search(c, self.cfg.search_beam);
+        self.place_memo(c, widen, &mut Memo::Off)
+    }
+
+    /// The full audit's first pass before an index repair: [`Searcher::place_with`]
+    /// without the wider search, keeping what the queries of the navigation indexes
+    /// found in a [`NavMemo`] for [`Searcher::place_remembered`].
+    pub(super) fn place_recording(&self, c: PhraseId) -> (Placement, NavMemo) {
+        let mut memo = NavMemo::default();
+        let out = self.place_memo(c, false, &mut Memo::Record(&mut memo));
+        (out, memo)
+    }
+
+    /// [`Searcher::place`] after the index repair, with the first pass's [`NavMemo`] of
+    /// `c`: a navigation index that still covers what it covered then is not queried
+    /// again (the answer is the same; see [`NavMemo`]).
+    pub(super) fn place_remembered(&self, c: PhraseId, memo: Option<&NavMemo>) -> Placement {
+        match memo {
+            Some(m) => self.place_memo(c, true, &mut Memo::Use(m)),
+            None => self.place(c),
+        }
+    }
+
+    fn place_memo(&self, c: PhraseId, widen: bool, memo: &mut Memo) -> Placement {
+        let mut out = self.search_memo(c, self.cfg.search_beam, memo);
         let kp = self.eff.tree.parent(c).map(|par| self.kl_to(c, par));
         if let (Some((_, kb)), Some(kp)) = (out.best, kp)
             && widen
@@ -204,7 +233,11 @@ impl Searcher<'_> {
             // a `better-parent` finding will name this candidate: search again with a
             // wider beam so that the named parent is not an artefact of a narrow search
             // (the lower of the two answers is kept; the duplicate lists are merged)
-            let wide = self.search(c, SUSPECT_BEAM_FACTOR * self.cfg.search_beam);
+            let mut memo = match &*memo {
+                Memo::Use(m) => Memo::Use(m),
+                _ => Memo::Off,
+            };
+            let wide = self.search_memo(c, SUSPECT_BEAM_FACTOR * self.cfg.search_beam, &mut memo);
             if let Some(w) = wide.best
                 && out
                     .best
@@ -224,9 +257,81 @@ impl Searcher<'_> {
         out
     }
 
+    #[cfg(test)]
     fn search(&self, c: PhraseId, width: usize) -> Placement {
+        self.search_memo(c, width, &mut Memo::Off)
+    }
+
+    /// The entries of a navigation-index answer (`items`) that a later search of `c` with
+    /// a beam of at most `keep` needs: the `keep` lowest broader children (by [`by_kl`],
+    /// each entry counted), the lowest eligible candidate and the near-duplicates. Every
+    /// other entry is above the beam cut and above the best candidate, and no duplicate.
+    fn memo_items(
+        &self,
+        c: PhraseId,
+        items: &[(PhraseId, Option<f64>)],
+        keep: usize,
+    ) -> Box<[(PhraseId, Option<f64>)]> {
+        let ldc = self.g.log_det(c as usize);
+        let parent = self.eff.tree.parent(c).unwrap_or(NO_PARENT);
+        let min_ld = ldc + self.cfg.better_parent_broader;
+        let margin = self.cfg.duplicate_generality_margin;
+        let dmax = -self.cfg.duplicate_bc_min.ln();
+        let mut kept = vec![false; items.len()];
+        let mut broader: Vec<usize> = (0..items.len()).filter(|&i| items[i].1.is_some()).collect();
+        let key = |i: usize| (items[i].0, items[i].1.unwrap_or(f64::INFINITY));
+        broader.sort_unstable_by(|&i, &j| by_kl(&key(i), &key(j)).then(i.cmp(&j)));
+        if self.index.memo_broken {
+            for &i in broader.iter().take(self.cfg.search_beam) {
+                kept[i] = true;
+            }
+            return items
+                .iter()
+                .zip(&kept)
+                .filter(|e| *e.1)
+                .map(|e| *e.0)
+                .collect();
+        }
+        for &i in broader.iter().take(keep) {
+            kept[i] = true;
+        }
+        let placed = |x: PhraseId| x != c && self.eff.tree.is_placed(x);
+        let best = broader
+            .iter()
+            .copied()
+            .filter(|&i| {
+                let x = items[i].0;
+                placed(x)
+                    && x != parent
+                    && self.g.log_det(x as usize) > min_ld
+                    && !self.order.in_subtree(c, x)
+            })
+            .min_by(|&i, &j| by_kl(&key(i), &key(j)));
+        if let Some(i) = best {
+            kept[i] = true;
+        }
+        for (i, &(x, _)) in items.iter().enumerate() {
+            if !kept[i]
+                && placed(x)
+                && (self.g.log_det(x as usize) - ldc).abs() <= margin
+                && self.dup_bc(c, x, dmax).is_some()
+            {
+                kept[i] = true;
+            }
+        }
+        items
+            .iter()
+            .zip(&kept)
+            .filter(|e| *e.1)
+            .map(|e| *e.0)
+            .collect()
+    }
+
+    fn search_memo<'m>(&self, c: PhraseId, width: usize, memo: &mut Memo<'m>) -> Placement {
+        let wide_width = (SUSPECT_BEAM_FACTOR * self.cfg.search_beam).max(width);
         let ldc = self.g.log_det(c as usize);
         let margin = self.cfg.duplicate_generality_margin;
+        let dmax = -self.cfg.duplicate_bc_min.ln();
         let parent = self.eff.tree.parent(c).unwrap_or(NO_PARENT);
         let min_ld = ldc + self.cfg.better_parent_broader;
         let diagonal = self.engine.diagonal;
@@ -241,7 +346,7 @@ impl Searcher<'_> {
             }
             let ldx = self.g.log_det(x as usize);
             if (ldx - ldc).abs() <= margin
-                && let Some(bc) = self.dup_bc(c, x)
+                && let Some(bc) = self.dup_bc(c, x, dmax)
             {
                 out.dups.push((x, bc));
             }
@@ -278,10 +383,22 @@ impl Searcher<'_> {
                       out: &mut Placement,
                       cands: &mut Cands,
                       next: &mut Lowest,
-                      scratch: &mut Vec<(PhraseId, Option<f64>)>| {
+                      scratch: &mut Vec<(PhraseId, Option<f64>)>,
+                      memo: &mut Memo<'m>| {
             let kids = &self.index.children[b as usize];
             let mut from = 0;
             if let Some(nav) = self.nav_of(b) {
+                let remembered = match &*memo {
+                    Memo::Use(m) => {
+                        let m: &'m NavMemo = m;
+                        m.get(b, nav.covered)
+                    }
+                    _ => None,
+                };
+                // recording: the answer must serve the later searches of c (both beams,
+                // whatever the best candidate then), so it is asked for the wider beam,
+                // followed, without the best candidate so far
+                let record = matches!(memo, Memo::Record(_));
                 let eligible = |x: PhraseId| {
                     x != parent && self.eff.tree.is_placed(x) && !self.order.in_subtree(c, x)
                 };
@@ -290,17 +407,38 @@ impl Searcher<'_> {
                     c,
                     ld_c: ldc,
                     diag_ld_c: self.engine.diag_log_det[c as usize],
-                    beam: width,
-                    beam_matters: follow,
+                    beam: if record { wide_width } else { width },
+                    beam_matters: follow || record,
                     bias: self.index.nav_bias,
-                    best_so_far: cands.best.map_or(f64::INFINITY, |e| e.1),
+                    best_so_far: match record {
+                        true => f64::INFINITY,
+                        false => cands.best.map_or(f64::INFINITY, |e| e.1),
+                    },
                     min_ld,
                     eligible: &eligible,
-                    dup_dmax: -self.cfg.duplicate_bc_min.ln(),
+                    dup_dmax: dmax,
                     dup_margin: margin,
                     kl: &kl,
                 };
-                nav.query(self.g, &q, scratch);
+                match remembered {
+                    Some(items) => {
+                        scratch.clear();
+                        scratch.extend_from_slice(items);
+                    }
+                    None => {
+                        nav.query(self.g, &q, scratch);
+                        if let Memo::Record(m) = memo
+                            && m.get(b, nav.covered).is_none()
+                        {
+                            let items = self.memo_items(c, scratch, wide_width);
+                            m.0.push(MemoEntry {
+                                b,
+                                covered: nav.covered,
+                                items,
+                            });
+                        }
+                    }
+                }
                 for &(x, k) in scratch.iter() {
                     consider(x, k, out, cands);
                     if let Some(k) = k {
@@ -356,6 +494,7 @@ impl Searcher<'_> {
                     &mut cands,
                     &mut next,
                     &mut scratch,
+                    memo,
                 );
             }
             expanded.extend_from_slice(&beam);
@@ -372,7 +511,15 @@ impl Searcher<'_> {
             next.clear();
             // what the expansion adds to `next` is not followed: only the best candidate
             // and the duplicates matter there
-            expand(parent, false, &mut out, &mut cands, &mut next, &mut scratch);
+            expand(
+                parent,
+                false,
+                &mut out,
+                &mut cands,
+                &mut next,
+                &mut scratch,
+                memo,
+            );
         }
         for &x in &self.index.extra {
             let k = (x != c && broader(x)).then(|| self.kl_diag(c, x));
@@ -394,6 +541,48 @@ impl Searcher<'_> {
         out.dups.dedup_by_key(|e| e.0);
         out
     }
+}
+
+/// What the first pass of a full audit found in the navigation indexes for one node c,
+/// kept for the searches of c after the index repair (`Auditor::with_nav_opts`; dropped
+/// after it). Per index queried (node b, the prefix of b's children it covered): the
+/// entries of the answer that a search of c with a beam of at most
+/// [`SUSPECT_BEAM_FACTOR`] · `search_beam` can use (`Searcher::memo_items`), asked for with
+/// that beam, followed, and no best candidate so far. The repair only appends children
+/// and changes neither the tree nor the eligibility of a candidate, so when b's index
+/// covers the same prefix, these entries hold every child the beam keeps (with its KL),
+/// the lowest eligible candidate and every near-duplicate: a search given them instead of
+/// a new query keeps the same beam, best candidate and duplicates. (Not used by
+/// incremental updates.)
+#[derive(Debug, Clone, Default)]
+pub(super) struct NavMemo(Vec<MemoEntry>);
+
+#[derive(Debug, Clone)]
+struct MemoEntry {
+    b: PhraseId,
+    covered: usize,
+    items: Box<[(PhraseId, Option<f64>)]>,
+}
+
+impl NavMemo {
+    fn get(&self, b: PhraseId, covered: usize) -> Option<&[(PhraseId, Option<f64>)]> {
+        self.0
+            .iter()
+            .find(|e| e.b == b && e.covered == covered)
+            .map(|e| &*e.items)
+    }
+
+    /// Whether nothing was kept (no navigation index was queried).
+    pub(super) fn is_empty(&self) -> bool {
+        self.0.is_empty()
+    }
+}
+
+/// How a search uses the [`NavMemo`] of its node.
+pub(super) enum Memo<'m> {
+    Off,
+    Record(&'m mut NavMemo),
+    Use(&'m NavMemo),
 }
 
 /// Order of scored nodes: lower KL first, ties by the lower row.
