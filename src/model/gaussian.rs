@@ -1092,3 +1092,9 @@ mod tests {
         close(g.log_det(0), (1e-4f32 as f64).ln(), 1e-9);
     }
 }
+
+/// Tests added for mutation testing (issue 17): each pins a group of mutants to an
+/// independent value; see the file's header.
+#[cfg(test)]
+#[path = "gaussian_tests.rs"]
+mod mutant_tests;
