@@ -371,134 +371,59 @@ fn table_rows_and_accessors() {
 
 /// Wrong lengths are shape errors, and a bad value is reported at its row and column
 /// (flat index k of an n × w array is row k / w, column k mod w).
+/// (row, column, array) of an error that names a position: "variance ≤ 0" for a
+/// non-positive variance; None for any other error.
+fn position(e: &GaussError) -> Option<(usize, usize, &'static str)> {
+    match e {
+        GaussError::NonFinite { row, col, what, .. } => Some((*row, *col, what)),
+        GaussError::NonPositiveVariance { row, col, .. } => Some((*row, *col, "variance ≤ 0")),
+        _ => None,
+    }
+}
+
 #[test]
 fn shape_errors_and_error_positions() {
     let shape = |r: Result<Gaussians, GaussError>| matches!(r, Err(GaussError::Shape(_)));
-    assert!(shape(Gaussians::from_diagonal(
-        3,
-        2,
-        vec![0.0; 5],
-        vec![1.0; 6],
-        0.0
-    )));
-    assert!(shape(Gaussians::from_diagonal(
-        3,
-        2,
-        vec![0.0; 6],
-        vec![1.0; 7],
-        0.0
-    )));
-    assert!(shape(Gaussians::from_diagonal_f32(
-        3,
-        2,
-        vec![0.0; 5],
-        vec![1.0; 6],
-        0.0
-    )));
-    assert!(shape(Gaussians::from_diagonal_f32(
-        3,
-        2,
-        vec![0.0; 6],
-        vec![1.0; 5],
-        0.0
-    )));
-    assert!(shape(Gaussians::from_full(
-        2,
-        3,
-        vec![0.0; 5],
-        vec![0.0; 18],
-        0.0
-    )));
-    assert!(shape(Gaussians::from_full(
-        2,
-        3,
-        vec![0.0; 6],
-        vec![0.0; 15],
-        0.0
-    )));
-    assert!(shape(Gaussians::from_full(
-        2,
-        3,
-        vec![0.0; 6],
-        vec![0.0; 9],
-        0.0
-    )));
+    // (means, variances) of a 3 × 2 diagonal table, one of them the wrong length
+    for (m, v) in [(5, 6), (6, 7)] {
+        let r = Gaussians::from_diagonal(3, 2, vec![0.0; m], vec![1.0; v], 0.0);
+        assert!(shape(r), "f64: {m} means, {v} variances");
+    }
+    for (m, v) in [(5, 6), (6, 5)] {
+        let r = Gaussians::from_diagonal_f32(3, 2, vec![0.0; m], vec![1.0; v], 0.0);
+        assert!(shape(r), "f32: {m} means, {v} variances");
+    }
+    // (means, covariance entries) of a 2 × 3 full table
+    for (m, c) in [(5, 18), (6, 15), (6, 9)] {
+        let r = Gaussians::from_full(2, 3, vec![0.0; m], vec![0.0; c], 0.0);
+        assert!(shape(r), "full: {m} means, {c} covariance entries");
+    }
 
-    let mut m = vec![0.0; 6];
-    m[5] = f64::NAN;
-    let e = Gaussians::from_diagonal(3, 2, m, vec![1.0; 6], 0.0).unwrap_err();
-    assert!(
-        matches!(
-            e,
-            GaussError::NonFinite {
-                row: 2,
-                col: 1,
-                what: "mean",
-                ..
-            }
-        ),
-        "{e:?}"
-    );
-    let mut v = vec![1.0; 6];
-    v[3] = f64::INFINITY;
-    let e = Gaussians::from_diagonal(3, 2, vec![0.0; 6], v, 0.0).unwrap_err();
-    assert!(
-        matches!(
-            e,
-            GaussError::NonFinite {
-                row: 1,
-                col: 1,
-                what: "variance",
-                ..
-            }
-        ),
-        "{e:?}"
-    );
-    let mut v = vec![1.0; 6];
-    v[4] = -1.0;
-    let e = Gaussians::from_diagonal(3, 2, vec![0.0; 6], v, 0.0).unwrap_err();
-    assert!(
-        matches!(e, GaussError::NonPositiveVariance { row: 2, col: 0, .. }),
-        "{e:?}"
-    );
-
-    let mut m = vec![0.0f32; 6];
-    m[5] = f32::NAN;
-    let e = Gaussians::from_diagonal_f32(3, 2, m, vec![1.0; 6], 0.0).unwrap_err();
-    assert!(
-        matches!(
-            e,
-            GaussError::NonFinite {
-                row: 2,
-                col: 1,
-                what: "mean",
-                ..
-            }
-        ),
-        "{e:?}"
-    );
-    let mut v = vec![1.0f32; 6];
-    v[3] = f32::NEG_INFINITY;
-    let e = Gaussians::from_diagonal_f32(3, 2, vec![0.0; 6], v, 0.0).unwrap_err();
-    assert!(
-        matches!(
-            e,
-            GaussError::NonFinite {
-                row: 1,
-                col: 1,
-                what: "variance",
-                ..
-            }
-        ),
-        "{e:?}"
-    );
-    let mut v = vec![1.0f32; 6];
-    v[5] = 0.0;
-    let e = Gaussians::from_diagonal_f32(3, 2, vec![0.0; 6], v, 0.0).unwrap_err();
-    assert!(
-        matches!(e, GaussError::NonPositiveVariance { row: 2, col: 1, .. }),
-        "{e:?}"
-    );
+    // a bad value at flat index k of the 3 × 2 arrays is reported at row k / 2, column k mod 2
+    // (mean or variance, the index, the value, the expected position)
+    let cases: [(bool, usize, f64, (usize, usize, &str)); 5] = [
+        (true, 5, f64::NAN, (2, 1, "mean")),
+        (false, 3, f64::INFINITY, (1, 1, "variance")),
+        (false, 4, -1.0, (2, 0, "variance ≤ 0")),
+        (false, 3, f64::NEG_INFINITY, (1, 1, "variance")),
+        (false, 5, 0.0, (2, 1, "variance ≤ 0")),
+    ];
+    for (in_mean, k, bad, want) in cases {
+        let (mut m, mut v) = (vec![0.0; 6], vec![1.0; 6]);
+        if in_mean {
+            m[k] = bad;
+        } else {
+            v[k] = bad;
+        }
+        let (m32, v32): (Vec<f32>, Vec<f32>) = (
+            m.iter().map(|&x| x as f32).collect(),
+            v.iter().map(|&x| x as f32).collect(),
+        );
+        let e = Gaussians::from_diagonal(3, 2, m, v, 0.0).unwrap_err();
+        assert_eq!(position(&e), Some(want), "f64: {e:?}");
+        let e = Gaussians::from_diagonal_f32(3, 2, m32, v32, 0.0).unwrap_err();
+        assert_eq!(position(&e), Some(want), "f32: {e:?}");
+    }
 
     // a covariance entry is named by its flat index inside its d × d block
     let mut c = vec![0.0; 18];
