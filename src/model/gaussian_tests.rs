@@ -401,7 +401,8 @@ fn shape_errors_and_error_positions() {
 
     // a bad value at flat index k of the 3 × 2 arrays is reported at row k / 2, column k mod 2
     // (mean or variance, the index, the value, the expected position)
-    let cases: [(bool, usize, f64, (usize, usize, &str)); 5] = [
+    type Position = (usize, usize, &'static str);
+    let cases: [(bool, usize, f64, Position); 5] = [
         (true, 5, f64::NAN, (2, 1, "mean")),
         (false, 3, f64::INFINITY, (1, 1, "variance")),
         (false, 4, -1.0, (2, 0, "variance ≤ 0")),
