@@ -185,10 +185,10 @@ pub fn run(args: &BuildArgs) -> Result<(), CliError> {
         // base is installed: free it for the build (less peak memory)
         ws.eff = None;
         // nor does the report of an earlier build, which this one replaces, nor the old
-        // base tree (the build reads only the phrases and their Gaussians)
+        // base tree (the build reads only the phrases and their Gaussians; both builders
+        // hand freed pages back when they start, memtrim.rs)
         ws.build_report = None;
         ws.project.tree = None;
-        crate::model::memtrim::release_free_memory();
         let built = build_with(&ws.project, inclusion.as_ref(), &params)?;
         let summary = Summary::of(&built);
         // the tree file and the report are dropped once written, before the workspace
@@ -202,9 +202,9 @@ pub fn run(args: &BuildArgs) -> Result<(), CliError> {
             let ws = ws;
             ws.project
         };
-        // the build reads only the phrases and their Gaussians: free the old tree too
+        // the build reads only the phrases and their Gaussians: free the old tree too (both
+        // builders hand freed pages back when they start, memtrim.rs)
         project.tree = None;
-        crate::model::memtrim::release_free_memory();
         let built = build_with(&project, inclusion.as_ref(), &params)?;
         let tree_bytes = tree_bytes(&built.tree_file, &out)
             .map_err(|e| CliError::bad_input(format!("{}: {e}", out.display())))?;

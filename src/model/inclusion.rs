@@ -537,6 +537,9 @@ pub fn build_inclusion(
     progress: &(dyn Fn(InclusionProgress) + Sync),
     cancel: &AtomicBool,
 ) -> Result<InclusionTree, InclusionError> {
+    // what the caller freed before (the project's old tree, loading) goes back first
+    // (memtrim.rs)
+    crate::model::memtrim::release_free_memory();
     let n_all = g.len();
     if phrases.len() != n_all {
         return Err(InclusionError::Mismatch {

@@ -281,18 +281,11 @@ impl Searcher<'_> {
         let mut broader: Vec<usize> = (0..items.len()).filter(|&i| items[i].1.is_some()).collect();
         let key = |i: usize| (items[i].0, items[i].1.unwrap_or(f64::INFINITY));
         broader.sort_unstable_by(|&i, &j| by_kl(&key(i), &key(j)).then(i.cmp(&j)));
-        if self.index.memo_broken {
-            for &i in broader.iter().take(self.cfg.search_beam) {
-                kept[i] = true;
-            }
-            return items
-                .iter()
-                .zip(&kept)
-                .filter(|e| *e.1)
-                .map(|e| *e.0)
-                .collect();
-        }
-        for &i in broader.iter().take(keep) {
+        // the broken twin keeps only the narrow beam's children (no wider beam, no best
+        // candidate, no duplicates)
+        let twin = self.index.memo_broken;
+        let take = if twin { self.cfg.search_beam } else { keep };
+        for &i in broader.iter().take(take) {
             kept[i] = true;
         }
         let placed = |x: PhraseId| x != c && self.eff.tree.is_placed(x);
@@ -307,11 +300,12 @@ impl Searcher<'_> {
                     && !self.order.in_subtree(c, x)
             })
             .min_by(|&i, &j| by_kl(&key(i), &key(j)));
-        if let Some(i) = best {
+        if let Some(i) = best.filter(|_| !twin) {
             kept[i] = true;
         }
         for (i, &(x, _)) in items.iter().enumerate() {
-            if !kept[i]
+            if !twin
+                && !kept[i]
                 && placed(x)
                 && (self.g.log_det(x as usize) - ldc).abs() <= margin
                 && self.dup_bc(c, x, dmax).is_some()
@@ -661,10 +655,7 @@ pub(super) fn clear_gain(cfg: &AuditConfig, kp: f64, kb: f64) -> bool {
 
 /// The candidate with the lowest score (ties: the lower row).
 fn lowest(cands: &[(PhraseId, f64)]) -> Option<(PhraseId, f64)> {
-    cands
-        .iter()
-        .copied()
-        .min_by(|a, b| a.1.total_cmp(&b.1).then(a.0.cmp(&b.0)))
+    cands.iter().copied().min_by(by_kl)
 }
 
 /// A placed node whose placement rules fire (better parent, weak inclusion, inversion):

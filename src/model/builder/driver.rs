@@ -196,7 +196,8 @@ pub fn build(
         total: members.len(),
     };
     let total = members.len();
-    // what was freed before (loading the project) goes back first (memtrim.rs)
+    // what the caller freed before (the project's old tree, loading) goes back first
+    // (memtrim.rs)
     crate::model::memtrim::release_free_memory();
     let sub = build_cluster(&ctx, members, 0, mix(params.seed, 0))?;
     let mut parent = BTreeMap::new();
