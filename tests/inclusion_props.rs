@@ -321,6 +321,15 @@ fn bad_input_is_refused() {
         .check()
         .is_err()
     );
+    // above the limit that keeps a block's candidates countable in 32 bits (options.rs)
+    assert!(
+        InclusionParams {
+            candidates_per_node: treewright::model::inclusion::MAX_CANDIDATES_PER_NODE + 1,
+            ..InclusionParams::default()
+        }
+        .check()
+        .is_err()
+    );
     let cancelled = build_inclusion(&g, &t, None, &[], &p, &|_| {}, &AtomicBool::new(true));
     assert!(cancelled.is_err());
 }

@@ -84,6 +84,10 @@ use repair::Shape;
 /// Largest accepted [`InclusionParams::max_depth`].
 pub const MAX_DEPTH_LIMIT: usize = 64;
 
+/// Largest accepted [`InclusionParams::candidates_per_node`]: far above any useful list,
+/// and it keeps the candidates of a block of 256 phrases countable in 32 bits.
+pub const MAX_CANDIDATES_PER_NODE: usize = 65_536;
+
 /// The divergence an edge child → parent is weighted by.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase")]
@@ -238,10 +242,10 @@ impl InclusionParams {
         }
         let p = &self;
         rule(
-            p.candidates_per_node >= 1,
+            (1..=MAX_CANDIDATES_PER_NODE).contains(&p.candidates_per_node),
             "candidates_per_node",
             p.candidates_per_node.to_string(),
-            "must be ≥ 1",
+            "must be between 1 and 65 536",
         )?;
         rule(
             p.generality_margin.is_finite(),

@@ -38,6 +38,8 @@ impl OptionBlock {
     pub(super) fn push(&mut self, opts: &[Opt]) {
         self.cost.extend(opts.iter().map(|o| o.0));
         self.parent.extend(opts.iter().map(|o| o.1));
+        // at most 256 phrases × (MAX_CANDIDATES_PER_NODE + 1) candidates, checked with the
+        // parameters: well below 2³²
         let end = u32::try_from(self.cost.len()).expect("a block holds fewer than 2³² candidates");
         self.start.push(end);
     }
